@@ -1,0 +1,17 @@
+//! # worksheet-lang
+//!
+//! The Headroom worksheet language as a pure library: source text in, plain Rust data out.
+//! It parses cells into a tree with diagnostics, checks units and dimensions, carries
+//! tolerances to guaranteed worst-case bounds, keeps the worksheet as a dependency graph,
+//! and holds the built-in power-design library.
+//!
+//! It knows nothing of Jupyter, sockets, JSON, files or terminals, and never prints.
+
+pub mod ast;
+pub mod diagnostic;
+pub mod parser;
+pub mod units;
+
+pub use ast::Span;
+pub use diagnostic::{DiagKind, Diagnostic, Severity};
+pub use parser::{is_complete, parse, Completeness};
