@@ -15,3 +15,10 @@ pub mod units;
 pub use ast::Span;
 pub use diagnostic::{DiagKind, Diagnostic, Severity};
 pub use parser::{is_complete, parse, Completeness};
+pub mod fold;
+pub mod lexer;
+pub mod results;
+pub mod worksheet;
+
+pub use results::CellReport;
+pub use worksheet::{Execution, Interrupt, Worksheet};

@@ -1,0 +1,1 @@
+//! The look-alike fold applied before lexing (STUB).

@@ -1,0 +1,154 @@
+//! The results of running a worksheet, as plain data. The kernel and the command line
+//! render these; nothing here knows about any output format.
+
+use crate::diagnostic::Diagnostic;
+use crate::units::Dim;
+
+/// Everything one cell shows.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct CellReport {
+    /// The key the worksheet knows the cell by (a front end's cell id, or one it made).
+    pub cell: String,
+    /// The cell's source as last run (diagnostic spans index into it).
+    pub source: String,
+    /// Errors (and non-check warnings such as a unit that shadows a name) of this cell.
+    pub diagnostics: Vec<Diagnostic>,
+    /// Givens and derived values in statement order; record fields appear as their own
+    /// rows (`u1.loss`).
+    pub values: Vec<ValueRow>,
+    pub checks: Vec<CheckRow>,
+    pub warnings: Vec<WarningRow>,
+    pub sweeps: Vec<SweepTable>,
+    /// Values of bare expressions (`EXPR`, `EXPR as UNIT`), shown as the execute result.
+    pub shown: Vec<ValueRow>,
+}
+
+impl CellReport {
+    pub fn has_errors(&self) -> bool {
+        self.diagnostics.iter().any(|d| d.is_error())
+    }
+    pub fn failed_checks(&self) -> usize {
+        self.checks.iter().filter(|c| !c.passed).count()
+    }
+}
+
+/// A number with its dimension; `si` is in the coherent SI unit of `dim`, absolute
+/// temperatures in kelvin with `absolute` set.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Quantity {
+    pub si: f64,
+    pub dim: Dim,
+    pub absolute: bool,
+}
+
+/// Worst-case bounds of an uncertain value.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Bounds {
+    pub min: f64,
+    pub max: f64,
+    /// Guaranteed to enclose, but not proven to be the exact extremes.
+    pub conservative: bool,
+    /// Each input's share of the spread (fractions summing to 1 when there is a spread).
+    pub shares: Vec<Share>,
+    /// Root-sum-square half-spread, in SI.
+    pub rss: f64,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Share {
+    /// The input's name: a given's name, or a description such as "tolerance in R7".
+    pub input: String,
+    pub fraction: f64,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum Shown {
+    Number {
+        value: Quantity,
+        bounds: Option<Bounds>,
+    },
+    Text(String),
+    /// A list, or anything else shown as text (already formatted).
+    Other(String),
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct ValueRow {
+    /// `tj`, `u1.loss`, or the source text of a bare expression.
+    pub name: String,
+    pub given: bool,
+    pub note: String,
+    pub shown: Shown,
+    /// The declared or `as` unit, if any (the display uses it instead of the automatic one).
+    pub unit: Option<crate::units::Unit>,
+    /// Preferred display when no unit was declared (e.g. "%" for an efficiency), if any.
+    pub preferred: Option<crate::units::Unit>,
+    /// Display text, e.g. "79.4 °C" (three significant digits, or the declared unit's).
+    pub text: String,
+    /// Display text of the worst-case range, e.g. "69.8 °C … 91.0 °C".
+    pub range_text: Option<String>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct CheckRow {
+    /// The check as written, e.g. "tj <= 125 °C".
+    pub text: String,
+    pub note: String,
+    pub passed: bool,
+    /// The two sides at the deciding corner, in SI (`absolute` applies to both).
+    pub worst: f64,
+    pub limit: f64,
+    pub absolute: bool,
+    /// Worst-case difference of the two sides, positive when passing, in SI of `dim`.
+    pub margin: f64,
+    pub dim: Dim,
+    pub conservative: bool,
+    pub worst_text: String,
+    pub limit_text: String,
+    pub margin_text: String,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct WarningRow {
+    /// What raised it: a definition's name (`u1`) or `check`.
+    pub source: String,
+    pub text: String,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct SweepTable {
+    pub over: String,
+    pub dim: Dim,
+    pub absolute: bool,
+    /// Swept values in SI.
+    pub points: Vec<f64>,
+    pub series: Vec<SweepSeries>,
+    /// Check limits that apply to a swept result: (series name, limit in SI, text).
+    pub limits: Vec<SweepLimit>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct SweepSeries {
+    pub name: String,
+    pub dim: Dim,
+    pub absolute: bool,
+    pub nominal: Vec<f64>,
+    /// Present when the series is uncertain.
+    pub min: Option<Vec<f64>>,
+    pub max: Option<Vec<f64>>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct SweepLimit {
+    pub series: String,
+    pub limit: f64,
+    pub text: String,
+}
+
+/// One name whose value changed, with its old and new display text.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Change {
+    pub name: String,
+    pub old: String,
+    pub new: String,
+}
