@@ -1,3 +1,59 @@
-fn main() {
-    println!("headroom");
+//! `headroom`: the Jupyter kernel and the command line of the Headroom worksheet language.
+
+mod install;
+mod render;
+mod run;
+mod server;
+
+use clap::{Parser, Subcommand};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Parser)]
+#[command(name = "headroom", version, about = "Power-design worksheets: a Jupyter kernel and command line")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Run as a Jupyter kernel (started by Jupyter through the kernelspec).
+    Kernel {
+        /// The connection file Jupyter wrote for this kernel.
+        #[arg(long = "connection-file", short = 'f')]
+        connection_file: PathBuf,
+    },
+    /// Register the kernel with Jupyter.
+    Install(install::InstallArgs),
+    /// Run a worksheet (.hrw) or a notebook (.ipynb) and print its results.
+    Run(run::RunArgs),
+}
+
+fn main() -> ExitCode {
+    init_logging();
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Kernel { connection_file } => server::serve(&connection_file).map(|()| 0),
+        Command::Install(args) => install::install(&args).map(|()| 0),
+        Command::Run(args) => run::run(&args),
+    };
+    match result {
+        Ok(code) => ExitCode::from(code),
+        Err(err) => {
+            eprintln!("headroom: {err:#}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+/// Logs go to stderr only (stdout belongs to the command's output), quiet unless RUST_LOG says.
+fn init_logging() {
+    let filter = tracing_subscriber::EnvFilter::try_from_default_env()
+        .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("warn"));
+    tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_writer(std::io::stderr)
+        .with_target(false)
+        .init();
 }
