@@ -1,5 +1,150 @@
-//! The Jupyter kernel server (STUB).
-pub fn serve(connection_file: &std::path::Path) -> anyhow::Result<()> {
-    let _ = connection_file;
-    anyhow::bail!("the kernel is not implemented yet")
+//! The Jupyter kernel: messaging protocol 5.4 over ZeroMQ (the `zeromq` crate on tokio).
+//!
+//! - `connection` reads the connection file and binds the sockets it names;
+//! - `wire` frames, signs and verifies messages;
+//! - `handlers` answers requests, one dispatch path per channel;
+//! - `execute` turns a worksheet run into what is published; `history` keeps the inputs;
+//! - `cursor` converts Jupyter's code-point positions to the language's byte offsets.
+//!
+//! Tasks: the heartbeat echo, the iopub publisher, a reader and a worker for shell (the
+//! worker runs evaluation on a blocking thread), the control loop, and a SIGINT watcher.
+//! IOPub is a plain PUB socket: XPUB in `zeromq` 0.7 stalls every subscriber when one stops
+//! reading.
+
+mod connection;
+mod cursor;
+mod execute;
+mod handlers;
+mod history;
+mod wire;
+
+use connection::Connection;
+use handlers::{Replier, Shared, Shell};
+use std::path::Path;
+use std::sync::Arc;
+use std::time::Duration;
+use tokio::sync::{mpsc, Notify};
+use worksheet_lang::Interrupt;
+use zeromq::{Socket, SocketRecv, SocketSend};
+
+/// `send` returns before the bytes are on the wire; this long after the shutdown reply the
+/// kernel exits.
+const SHUTDOWN_GRACE: Duration = Duration::from_millis(100);
+
+pub fn serve(connection_file: &Path) -> anyhow::Result<()> {
+    let conn = Connection::load(connection_file)?;
+    let runtime = tokio::runtime::Builder::new_multi_thread()
+        .worker_threads(2)
+        .enable_all()
+        .build()?;
+    let result = runtime.block_on(run(&conn));
+    // An evaluation still running on a blocking thread has been interrupted; do not wait
+    // long for it.
+    runtime.shutdown_timeout(Duration::from_millis(200));
+    for path in conn.ipc_paths() {
+        let _ = std::fs::remove_file(path);
+    }
+    result
+}
+
+async fn run(conn: &Connection) -> anyhow::Result<()> {
+    let ep = conn.endpoints();
+    let mut shell = zeromq::RouterSocket::new();
+    connection::bind(&mut shell, &ep.shell).await?;
+    let mut control = zeromq::RouterSocket::new();
+    connection::bind(&mut control, &ep.control).await?;
+    let mut stdin = zeromq::RouterSocket::new();
+    connection::bind(&mut stdin, &ep.stdin).await?;
+    let mut iopub = zeromq::PubSocket::new();
+    connection::bind(&mut iopub, &ep.iopub).await?;
+    let mut heartbeat = zeromq::RepSocket::new();
+    connection::bind(&mut heartbeat, &ep.heartbeat).await?;
+    tracing::info!("kernel listening on {}", ep.shell);
+
+    let (iopub_tx, iopub_rx) = mpsc::unbounded_channel();
+    let shared = Arc::new(Shared {
+        session: wire::Session::new(conn.key.clone()),
+        key: conn.key.clone(),
+        iopub: iopub_tx,
+        interrupt: Interrupt::new(),
+        shutdown: Notify::new(),
+    });
+
+    tokio::spawn(publish(iopub, iopub_rx));
+    tokio::spawn(echo_heartbeat(heartbeat));
+    tokio::spawn(drain_stdin(stdin));
+    tokio::spawn(interrupt_on_sigint(shared.interrupt.clone()));
+
+    let (shell_send, shell_recv) = shell.split();
+    let (queue_tx, queue_rx) = mpsc::unbounded_channel();
+    tokio::spawn(handlers::read_shell(shell_recv, shared.clone(), queue_tx));
+    let replier = Replier { socket: shell_send };
+    tokio::spawn(Shell::new(shared.clone(), replier, queue_rx).run());
+
+    let (control_send, control_recv) = control.split();
+    let replier = Replier {
+        socket: control_send,
+    };
+    tokio::spawn(handlers::serve_control(control_recv, replier, shared.clone()));
+
+    shared.shutdown.notified().await;
+    tokio::time::sleep(SHUTDOWN_GRACE).await;
+    Ok(())
+}
+
+async fn publish(mut socket: zeromq::PubSocket, mut rx: mpsc::UnboundedReceiver<zeromq::ZmqMessage>) {
+    while let Some(frames) = rx.recv().await {
+        if let Err(e) = socket.send(frames).await {
+            tracing::warn!("cannot publish on iopub: {e}");
+        }
+    }
+}
+
+async fn echo_heartbeat(mut socket: zeromq::RepSocket) {
+    loop {
+        match socket.recv().await {
+            Ok(ping) => {
+                if let Err(e) = socket.send(ping).await {
+                    tracing::warn!("heartbeat reply failed: {e}");
+                }
+            }
+            Err(e) => {
+                tracing::error!("the heartbeat socket closed: {e}");
+                return;
+            }
+        }
+    }
+}
+
+/// The language never asks for input, but the socket must be bound and read so that a
+/// client's stray `input_reply` does not pile up.
+async fn drain_stdin(mut socket: zeromq::RouterSocket) {
+    while let Ok(frames) = socket.recv().await {
+        tracing::debug!("ignoring a message on stdin ({} frames)", frames.len());
+    }
+}
+
+/// Clients send SIGINT on interrupt (with `interrupt_mode: "signal"`) and before shutting a
+/// kernel down; it stops the running evaluation and must not kill the kernel.
+async fn interrupt_on_sigint(interrupt: Interrupt) {
+    #[cfg(unix)]
+    {
+        use tokio::signal::unix::{signal, SignalKind};
+        let mut sigint = match signal(SignalKind::interrupt()) {
+            Ok(s) => s,
+            Err(e) => {
+                tracing::warn!("cannot watch SIGINT: {e}");
+                return;
+            }
+        };
+        while sigint.recv().await.is_some() {
+            tracing::info!("SIGINT: interrupting the running evaluation");
+            interrupt.raise();
+        }
+    }
+    #[cfg(not(unix))]
+    while tokio::signal::ctrl_c().await.is_ok() {
+        tracing::info!("Ctrl-C: interrupting the running evaluation");
+        interrupt.raise();
+    }
 }

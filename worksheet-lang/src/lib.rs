@@ -8,6 +8,9 @@
 //! It knows nothing of Jupyter, sockets, JSON, files or terminals, and never prints.
 
 pub mod ast;
+pub mod builtins;
+pub mod num;
+pub mod value;
 pub mod diagnostic;
 pub mod parser;
 pub mod units;
@@ -22,3 +25,7 @@ pub mod worksheet;
 
 pub use results::CellReport;
 pub use worksheet::{Execution, Interrupt, Worksheet};
+pub mod analysis;
+pub mod eval;
+pub mod query;
+pub mod sweep;

@@ -1,6 +1,14 @@
 //! Units: dimensions, the symbol table, unit parsing and engineering display.
 //!
-//! STUB: the API below is the contract; bodies are placeholders to be replaced.
+//! Every value is stored in coherent SI. A [`Unit`] says how a number written in that unit
+//! maps to SI (`factor`, and for a lone `°C`/`°F` an offset); [`Dim`] carries the exponents
+//! of the seven base dimensions so every operation can be checked.
+//!
+//! Compound units follow NIST SP 811 (2008) §6.1.6 (section number from memory): a solidus is not followed by another
+//! solidus or a product sign unless parentheses make the meaning plain, so `W/(m·K)` is
+//! accepted and `W/m·K` is an error with a hint.
+
+use std::sync::OnceLock;
 
 /// Exponents of the SI base dimensions, in the order L, M, T, I, Θ, N, J.
 #[derive(Clone, Copy, PartialEq, Eq, Hash, Debug, Default)]
@@ -19,10 +27,22 @@ impl Dim {
     pub const CAPACITANCE: Dim = Dim([-2, -1, 4, 2, 0, 0, 0]);
     pub const CHARGE: Dim = Dim([0, 0, 1, 1, 0, 0, 0]);
     pub const THERMAL_RESISTANCE: Dim = Dim([-2, -1, 3, 0, 1, 0, 0]);
+    pub const MASS: Dim = Dim([0, 1, 0, 0, 0, 0, 0]);
+    pub const AREA: Dim = Dim([2, 0, 0, 0, 0, 0, 0]);
+    pub const VOLUME: Dim = Dim([3, 0, 0, 0, 0, 0, 0]);
+    pub const FREQUENCY: Dim = Dim([0, 0, -1, 0, 0, 0, 0]);
+    pub const CONDUCTANCE: Dim = Dim([-2, -1, 3, 2, 0, 0, 0]);
+    pub const INDUCTANCE: Dim = Dim([2, 1, -2, -2, 0, 0, 0]);
+    /// W/K.
+    pub const THERMAL_CONDUCTANCE: Dim = Dim([2, 1, -3, 0, -1, 0, 0]);
+    /// 1/K, e.g. a resistor's temperature coefficient.
+    pub const TEMPERATURE_COEFFICIENT: Dim = Dim([0, 0, 0, 0, -1, 0, 0]);
 
     pub fn is_none(self) -> bool {
         self == Dim::NONE
     }
+    // The method names are part of the module's contract; `*` works too (trait impl below).
+    #[allow(clippy::should_implement_trait)]
     pub fn mul(self, o: Dim) -> Dim {
         let mut r = self.0;
         for (a, b) in r.iter_mut().zip(o.0) {
@@ -30,6 +50,8 @@ impl Dim {
         }
         Dim(r)
     }
+    // The method names are part of the module's contract; `/` works too (trait impl below).
+    #[allow(clippy::should_implement_trait)]
     pub fn div(self, o: Dim) -> Dim {
         let mut r = self.0;
         for (a, b) in r.iter_mut().zip(o.0) {
@@ -40,26 +62,353 @@ impl Dim {
     pub fn powi(self, n: i32) -> Option<Dim> {
         let mut r = [0i8; 7];
         for (a, b) in r.iter_mut().zip(self.0) {
-            *a = i8::try_from(i32::from(b) * n).ok()?;
+            *a = i8::try_from(i32::from(b).checked_mul(n)?).ok()?;
         }
         Some(Dim(r))
     }
     /// The n-th root, if every exponent is divisible by n.
     pub fn root(self, n: i8) -> Option<Dim> {
-        if n == 0 || self.0.iter().any(|e| e % n != 0) {
+        if n == 0 || self.0.iter().any(|e| e.checked_rem(n) != Some(0)) {
             return None;
         }
         let mut r = self.0;
         for a in r.iter_mut() {
-            *a /= n;
+            *a = a.checked_div(n)?;
         }
         Some(Dim(r))
     }
     /// The dimension in words for messages: "a voltage", "a current", "a thermal resistance",
-    /// or, for one without a name, "a quantity in V/s" style text.
+    /// or, for one without a name, "a quantity in m²·kg/s³" (SI base units).
     pub fn describe(self) -> String {
-        format!("a quantity of dimension {:?}", self.0)
+        match named(self) {
+            Some(n) => n.words.to_string(),
+            None => format!("a quantity in {}", base_text(self)),
+        }
     }
+    /// The coherent SI unit of this dimension as text, for data output: "V", "K/W", "1" when
+    /// dimensionless, "K" for temperature. Named derived units are preferred; otherwise the
+    /// text is built from base units ("m²·kg/(s³·A)"). The text is accepted by [`parse_unit`]
+    /// whenever the dimension can be written with the symbol table (no mol or cd).
+    pub fn symbol_text(self) -> String {
+        match named(self) {
+            Some(n) => n.symbol.to_string(),
+            None => base_text(self),
+        }
+    }
+}
+
+impl std::ops::Mul for Dim {
+    type Output = Dim;
+    fn mul(self, o: Dim) -> Dim {
+        Dim::mul(self, o)
+    }
+}
+
+impl std::ops::Div for Dim {
+    type Output = Dim;
+    fn div(self, o: Dim) -> Dim {
+        Dim::div(self, o)
+    }
+}
+
+/// The kind of quantity in words, telling an absolute temperature ("an absolute temperature")
+/// from a temperature difference; otherwise the same as [`Dim::describe`].
+pub fn describe_quantity(dim: Dim, absolute: bool) -> String {
+    if absolute && dim == Dim::TEMPERATURE {
+        "an absolute temperature".to_string()
+    } else {
+        dim.describe()
+    }
+}
+
+/// A dimension with a name: words for messages, its coherent SI symbol text, and how a value
+/// of it is displayed (unit text, SI value of one display unit, decimal exponents of the
+/// prefixes the display may use; 0 stands for no prefix).
+struct Named {
+    dim: Dim,
+    words: &'static str,
+    symbol: &'static str,
+    shown: &'static str,
+    scale: f64,
+    prefixes: &'static [i32],
+}
+
+const NO_PREFIX: &[i32] = &[0];
+
+const NAMED: &[Named] = &[
+    named_entry(Dim::NONE, "a dimensionless number", "1", "", 1.0, NO_PREFIX),
+    named_entry(
+        Dim::VOLTAGE,
+        "a voltage",
+        "V",
+        "V",
+        1.0,
+        &[-9, -6, -3, 0, 3, 6],
+    ),
+    named_entry(
+        Dim::CURRENT,
+        "a current",
+        "A",
+        "A",
+        1.0,
+        &[-12, -9, -6, -3, 0, 3],
+    ),
+    named_entry(Dim::POWER, "a power", "W", "W", 1.0, &[-9, -6, -3, 0, 3, 6]),
+    named_entry(
+        Dim::RESISTANCE,
+        "a resistance",
+        "Ω",
+        "Ω",
+        1.0,
+        &[-6, -3, 0, 3, 6, 9],
+    ),
+    named_entry(
+        Dim::CONDUCTANCE,
+        "a conductance",
+        "S",
+        "S",
+        1.0,
+        &[-12, -9, -6, -3, 0],
+    ),
+    // Capacitors are marked in pF, nF and µF; "4700 µF" reads better than "4.70 mF".
+    named_entry(
+        Dim::CAPACITANCE,
+        "a capacitance",
+        "F",
+        "F",
+        1.0,
+        &[-12, -9, -6, 0],
+    ),
+    named_entry(
+        Dim::INDUCTANCE,
+        "an inductance",
+        "H",
+        "H",
+        1.0,
+        &[-9, -6, -3, 0],
+    ),
+    named_entry(
+        Dim::FREQUENCY,
+        "a frequency",
+        "Hz",
+        "Hz",
+        1.0,
+        &[0, 3, 6, 9],
+    ),
+    // Time is displayed by `format_time`; the prefixes here apply below one second.
+    named_entry(Dim::TIME, "a time", "s", "s", 1.0, &[-12, -9, -6, -3, 0]),
+    named_entry(
+        Dim::ENERGY,
+        "an energy",
+        "J",
+        "J",
+        1.0,
+        &[-9, -6, -3, 0, 3, 6],
+    ),
+    named_entry(
+        Dim::CHARGE,
+        "a charge",
+        "C",
+        "C",
+        1.0,
+        &[-12, -9, -6, -3, 0],
+    ),
+    named_entry(
+        Dim::TEMPERATURE,
+        "a temperature difference",
+        "K",
+        "K",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim::THERMAL_RESISTANCE,
+        "a thermal resistance",
+        "K/W",
+        "K/W",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim::THERMAL_CONDUCTANCE,
+        "a thermal conductance",
+        "W/K",
+        "W/K",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(Dim::LENGTH, "a length", "m", "m", 1.0, &[-9, -6, -3, 0, 3]),
+    named_entry(Dim::AREA, "an area", "m²", "m²", 1.0, NO_PREFIX),
+    named_entry(Dim::VOLUME, "a volume", "m³", "m³", 1.0, NO_PREFIX),
+    named_entry(Dim::MASS, "a mass", "kg", "g", 1e-3, &[-6, -3, 0, 3]),
+    named_entry(
+        Dim([2, 1, -4, -1, 0, 0, 0]),
+        "a voltage per time",
+        "V/s",
+        "V/s",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim([0, 0, -1, 1, 0, 0, 0]),
+        "a current per time",
+        "A/s",
+        "A/s",
+        1.0,
+        NO_PREFIX,
+    ),
+    // Temperature drifts of voltages are quoted in mV/K and µV/K.
+    named_entry(
+        Dim([2, 1, -3, -1, -1, 0, 0]),
+        "a voltage per temperature",
+        "V/K",
+        "V/K",
+        1.0,
+        &[-6, -3, 0],
+    ),
+    named_entry(
+        Dim([0, 0, -1, 0, 1, 0, 0]),
+        "a temperature difference per time",
+        "K/s",
+        "K/s",
+        1.0,
+        NO_PREFIX,
+    ),
+    // Temperature coefficients are quoted in ppm/K on datasheets.
+    named_entry(
+        Dim::TEMPERATURE_COEFFICIENT,
+        "a temperature coefficient",
+        "1/K",
+        "ppm/K",
+        1e-6,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim([1, 1, -3, 0, -1, 0, 0]),
+        "a thermal conductivity",
+        "W/(m·K)",
+        "W/(m·K)",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim([2, 1, -2, 0, -1, 0, 0]),
+        "a heat capacity",
+        "J/K",
+        "J/K",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim([0, 1, -3, 0, 0, 0, 0]),
+        "a power per area",
+        "W/m²",
+        "W/m²",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim([-2, 0, 0, 1, 0, 0, 0]),
+        "a current density",
+        "A/m²",
+        "A/m²",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim([1, 0, -1, 0, 0, 0, 0]),
+        "a speed",
+        "m/s",
+        "m/s",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim([3, 1, -3, -2, 0, 0, 0]),
+        "a resistivity",
+        "Ω·m",
+        "Ω·m",
+        1.0,
+        NO_PREFIX,
+    ),
+    named_entry(
+        Dim([2, 1, -2, -1, 0, 0, 0]),
+        "a magnetic flux",
+        "V·s",
+        "V·s",
+        1.0,
+        NO_PREFIX,
+    ),
+];
+
+const fn named_entry(
+    dim: Dim,
+    words: &'static str,
+    symbol: &'static str,
+    shown: &'static str,
+    scale: f64,
+    prefixes: &'static [i32],
+) -> Named {
+    Named {
+        dim,
+        words,
+        symbol,
+        shown,
+        scale,
+        prefixes,
+    }
+}
+
+fn named(dim: Dim) -> Option<&'static Named> {
+    NAMED.iter().find(|n| n.dim == dim)
+}
+
+/// Base-unit text of a dimension: numerator factors, then `/` and the denominator
+/// (parenthesised when it has more than one factor), "1" for dimensionless.
+fn base_text(dim: Dim) -> String {
+    const BASE: [&str; 7] = ["m", "kg", "s", "A", "K", "mol", "cd"];
+    let part = |negative: bool| -> Vec<String> {
+        BASE.iter()
+            .zip(dim.0)
+            .filter(|(_, e)| if negative { *e < 0 } else { *e > 0 })
+            .map(|(s, e)| format!("{s}{}", superscript(i32::from(e).abs())))
+            .collect()
+    };
+    let num = part(false);
+    let den = part(true);
+    let num_text = if num.is_empty() {
+        "1".to_string()
+    } else {
+        num.join("·")
+    };
+    match den.len() {
+        0 => num_text,
+        1 => format!("{num_text}/{}", den[0]),
+        _ => format!("{num_text}/({})", den.join("·")),
+    }
+}
+
+/// An exponent as superscript digits; empty for 1.
+fn superscript(n: i32) -> String {
+    if n == 1 {
+        return String::new();
+    }
+    n.to_string()
+        .chars()
+        .map(|c| match c {
+            '-' => '⁻',
+            '0' => '⁰',
+            '1' => '¹',
+            '2' => '²',
+            '3' => '³',
+            '4' => '⁴',
+            '5' => '⁵',
+            '6' => '⁶',
+            '7' => '⁷',
+            '8' => '⁸',
+            _ => '⁹',
+        })
+        .collect()
 }
 
 /// Which temperature symbol a unit is (only meaningful for `Unit::temperature`).
@@ -85,7 +434,10 @@ pub struct Unit {
 impl Unit {
     /// True for `°C`, `degC`, `°F`, `degF` alone: after a number they mean absolute readings.
     pub fn is_absolute_temperature(&self) -> bool {
-        matches!(self.temperature, Some(TempScale::Celsius | TempScale::Fahrenheit))
+        matches!(
+            self.temperature,
+            Some(TempScale::Celsius | TempScale::Fahrenheit)
+        )
     }
     /// Offset in the unit's own scale to the thermodynamic zero (273.15 for °C, 459.67 for °F).
     pub fn absolute_offset(&self) -> f64 {
@@ -119,27 +471,859 @@ pub struct UnitError {
     pub hint: Option<String>,
 }
 
-/// Parses a unit as written without spaces: `V`, `mA`, `K/W`, `W/(m·K)`, `A·h`, `m^2`, `mm²`.
-pub fn parse_unit(text: &str) -> Result<Unit, UnitError> {
-    Err(UnitError {
-        message: format!("unknown unit `{text}`"),
-        hint: None,
+impl std::fmt::Display for UnitError {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(&self.message)?;
+        if let Some(h) = &self.hint {
+            write!(f, " ({h})")?;
+        }
+        Ok(())
+    }
+}
+
+impl std::error::Error for UnitError {}
+
+fn error(message: String, hint: Option<String>) -> UnitError {
+    UnitError { message, hint }
+}
+
+/// One entry of the symbol table.
+struct Symbol {
+    /// As written in a worksheet.
+    text: &'static str,
+    /// As shown in canonical text (`ohm` → `Ω`, `degC` → `°C`).
+    shown: &'static str,
+    dim: Dim,
+    /// SI value of one unit; for `°C`/`°F` also the size of one degree of difference.
+    factor: f64,
+    /// The SI prefixes the trade uses with this symbol.
+    prefixes: &'static [char],
+    temperature: Option<TempScale>,
+}
+
+/// SI prefixes (SI Brochure, 9th ed., Table 7; table number from memory); `c` is offered on the metre only (cm²).
+const PREFIXES: &[(char, i32)] = &[
+    ('p', -12),
+    ('n', -9),
+    ('µ', -6),
+    ('m', -3),
+    ('c', -2),
+    ('k', 3),
+    ('M', 6),
+    ('G', 9),
+];
+
+const fn sym(
+    text: &'static str,
+    shown: &'static str,
+    dim: Dim,
+    factor: f64,
+    prefixes: &'static [char],
+    temperature: Option<TempScale>,
+) -> Symbol {
+    Symbol {
+        text,
+        shown,
+        dim,
+        factor,
+        prefixes,
+        temperature,
+    }
+}
+
+const VOLT_PREFIXES: &[char] = &['n', 'µ', 'm', 'k', 'M'];
+const OHM_PREFIXES: &[char] = &['µ', 'm', 'k', 'M', 'G'];
+const SMALL_PREFIXES: &[char] = &['p', 'n', 'µ', 'm'];
+
+/// The symbol table (table and section numbers from memory). Factors: SI Brochure (9th ed.)
+/// Table 8 for min, h; NIST SP 811 (2008)
+/// Appendix B for mil (2.54e-5 m), W·h (3.6e3 J), A·h (3.6e3 C), °F interval (5/9 K).
+const SYMBOLS: &[Symbol] = &[
+    sym("V", "V", Dim::VOLTAGE, 1.0, VOLT_PREFIXES, None),
+    sym(
+        "A",
+        "A",
+        Dim::CURRENT,
+        1.0,
+        &['p', 'n', 'µ', 'm', 'k'],
+        None,
+    ),
+    sym("W", "W", Dim::POWER, 1.0, VOLT_PREFIXES, None),
+    sym("Ω", "Ω", Dim::RESISTANCE, 1.0, OHM_PREFIXES, None),
+    sym("ohm", "Ω", Dim::RESISTANCE, 1.0, OHM_PREFIXES, None),
+    sym("S", "S", Dim::CONDUCTANCE, 1.0, SMALL_PREFIXES, None),
+    sym("F", "F", Dim::CAPACITANCE, 1.0, SMALL_PREFIXES, None),
+    sym("H", "H", Dim::INDUCTANCE, 1.0, &['n', 'µ', 'm'], None),
+    sym("Hz", "Hz", Dim::FREQUENCY, 1.0, &['m', 'k', 'M', 'G'], None),
+    sym("s", "s", Dim::TIME, 1.0, SMALL_PREFIXES, None),
+    sym("min", "min", Dim::TIME, 60.0, &[], None),
+    sym("h", "h", Dim::TIME, 3600.0, &[], None),
+    sym("J", "J", Dim::ENERGY, 1.0, VOLT_PREFIXES, None),
+    sym(
+        "Wh",
+        "Wh",
+        Dim::ENERGY,
+        3600.0,
+        &['µ', 'm', 'k', 'M', 'G'],
+        None,
+    ),
+    sym("Ah", "Ah", Dim::CHARGE, 3600.0, &['µ', 'm', 'k'], None),
+    sym("C", "C", Dim::CHARGE, 1.0, SMALL_PREFIXES, None),
+    sym(
+        "K",
+        "K",
+        Dim::TEMPERATURE,
+        1.0,
+        &[],
+        Some(TempScale::Kelvin),
+    ),
+    sym(
+        "°C",
+        "°C",
+        Dim::TEMPERATURE,
+        1.0,
+        &[],
+        Some(TempScale::Celsius),
+    ),
+    sym(
+        "degC",
+        "°C",
+        Dim::TEMPERATURE,
+        1.0,
+        &[],
+        Some(TempScale::Celsius),
+    ),
+    sym(
+        "°F",
+        "°F",
+        Dim::TEMPERATURE,
+        5.0 / 9.0,
+        &[],
+        Some(TempScale::Fahrenheit),
+    ),
+    sym(
+        "degF",
+        "°F",
+        Dim::TEMPERATURE,
+        5.0 / 9.0,
+        &[],
+        Some(TempScale::Fahrenheit),
+    ),
+    sym("m", "m", Dim::LENGTH, 1.0, &['n', 'µ', 'm', 'c', 'k'], None),
+    sym("mil", "mil", Dim::LENGTH, 2.54e-5, &[], None),
+    sym("g", "g", Dim::MASS, 1e-3, &['µ', 'm', 'k'], None),
+    sym("%", "%", Dim::NONE, 0.01, &[], None),
+    sym("ppm", "ppm", Dim::NONE, 1e-6, &[], None),
+];
+
+/// Exact powers of ten for the prefix exponents (all exactly representable in f64).
+fn pow10(e: i32) -> f64 {
+    match e {
+        2 => 1e2,
+        3 => 1e3,
+        6 => 1e6,
+        9 => 1e9,
+        12 => 1e12,
+        _ => 1.0,
+    }
+}
+
+/// `base` scaled by 10^e. Small prefixes divide by an exact power of ten so that e.g.
+/// mAh = 3600/1000 is the double nearest to 3.6.
+fn scaled(base: f64, e: i32) -> f64 {
+    if e < 0 {
+        base / pow10(-e)
+    } else {
+        base * pow10(e)
+    }
+}
+
+fn prefix_exponent(c: char) -> Option<i32> {
+    PREFIXES.iter().find(|(p, _)| *p == c).map(|(_, e)| *e)
+}
+
+/// A resolved single symbol (possibly prefixed).
+struct Atom {
+    text: String,
+    dim: Dim,
+    factor: f64,
+    temperature: Option<TempScale>,
+}
+
+/// Every single-symbol form the table accepts, with `µ` for micro (not `u`).
+fn forms() -> &'static [String] {
+    static FORMS: OnceLock<Vec<String>> = OnceLock::new();
+    FORMS.get_or_init(|| {
+        let mut v = Vec::new();
+        for s in SYMBOLS {
+            v.push(s.text.to_string());
+            for p in s.prefixes {
+                v.push(format!("{p}{}", s.text));
+            }
+        }
+        v
     })
+}
+
+/// The nearest known unit symbol to `text`: a case-insensitive match first, otherwise the
+/// closest by edit distance (at most 2 edits, and fewer edits than the text has characters).
+pub fn nearest_symbol(text: &str) -> Option<String> {
+    if let Some(f) = same_but_case(text) {
+        return Some(f);
+    }
+    let len = text.chars().count();
+    let mut best: Option<(usize, &String)> = None;
+    for f in forms() {
+        let d = strsim::levenshtein(text, f);
+        if d == 0 || d > 2 || d >= len {
+            continue;
+        }
+        if best.is_none_or(|(bd, _)| d < bd) {
+            best = Some((d, f));
+        }
+    }
+    best.map(|(_, f)| f.clone())
+}
+
+/// A known form that differs from `text` only in letter case (or `u` for `µ`); of several,
+/// the one with the most characters in the same case (`Ms` → `ms` before `mS`).
+fn same_but_case(text: &str) -> Option<String> {
+    let lower = text.replace('u', "µ").to_lowercase();
+    let same = |f: &str| f.chars().zip(text.chars()).filter(|(a, b)| a == b).count();
+    forms()
+        .iter()
+        .filter(|f| f.as_str() != text && f.to_lowercase() == lower)
+        .max_by_key(|f| (same(f), std::cmp::Reverse(f.len())))
+        .cloned()
+}
+
+fn resolve_atom(raw: &str) -> Result<Atom, UnitError> {
+    // Tolerate look-alikes the fold table would have mapped, so a direct caller gets the
+    // same answer as the lexer.
+    let word: String = raw
+        .chars()
+        .map(|c| match c {
+            '\u{03bc}' => 'µ',
+            '\u{2126}' => 'Ω',
+            '\u{212a}' => 'K',
+            c => c,
+        })
+        .collect();
+    if let Some(s) = SYMBOLS.iter().find(|s| s.text == word) {
+        return Ok(Atom {
+            text: s.shown.to_string(),
+            dim: s.dim,
+            factor: s.factor,
+            temperature: s.temperature,
+        });
+    }
+    let mut chars = word.chars();
+    let first = chars.next();
+    let rest = chars.as_str();
+    let prefix = match first {
+        Some('u') => Some('µ'),
+        other => other,
+    };
+    if let (Some(p), Some(e)) = (prefix, prefix.and_then(prefix_exponent)) {
+        if let Some(s) = SYMBOLS.iter().find(|s| s.text == rest) {
+            if s.prefixes.contains(&p) {
+                return Ok(Atom {
+                    text: format!("{p}{}", s.shown),
+                    dim: s.dim,
+                    factor: scaled(s.factor, e),
+                    temperature: None,
+                });
+            }
+            let hint = match same_but_case(&word) {
+                Some(n) => format!("did you mean `{n}`?"),
+                None if s.prefixes.is_empty() => {
+                    format!("`{}` is written without a prefix", s.shown)
+                }
+                None => {
+                    let list: Vec<String> = s.prefixes.iter().map(|c| c.to_string()).collect();
+                    format!("`{}` takes the prefixes {}", s.shown, list.join(" "))
+                }
+            };
+            return Err(error(
+                format!(
+                    "the prefix `{first}` is not used with `{}`",
+                    s.shown,
+                    first = first.unwrap_or(p)
+                ),
+                Some(hint),
+            ));
+        }
+    }
+    let hint = if word == "°K" || word == "degK" {
+        Some("kelvin is written `K`, without a degree sign".to_string())
+    } else if word.starts_with('°') {
+        Some("temperatures are written `°C`, `°F` or `K`".to_string())
+    } else if word.chars().count() == 1 && prefix.and_then(prefix_exponent).is_some() {
+        Some(format!(
+            "a prefix needs a unit symbol after it, e.g. `{word}A`"
+        ))
+    } else {
+        nearest_symbol(&word).map(|n| format!("did you mean `{n}`?"))
+    };
+    Err(error(format!("unknown unit `{raw}`"), hint))
+}
+
+/// A unit being built by the parser.
+struct Part {
+    text: String,
+    dim: Dim,
+    factor: f64,
+    /// Set only while the part is a single temperature symbol without power or parentheses.
+    temperature: Option<TempScale>,
+}
+
+impl Part {
+    fn combine(self, o: Part, divide: bool, sep: &str) -> Result<Part, UnitError> {
+        let dims = if divide {
+            self.dim
+                .0
+                .iter()
+                .zip(o.dim.0)
+                .map(|(a, b)| a.checked_sub(b))
+                .collect::<Vec<_>>()
+        } else {
+            self.dim
+                .0
+                .iter()
+                .zip(o.dim.0)
+                .map(|(a, b)| a.checked_add(b))
+                .collect()
+        };
+        let mut d = [0i8; 7];
+        for (slot, v) in d.iter_mut().zip(dims) {
+            *slot = v.ok_or_else(too_large)?;
+        }
+        let factor = if divide {
+            self.factor / o.factor
+        } else {
+            self.factor * o.factor
+        };
+        Ok(Part {
+            text: format!("{}{sep}{}", self.text, o.text),
+            dim: Dim(d),
+            factor,
+            temperature: None,
+        })
+    }
+}
+
+fn too_large() -> UnitError {
+    error(
+        "this unit's powers are too large".to_string(),
+        Some("write a unit with small powers, such as `m²` or `s⁻¹`".to_string()),
+    )
+}
+
+/// Deepest parenthesis nesting accepted; deeper input is an error, never a stack overflow.
+const MAX_DEPTH: usize = 16;
+
+struct Parser<'a> {
+    src: &'a str,
+    chars: Vec<char>,
+    pos: usize,
+    depth: usize,
+}
+
+fn is_unit_char(c: char) -> bool {
+    c.is_alphabetic() || c == '°' || c == '%'
+}
+
+fn is_product(c: char) -> bool {
+    matches!(c, '·' | '*' | '⋅')
+}
+
+fn superscript_digit(c: char) -> Option<u32> {
+    match c {
+        '⁰' => Some(0),
+        '¹' => Some(1),
+        '²' => Some(2),
+        '³' => Some(3),
+        '⁴' => Some(4),
+        '⁵' => Some(5),
+        '⁶' => Some(6),
+        '⁷' => Some(7),
+        '⁸' => Some(8),
+        '⁹' => Some(9),
+        _ => None,
+    }
+}
+
+impl Parser<'_> {
+    fn peek(&self) -> Option<char> {
+        self.chars.get(self.pos).copied()
+    }
+
+    fn quotient(&mut self) -> Result<Part, UnitError> {
+        let num = self.product()?;
+        if self.peek() != Some('/') {
+            return Ok(num);
+        }
+        self.pos += 1;
+        if self.peek().is_none() {
+            return Err(error(
+                format!("the unit `{}` ends after `/`", self.src),
+                Some(format!(
+                    "write the unit below the line, e.g. `{}K`",
+                    self.src
+                )),
+            ));
+        }
+        let den_start = self.pos;
+        let den = self.factor()?;
+        if let Some(c) = self.peek() {
+            if c == '/' || is_product(c) {
+                return Err(error(
+                    format!("`{}` is ambiguous after `/`", self.src),
+                    Some(format!(
+                        "put the whole denominator in parentheses: `{}/({})`",
+                        num.text,
+                        self.rest_of_group(den_start)
+                    )),
+                ));
+            }
+        }
+        num.combine(den, true, "/")
+    }
+
+    fn product(&mut self) -> Result<Part, UnitError> {
+        let mut acc = self.factor()?;
+        while let Some(c) = self.peek() {
+            if !is_product(c) {
+                break;
+            }
+            self.pos += 1;
+            if self.peek().is_none() {
+                return Err(error(
+                    format!("the unit `{}` ends after `{c}`", self.src),
+                    Some("write a unit after the product sign, e.g. `A·h`".to_string()),
+                ));
+            }
+            let next = self.factor()?;
+            acc = acc.combine(next, false, "·")?;
+        }
+        Ok(acc)
+    }
+
+    fn factor(&mut self) -> Result<Part, UnitError> {
+        let base = match self.peek() {
+            Some('(') => {
+                if self.depth >= MAX_DEPTH {
+                    return Err(error(
+                        "the unit is nested too deeply".to_string(),
+                        Some("write it with fewer parentheses".to_string()),
+                    ));
+                }
+                self.pos += 1;
+                if self.peek() == Some(')') {
+                    return Err(error(
+                        format!("empty parentheses in the unit `{}`", self.src),
+                        Some("write a unit inside them, e.g. `W/(m·K)`".to_string()),
+                    ));
+                }
+                self.depth += 1;
+                let inner = self.quotient()?;
+                self.depth -= 1;
+                if self.peek() != Some(')') {
+                    if self.peek().is_none() {
+                        return Err(error(
+                            format!("missing `)` in the unit `{}`", self.src),
+                            Some(format!("close the parenthesis: `{})`", self.src)),
+                        ));
+                    }
+                    return Err(self.unexpected());
+                }
+                self.pos += 1;
+                Part {
+                    text: format!("({})", inner.text),
+                    dim: inner.dim,
+                    factor: inner.factor,
+                    temperature: None,
+                }
+            }
+            Some('1')
+                if self
+                    .chars
+                    .get(self.pos + 1)
+                    .is_none_or(|&c| c == '/' || c == ')' || is_product(c)) =>
+            {
+                self.pos += 1;
+                Part {
+                    text: "1".to_string(),
+                    dim: Dim::NONE,
+                    factor: 1.0,
+                    temperature: None,
+                }
+            }
+            Some(c) if is_unit_char(c) => {
+                let start = self.pos;
+                while self.peek().is_some_and(is_unit_char) {
+                    self.pos += 1;
+                }
+                let word: String = self.chars[start..self.pos].iter().collect();
+                let atom = resolve_atom(&word)?;
+                Part {
+                    text: atom.text,
+                    dim: atom.dim,
+                    factor: atom.factor,
+                    temperature: atom.temperature,
+                }
+            }
+            Some('/') => {
+                return Err(error(
+                    format!("nothing before `/` in the unit `{}`", self.src),
+                    Some(format!("write a unit before it, e.g. `1{}`", &self.src)),
+                ))
+            }
+            Some(_) => return Err(self.unexpected()),
+            None => {
+                return Err(error(
+                    format!("a unit is missing in `{}`", self.src),
+                    Some("write a unit symbol such as `V`, `mA` or `K/W`".to_string()),
+                ))
+            }
+        };
+        match self.power()? {
+            None => Ok(base),
+            Some(n) => {
+                let dim = base.dim.powi(n).ok_or_else(too_large)?;
+                Ok(Part {
+                    text: format!("{}{}", base.text, superscript(n)),
+                    dim,
+                    factor: base.factor.powi(n),
+                    temperature: None,
+                })
+            }
+        }
+    }
+
+    /// An exponent written `^2`, `^-1`, `²`, `⁻¹`; `None` when there is none.
+    fn power(&mut self) -> Result<Option<i32>, UnitError> {
+        let caret = self.peek() == Some('^');
+        let mut negative = false;
+        let mut value: Option<i32> = None;
+        if caret {
+            self.pos += 1;
+            if matches!(self.peek(), Some('-' | '−')) {
+                negative = true;
+                self.pos += 1;
+            } else if self.peek() == Some('+') {
+                self.pos += 1;
+            }
+            while let Some(d) = self.peek().and_then(|c| c.to_digit(10)) {
+                self.pos += 1;
+                value = Some(
+                    value
+                        .unwrap_or(0)
+                        .saturating_mul(10)
+                        .saturating_add(d as i32),
+                );
+            }
+            if value.is_none() {
+                return Err(error(
+                    format!(
+                        "a whole-number power is missing after `^` in `{}`",
+                        self.src
+                    ),
+                    Some("write it like `m^2` or `s^-1`".to_string()),
+                ));
+            }
+        } else {
+            if self.peek() == Some('⁻') {
+                negative = true;
+                self.pos += 1;
+            }
+            while let Some(d) = self.peek().and_then(superscript_digit) {
+                self.pos += 1;
+                value = Some(
+                    value
+                        .unwrap_or(0)
+                        .saturating_mul(10)
+                        .saturating_add(d as i32),
+                );
+            }
+            if negative && value.is_none() {
+                return Err(error(
+                    format!("a power is missing after `⁻` in `{}`", self.src),
+                    Some("write it like `s⁻¹`".to_string()),
+                ));
+            }
+        }
+        match value {
+            None => Ok(None),
+            Some(0) => Err(error(
+                format!("a power of zero in the unit `{}`", self.src),
+                Some("leave the factor out".to_string()),
+            )),
+            Some(v) if v > 9 => Err(too_large()),
+            Some(v) => Ok(Some(if negative { -v } else { v })),
+        }
+    }
+
+    /// The source text from `start` to the end of the enclosing parenthesis group, with a
+    /// further `/` at that level read as a product (`V/s/s` means V/(s·s)).
+    fn rest_of_group(&self, start: usize) -> String {
+        let mut depth = 0usize;
+        let mut out = String::new();
+        for &c in self.chars.get(start..).unwrap_or_default() {
+            match c {
+                '(' => depth += 1,
+                ')' if depth == 0 => break,
+                ')' => depth -= 1,
+                _ => {}
+            }
+            out.push(if c == '/' && depth == 0 { '·' } else { c });
+        }
+        out
+    }
+
+    fn unexpected(&self) -> UnitError {
+        let c = self.peek().unwrap_or(' ');
+        if c.is_whitespace() {
+            let joined: String = self.src.split_whitespace().collect();
+            return error(
+                format!("a space inside the unit `{}`", self.src),
+                Some(format!(
+                    "write a compound unit without spaces (`{joined}`); with spaces it is arithmetic"
+                )),
+            );
+        }
+        if c.is_ascii_digit() {
+            let before: String = self.chars[..self.pos].iter().collect();
+            let hint = if before.ends_with(|b: char| is_unit_char(b) || b == ')') {
+                format!("write a power as `{before}^{c}`")
+            } else {
+                "a unit is made of symbols such as `V`, `mA` or `K/W`; the number goes before it"
+                    .to_string()
+            };
+            return error(
+                format!("unexpected `{c}` in the unit `{}`", self.src),
+                Some(hint),
+            );
+        }
+        if c == ')' {
+            return error(
+                format!("unmatched `)` in the unit `{}`", self.src),
+                Some("remove it or add the opening `(`".to_string()),
+            );
+        }
+        error(
+            format!("unexpected `{c}` in the unit `{}`", self.src),
+            Some("a unit is made of symbols joined by `·`, `*` or `/`, e.g. `W/(m·K)`".to_string()),
+        )
+    }
+}
+
+/// Parses a unit as written without spaces: `V`, `mA`, `K/W`, `W/(m·K)`, `A·h`, `m^2`, `mm²`.
+///
+/// Products use `·` or `*` (shown as `·`), quotients `/` (once, with a single factor or a
+/// parenthesised group after it), powers `^n`, `^-n` or superscripts (shown as superscripts).
+/// Inside a compound unit `°C` and `°F` are temperature differences. The canonical text
+/// shows `ohm` as `Ω`, `degC`/`degF` as `°C`/`°F`, and the `u` prefix as `µ`.
+pub fn parse_unit(text: &str) -> Result<Unit, UnitError> {
+    if text.is_empty() {
+        return Err(error(
+            "an empty unit".to_string(),
+            Some("write a unit symbol such as `V`, `mA` or `K/W`".to_string()),
+        ));
+    }
+    let mut p = Parser {
+        src: text,
+        chars: text.chars().collect(),
+        pos: 0,
+        depth: 0,
+    };
+    let part = p.quotient()?;
+    if p.pos < p.chars.len() {
+        return Err(p.unexpected());
+    }
+    if !part.factor.is_finite() || part.factor <= 0.0 {
+        return Err(too_large());
+    }
+    Ok(Unit {
+        text: part.text,
+        dim: part.dim,
+        factor: part.factor,
+        temperature: part.temperature,
+    })
+}
+
+/// `x` rounded to `sig` significant digits: sign, the digits, and the decimal exponent of
+/// the first digit. Rounding is done by the standard library's exact decimal formatting, so
+/// a value that rounds up to the next power of ten gets the larger exponent (999.7 → 100, 3).
+fn round_sig(x: f64, sig: usize) -> (bool, String, i32) {
+    let sig = sig.clamp(1, 17);
+    let s = format!("{:.*e}", sig - 1, x.abs());
+    let (mantissa, exp) = s.split_once('e').unwrap_or((s.as_str(), "0"));
+    let digits: String = mantissa.chars().filter(|c| c.is_ascii_digit()).collect();
+    (x < 0.0, digits, exp.parse().unwrap_or(0))
+}
+
+/// Decimal text of the digits `d₁d₂…` with `d₁` at 10^exp. Plain decimals for
+/// 10⁻³ ≤ |x| < 10⁶, otherwise `1.23e-9` (a form the worksheet language reads back).
+fn render(negative: bool, digits: &str, exp: i32) -> String {
+    let sign = if negative { "-" } else { "" };
+    if !(-3..6).contains(&exp) {
+        let (first, rest) = digits.split_at(1.min(digits.len()));
+        let mantissa = if rest.is_empty() {
+            first.to_string()
+        } else {
+            format!("{first}.{rest}")
+        };
+        return format!("{sign}{mantissa}e{exp}");
+    }
+    let n = digits.len() as i32;
+    let body = if exp < 0 {
+        format!("0.{}{digits}", "0".repeat((-exp - 1) as usize))
+    } else if exp + 1 >= n {
+        format!("{digits}{}", "0".repeat((exp + 1 - n) as usize))
+    } else {
+        let (int, frac) = digits.split_at((exp + 1) as usize);
+        format!("{int}.{frac}")
+    };
+    format!("{sign}{body}")
+}
+
+/// A plain number to `sig` significant digits, trailing zeros kept: 0.18 → "0.180",
+/// 4700 → "4700", 1.2e-9 → "1.20e-9". Zero is "0"; non-finite values print as Rust does.
+pub fn format_number(x: f64, sig: usize) -> String {
+    if !x.is_finite() {
+        return x.to_string();
+    }
+    if x == 0.0 {
+        return "0".to_string();
+    }
+    let (neg, digits, exp) = round_sig(x, sig);
+    render(neg, &digits, exp)
+}
+
+fn with_unit(number: String, unit: &str) -> String {
+    if unit.is_empty() || unit == "1" {
+        number
+    } else {
+        format!("{number} {unit}")
+    }
+}
+
+fn prefix_symbol(e: i32) -> &'static str {
+    match e {
+        -12 => "p",
+        -9 => "n",
+        -6 => "µ",
+        -3 => "m",
+        3 => "k",
+        6 => "M",
+        9 => "G",
+        _ => "",
+    }
+}
+
+/// `value` (in `unit`) with the largest allowed engineering prefix not above its rounded
+/// magnitude, so the mantissa stays under 1000 whenever a prefix allows it.
+fn format_prefixed(value: f64, unit: &str, prefixes: &[i32], sig: usize) -> String {
+    if !value.is_finite() {
+        return with_unit(value.to_string(), unit);
+    }
+    if value == 0.0 {
+        return with_unit("0".to_string(), unit);
+    }
+    let (neg, digits, exp) = round_sig(value, sig);
+    let chosen = prefixes
+        .iter()
+        .copied()
+        .filter(|&p| p <= exp)
+        .max()
+        .or_else(|| prefixes.iter().copied().min())
+        .unwrap_or(0);
+    let number = render(neg, &digits, exp - chosen);
+    with_unit(number, &format!("{}{unit}", prefix_symbol(chosen)))
+}
+
+/// Seconds below one second take prefixes (ms, µs, ns, ps); 1 s up to an hour stays in
+/// seconds ("1500 s"); from one hour on, hours ("20.0 h"), decided on the rounded value.
+fn format_time(si: f64, sig: usize) -> String {
+    if si.is_finite() && si != 0.0 {
+        let (_, digits, exp) = round_sig(si, sig);
+        let rounded: f64 = format!("{}e{}", digits, exp - digits.len() as i32 + 1)
+            .parse()
+            .unwrap_or(si.abs());
+        if rounded >= 3600.0 {
+            return format_prefixed(si / 3600.0, "h", NO_PREFIX, sig);
+        }
+    }
+    format_prefixed(si, "s", &[-12, -9, -6, -3, 0], sig)
 }
 
 /// Formats an SI value in the unit the trade uses for its dimension, with an engineering
 /// prefix keeping 1 ≤ mantissa < 1000, to `sig` significant digits: "79.4 °C", "4.70 kΩ".
+///
+/// Absolute temperatures (kelvin in `si`) are shown in °C; temperature differences in K;
+/// K, K/W, °C and dimensionless numbers never take a prefix; capacitance uses pF, nF, µF
+/// (no mF); mass is shown in g with prefixes; temperature coefficients in ppm/K; times as
+/// described at [`format_time`]; dimensions without a name in SI base units.
 pub fn format_si(si: f64, dim: Dim, absolute: bool, sig: usize) -> String {
-    let _ = (dim, absolute);
-    format!("{si:.*}", sig)
+    if absolute && dim == Dim::TEMPERATURE {
+        return with_unit(format_number(si - 273.15, sig), "°C");
+    }
+    if dim == Dim::TIME {
+        return format_time(si, sig);
+    }
+    match named(dim) {
+        Some(n) => format_prefixed(si / n.scale, n.shown, n.prefixes, sig),
+        None => format_prefixed(si, &base_text(dim), NO_PREFIX, sig),
+    }
+}
+
+/// The unit text `format_si` uses for a dimension, without a prefix: "V", "°C" for an
+/// absolute temperature, "K/W", "" for dimensionless (e.g. for axis labels).
+pub fn display_unit(dim: Dim, absolute: bool) -> String {
+    if absolute && dim == Dim::TEMPERATURE {
+        return "°C".to_string();
+    }
+    match named(dim) {
+        Some(n) => n.shown.to_string(),
+        None => base_text(dim),
+    }
 }
 
 /// Formats an SI value in the given unit (declared or `as`), to `sig` significant digits.
+/// An absolute temperature in `K` shows its thermodynamic value; in `°C`/`°F` its reading.
 pub fn format_in(si: f64, absolute: bool, unit: &Unit, sig: usize) -> String {
-    format!("{:.*} {}", sig, unit.from_si(si, absolute), unit.text)
+    with_unit(format_number(unit.from_si(si, absolute), sig), &unit.text)
 }
 
-/// Unit symbols offered by completion after a number.
+/// A signed difference (a check's margin) in the unit of its dimension: "+34.0 K",
+/// "-2.10 V"; temperature differences in K. Exactly zero shows without a sign ("0 K").
+pub fn format_difference(si: f64, dim: Dim, sig: usize) -> String {
+    let body = format_si(si.abs(), dim, false, sig);
+    if si > 0.0 {
+        format!("+{body}")
+    } else if si < 0.0 {
+        format!("-{body}")
+    } else {
+        body
+    }
+}
+
+/// Unit symbols offered by completion after a number: every symbol of the table with each
+/// prefix it takes (micro as `µ`), then common compound units.
 pub fn symbols() -> Vec<&'static str> {
-    vec!["V", "A", "W"]
+    const COMPOUND: &[&str] = &[
+        "K/W", "°C/W", "W/K", "mV/K", "µV/K", "V/s", "V/µs", "A/s", "A/µs", "ppm/K", "%/K", "mm²",
+        "cm²", "W/(m·K)", "A·h",
+    ];
+    forms()
+        .iter()
+        .map(String::as_str)
+        .chain(COMPOUND.iter().copied())
+        .collect()
+}
+
+/// True when `text` is a single unit symbol, possibly prefixed (`mA`, `uF`, `°C`, `ohm`).
+pub fn is_unit_symbol(text: &str) -> bool {
+    text.chars().all(is_unit_char) && resolve_atom(text).is_ok()
 }

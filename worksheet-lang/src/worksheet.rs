@@ -1,10 +1,25 @@
 //! A worksheet session: cells, their definitions, and the dependency graph between them.
 //!
-//! STUB: the API is the contract; the bodies will be replaced by the evaluator.
+//! Every run of a cell rebuilds the model of the whole worksheet (all cells run so far),
+//! evaluates it, and compares the results with the previous ones: that is how a changed
+//! `given` reaches every dependent definition and check in every other cell. The
+//! evaluation is done on a copy; only a run that completes without an error in the cell
+//! itself replaces the worksheet, so an interrupted or failed run changes nothing.
 
-use crate::results::{CellReport, Change};
+use crate::analysis::{self, Passes, ScalarBounds};
+use crate::ast::{CmpOp, Expr, ExprKind, Program, Span, StmtKind};
+use crate::diagnostic::{DiagKind, Diagnostic};
+use crate::eval::{self, EvalError, Evaluator, Function, Mode, Names, Pass, Registry};
+use crate::num::Interval;
+use crate::parser;
+use crate::results::{Bounds, CellReport, Change, CheckRow, Share, Shown, ValueRow, WarningRow};
+use crate::units::{self, Dim, Unit};
+use crate::value::{Num, Value};
+use std::collections::HashMap;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
+
+pub use crate::query::{Completion, Inspection};
 
 /// A flag another thread can raise to stop a long evaluation (a sweep) promptly.
 #[derive(Debug, Clone, Default)]
@@ -42,23 +57,31 @@ pub struct CellUpdate {
     pub changed_by: Vec<Change>,
 }
 
-#[derive(Debug, Clone, PartialEq, Default)]
-pub struct Completion {
-    pub matches: Vec<String>,
-    /// Byte range of `source` the matches replace.
-    pub start: usize,
-    pub end: usize,
-}
-
-#[derive(Debug, Clone, PartialEq)]
-pub struct Inspection {
-    /// Plain text (Markdown-flavoured) documentation.
-    pub text: String,
+#[derive(Debug, Clone)]
+pub(crate) struct Cell {
+    pub key: String,
+    pub source: String,
+    pub program: Program,
+    /// When it was last run (a counter), to settle a name defined in two cells.
+    pub last_run: u64,
 }
 
 /// One session. No global state: two `Worksheet`s never see each other.
 #[derive(Debug, Default)]
-pub struct Worksheet {}
+pub struct Worksheet {
+    pub(crate) cells: Vec<Cell>,
+    reports: Vec<CellReport>,
+    overrides: Vec<Override>,
+    runs: u64,
+    anonymous: usize,
+}
+
+#[derive(Debug, Clone)]
+struct Override {
+    name: String,
+    text: String,
+    expr: Expr,
+}
 
 impl Worksheet {
     pub fn new() -> Self {
@@ -68,32 +91,1332 @@ impl Worksheet {
     /// Runs a cell. `cell` is the front end's cell id if it sent one; otherwise the
     /// worksheet recognises the cell by the names it defines, or makes a new key.
     pub fn execute(&mut self, cell: Option<&str>, source: &str, interrupt: &Interrupt) -> Execution {
-        let _ = interrupt;
+        let program = parser::parse(source);
+        let key = match cell {
+            Some(k) => k.to_string(),
+            None => self.key_by_names(&program),
+        };
+        self.runs += 1;
+        let mut cells = self.cells.clone();
+        let new_cell = Cell {
+            key: key.clone(),
+            source: source.to_string(),
+            program,
+            last_run: self.runs,
+        };
+        match cells.iter_mut().find(|c| c.key == key) {
+            Some(c) => *c = new_cell,
+            None => cells.push(new_cell),
+        }
+        let Some(reports) = evaluate(&cells, &self.overrides, interrupt) else {
+            let mut report = self
+                .reports
+                .iter()
+                .find(|r| r.cell == key)
+                .cloned()
+                .unwrap_or_else(|| CellReport {
+                    cell: key.clone(),
+                    source: source.to_string(),
+                    ..CellReport::default()
+                });
+            report.diagnostics.push(Diagnostic::error(
+                DiagKind::Interrupted,
+                0..0,
+                "interrupted: the worksheet is as it was before this cell ran",
+            ));
+            return Execution {
+                report,
+                updated: Vec::new(),
+                interrupted: true,
+            };
+        };
+        let report = reports
+            .iter()
+            .find(|r| r.cell == key)
+            .cloned()
+            .unwrap_or_default();
+        if report.has_errors() {
+            return Execution {
+                report,
+                updated: Vec::new(),
+                interrupted: false,
+            };
+        }
+        let old = self.reports.iter().find(|r| r.cell == key);
+        let changes = changes(old, &report);
+        let mut updated = Vec::new();
+        for r in &reports {
+            if r.cell == key {
+                continue;
+            }
+            let before = self.reports.iter().find(|o| o.cell == r.cell);
+            if before != Some(r) {
+                updated.push(CellUpdate {
+                    report: r.clone(),
+                    changed_by: changes.clone(),
+                });
+            }
+        }
+        self.cells = cells;
+        self.reports = reports;
         Execution {
-            report: CellReport {
-                cell: cell.unwrap_or("cell-1").to_string(),
-                source: source.to_string(),
-                ..CellReport::default()
-            },
-            updated: Vec::new(),
+            report,
+            updated,
             interrupted: false,
         }
     }
 
+    /// A cell without an id is the earlier cell that defined the same names, if any.
+    fn key_by_names(&mut self, program: &Program) -> String {
+        let names = defined_names(program);
+        if !names.is_empty() {
+            if let Some(c) = self.cells.iter().find(|c| {
+                let theirs = defined_names(&c.program);
+                !theirs.is_empty() && theirs.iter().any(|n| names.contains(n))
+            }) {
+                return c.key.clone();
+            }
+        }
+        self.anonymous += 1;
+        format!("cell-{}", self.anonymous)
+    }
+
     /// Overrides a `given` from outside (`--set NAME=VALUE`); `value` uses the language's
-    /// literal syntax. Takes effect on the next run of the cell that defines it.
-    pub fn set_override(&mut self, name: &str, value: &str) -> Result<(), crate::Diagnostic> {
-        let _ = (name, value);
+    /// literal syntax. The whole value is replaced, tolerance included. Takes effect on
+    /// the next run; a name that is no given of the worksheet is reported then.
+    pub fn set_override(&mut self, name: &str, value: &str) -> Result<(), Diagnostic> {
+        let program = parser::parse(value);
+        if let Some(d) = program.diagnostics.into_iter().find(|d| d.is_error()) {
+            return Err(d);
+        }
+        let expr = match program.stmts.as_slice() {
+            [s] => match &s.kind {
+                StmtKind::Show { expr, as_unit: None } => expr.clone(),
+                _ => {
+                    return Err(Diagnostic::error(
+                        DiagKind::UnexpectedToken,
+                        s.span.clone(),
+                        "an override is a value such as `250 mA` or `250 mA ± 20 %`",
+                    ))
+                }
+            },
+            _ => {
+                return Err(Diagnostic::error(
+                    DiagKind::UnexpectedToken,
+                    0..value.len(),
+                    "an override is one value such as `250 mA`",
+                ))
+            }
+        };
+        let mut free = Vec::new();
+        eval::free_names(&expr, &[], &mut free);
+        if let Some(n) = free.first() {
+            return Err(Diagnostic::error(
+                DiagKind::UnknownName,
+                0..value.len(),
+                format!("an override is a literal value; it cannot use the name `{n}`"),
+            ));
+        }
+        self.overrides.retain(|o| o.name != name);
+        self.overrides.push(Override {
+            name: name.to_string(),
+            text: value.to_string(),
+            expr,
+        });
         Ok(())
     }
 
+    /// The reports of every cell as last run, in the order the cells were first run.
+    pub fn reports(&self) -> &[CellReport] {
+        &self.reports
+    }
+
     pub fn complete(&self, source: &str, cursor: usize) -> Completion {
-        let _ = (source, cursor);
-        Completion::default()
+        crate::query::complete(self, source, cursor)
     }
 
     pub fn inspect(&self, source: &str, cursor: usize) -> Option<Inspection> {
-        let _ = (source, cursor);
+        crate::query::inspect(self, source, cursor)
+    }
+
+    /// The definition of `name` as written, its cell, and its value row, if it is defined.
+    pub(crate) fn definition_of(&self, name: &str) -> Option<(String, Option<&ValueRow>)> {
+        for c in self.cells.iter().rev() {
+            for s in &c.program.stmts {
+                let def = match &s.kind {
+                    StmtKind::Given(d) | StmtKind::Define(d) => Some(&d.name),
+                    StmtKind::Function { name, .. } => Some(name),
+                    _ => None,
+                };
+                if def.is_some_and(|d| d.name == name) {
+                    let text = c.source.get(s.span.clone()).unwrap_or("").to_string();
+                    let row = self
+                        .reports
+                        .iter()
+                        .find(|r| r.cell == c.key)
+                        .and_then(|r| r.values.iter().find(|v| v.name == name));
+                    return Some((text, row));
+                }
+            }
+        }
         None
+    }
+
+    /// Names defined anywhere in the worksheet.
+    pub(crate) fn names(&self) -> Vec<String> {
+        let mut out = Vec::new();
+        for c in &self.cells {
+            for n in defined_names(&c.program) {
+                if !out.contains(&n) {
+                    out.push(n);
+                }
+            }
+            for s in &c.program.stmts {
+                if let StmtKind::Function { name, .. } = &s.kind {
+                    if !out.contains(&name.name) {
+                        out.push(name.name.clone());
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    /// The names whose definitions use `name` directly.
+    pub(crate) fn dependents_of(&self, name: &str) -> Vec<String> {
+        let mut out = Vec::new();
+        for c in &self.cells {
+            for s in &c.program.stmts {
+                if let StmtKind::Given(d) | StmtKind::Define(d) = &s.kind {
+                    let mut free = Vec::new();
+                    eval::free_names(&d.value, &[], &mut free);
+                    if free.iter().any(|f| f == name) && !out.contains(&d.name.name) {
+                        out.push(d.name.name.clone());
+                    }
+                }
+            }
+        }
+        out
+    }
+
+    /// The record value of a definition in the last run (for completing its fields).
+    pub(crate) fn record_fields(&self, name: &str) -> Vec<String> {
+        let prefix = format!("{name}.");
+        self.reports
+            .iter()
+            .flat_map(|r| r.values.iter())
+            .filter_map(|v| v.name.strip_prefix(&prefix).map(str::to_string))
+            .collect()
+    }
+}
+
+fn defined_names(p: &Program) -> Vec<String> {
+    p.stmts
+        .iter()
+        .filter_map(|s| match &s.kind {
+            StmtKind::Given(d) | StmtKind::Define(d) => Some(d.name.name.clone()),
+            StmtKind::Function { name, .. } => Some(name.name.clone()),
+            _ => None,
+        })
+        .collect()
+}
+
+fn changes(old: Option<&CellReport>, new: &CellReport) -> Vec<Change> {
+    let mut out = Vec::new();
+    let text = |v: &ValueRow| match &v.range_text {
+        Some(r) => format!("{} ({r})", v.text),
+        None => v.text.clone(),
+    };
+    for v in &new.values {
+        let before = old.and_then(|o| o.values.iter().find(|x| x.name == v.name));
+        match before {
+            Some(b) if text(b) == text(v) => {}
+            Some(b) => out.push(Change {
+                name: v.name.clone(),
+                old: text(b),
+                new: text(v),
+            }),
+            None if old.is_some() => out.push(Change {
+                name: v.name.clone(),
+                old: "(new)".into(),
+                new: text(v),
+            }),
+            None => {}
+        }
+    }
+    if let Some(o) = old {
+        for v in &o.values {
+            if !new.values.iter().any(|x| x.name == v.name) {
+                out.push(Change {
+                    name: v.name.clone(),
+                    old: text(v),
+                    new: "(removed)".into(),
+                });
+            }
+        }
+    }
+    out
+}
+
+// ---------------------------------------------------------------------------------------
+// The model: every statement of every cell, resolved into definitions and an order.
+
+struct DefEntry {
+    name: String,
+    cell: usize,
+    expr: Expr,
+    /// Where the value stands in the cell (errors in an override point here).
+    value_span: Span,
+    name_span: Span,
+    unit: Option<Unit>,
+    note: String,
+    given: bool,
+    overridden: bool,
+    static_error: Option<EvalError>,
+}
+
+struct CheckEntry {
+    cell: usize,
+    key: String,
+    lhs: Expr,
+    op: CmpOp,
+    rhs: Expr,
+    note: String,
+    text: String,
+    span: Span,
+}
+
+struct ShowEntry {
+    cell: usize,
+    key: String,
+    expr: Expr,
+    unit: Option<Unit>,
+    unit_error: Option<EvalError>,
+    text: String,
+}
+
+/// What each cell contains, in statement order, for the report.
+enum Item {
+    Def(usize),
+    Check(usize),
+    Show(usize),
+    Sweep(usize),
+}
+
+struct SweepEntry {
+    cell: usize,
+    stmt: crate::ast::Stmt,
+}
+
+struct Model {
+    defs: Vec<DefEntry>,
+    index: HashMap<String, usize>,
+    funcs: HashMap<String, Function>,
+    order: Vec<usize>,
+    checks: Vec<CheckEntry>,
+    shows: Vec<ShowEntry>,
+    sweeps: Vec<SweepEntry>,
+    items: Vec<Vec<Item>>,
+    diags: Vec<Vec<Diagnostic>>,
+}
+
+fn resolve_unit(u: &crate::ast::UnitExpr) -> Result<Unit, EvalError> {
+    units::parse_unit(&u.text).map_err(|e| {
+        let mut err = EvalError::new(DiagKind::UnknownUnit, &u.span, e.message);
+        err.hint = e.hint;
+        err
+    })
+}
+
+fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
+    let mut m = Model {
+        defs: Vec::new(),
+        index: HashMap::new(),
+        funcs: HashMap::new(),
+        order: Vec::new(),
+        checks: Vec::new(),
+        shows: Vec::new(),
+        sweeps: Vec::new(),
+        items: (0..cells.len()).map(|_| Vec::new()).collect(),
+        diags: cells.iter().map(|c| c.program.diagnostics.clone()).collect(),
+    };
+    // Who owns each name: within a cell the first definition (a second is an error);
+    // across cells the one run last.
+    let mut owner: HashMap<String, (usize, u64)> = HashMap::new();
+    for (ci, c) in cells.iter().enumerate() {
+        let mut seen: Vec<&str> = Vec::new();
+        for s in &c.program.stmts {
+            let name = match &s.kind {
+                StmtKind::Given(d) | StmtKind::Define(d) => &d.name,
+                StmtKind::Function { name, .. } => name,
+                _ => continue,
+            };
+            if seen.contains(&name.name.as_str()) {
+                m.diags[ci].push(
+                    Diagnostic::error(
+                        DiagKind::Redefinition,
+                        name.span.clone(),
+                        format!("`{}` is defined twice in this cell", name.name),
+                    )
+                    .hint("a name has one definition; give the second one another name"),
+                );
+                continue;
+            }
+            seen.push(&name.name);
+            match owner.get(&name.name) {
+                Some(&(_, run)) if run > c.last_run => {}
+                _ => {
+                    owner.insert(name.name.clone(), (ci, c.last_run));
+                }
+            }
+        }
+    }
+    for (ci, c) in cells.iter().enumerate() {
+        let mut seen: Vec<String> = Vec::new();
+        for (si, s) in c.program.stmts.iter().enumerate() {
+            let key = format!("{}:{si}", c.key);
+            match &s.kind {
+                StmtKind::Given(d) | StmtKind::Define(d) => {
+                    let given = matches!(s.kind, StmtKind::Given(_));
+                    if seen.contains(&d.name.name) {
+                        continue;
+                    }
+                    seen.push(d.name.name.clone());
+                    if owner.get(&d.name.name).map(|o| o.0) != Some(ci) {
+                        m.diags[ci].push(Diagnostic::warning(
+                            DiagKind::Redefinition,
+                            d.name.span.clone(),
+                            format!("`{}` is now defined by a cell run later; this definition is not used", d.name.name),
+                        ));
+                        continue;
+                    }
+                    let (unit, static_error) = match d.unit.as_ref().map(resolve_unit) {
+                        Some(Ok(u)) => (Some(u), None),
+                        Some(Err(e)) => (None, Some(e)),
+                        None => (None, None),
+                    };
+                    let ov = if given {
+                        overrides.iter().find(|o| o.name == d.name.name)
+                    } else {
+                        None
+                    };
+                    let idx = m.defs.len();
+                    m.defs.push(DefEntry {
+                        name: d.name.name.clone(),
+                        cell: ci,
+                        expr: ov.map_or_else(|| d.value.clone(), |o| o.expr.clone()),
+                        value_span: d.value.span.clone(),
+                        name_span: d.name.span.clone(),
+                        unit,
+                        note: d.note.as_ref().map(|n| n.text.clone()).unwrap_or_default(),
+                        given,
+                        overridden: ov.is_some(),
+                        static_error,
+                    });
+                    m.index.insert(d.name.name.clone(), idx);
+                    m.items[ci].push(Item::Def(idx));
+                }
+                StmtKind::Function { name, params, unit, body } => {
+                    if owner.get(&name.name).map(|o| o.0) != Some(ci) || m.funcs.contains_key(&name.name) {
+                        continue;
+                    }
+                    let unit = match unit.as_ref().map(resolve_unit) {
+                        Some(Ok(u)) => Some(u),
+                        Some(Err(e)) => {
+                            m.diags[ci].push(e.into_diagnostic());
+                            None
+                        }
+                        None => None,
+                    };
+                    m.funcs.insert(
+                        name.name.clone(),
+                        Function {
+                            params: params.iter().map(|p| p.name.clone()).collect(),
+                            body: body.clone(),
+                            unit,
+                        },
+                    );
+                }
+                StmtKind::Check { lhs, op, rhs, note } => {
+                    m.items[ci].push(Item::Check(m.checks.len()));
+                    m.checks.push(CheckEntry {
+                        cell: ci,
+                        key,
+                        lhs: lhs.clone(),
+                        op: *op,
+                        rhs: rhs.clone(),
+                        note: note.as_ref().map(|n| n.text.clone()).unwrap_or_default(),
+                        text: source_text(&c.source, lhs.span.start..rhs.span.end),
+                        span: s.span.clone(),
+                    });
+                }
+                StmtKind::Show { expr, as_unit } => {
+                    let (unit, unit_error) = match as_unit.as_ref().map(resolve_unit) {
+                        Some(Ok(u)) => (Some(u), None),
+                        Some(Err(e)) => (None, Some(e)),
+                        None => (None, None),
+                    };
+                    m.items[ci].push(Item::Show(m.shows.len()));
+                    m.shows.push(ShowEntry {
+                        cell: ci,
+                        key,
+                        expr: expr.clone(),
+                        unit,
+                        unit_error,
+                        text: source_text(&c.source, s.span.clone()),
+                    });
+                }
+                StmtKind::Sweep { .. } => {
+                    m.items[ci].push(Item::Sweep(m.sweeps.len()));
+                    m.sweeps.push(SweepEntry { cell: ci, stmt: s.clone() });
+                }
+                StmtKind::Error => {}
+            }
+        }
+    }
+    for o in overrides {
+        match m.index.get(&o.name) {
+            Some(&i) if m.defs[i].given => {}
+            Some(&i) => {
+                let ci = m.defs[i].cell;
+                m.diags[ci].push(Diagnostic::error(
+                    DiagKind::Argument,
+                    m.defs[i].name_span.clone(),
+                    format!("`--set {}={}`: `{}` is a derived value, not a given", o.name, o.text, o.name),
+                ).hint("only inputs declared with `given` can be set from outside"));
+            }
+            None => {
+                if let Some(ci) = (!cells.is_empty()).then_some(0) {
+                    let mut names: Vec<String> = m.defs.iter().filter(|d| d.given).map(|d| d.name.clone()).collect();
+                    names.sort();
+                    let mut d = Diagnostic::error(
+                        DiagKind::UnknownName,
+                        0..0,
+                        format!("`--set {}={}`: this worksheet has no given named `{}`", o.name, o.text, o.name),
+                    );
+                    d.hint = Some(match eval::nearest(&o.name, &names) {
+                        Some(b) => format!("did you mean `{b}`?"),
+                        None => format!("its givens are: {}", names.join(", ")),
+                    });
+                    m.diags[ci].push(d);
+                }
+            }
+        }
+    }
+    order_definitions(&mut m);
+    m
+}
+
+fn source_text(src: &str, span: Span) -> String {
+    src.get(span).unwrap_or("").trim().to_string()
+}
+
+/// Topological order of the definitions; definitions on a cycle get an error naming it.
+fn order_definitions(m: &mut Model) {
+    let n = m.defs.len();
+    let deps: Vec<Vec<usize>> = (0..n)
+        .map(|i| {
+            let mut names = Vec::new();
+            eval::free_names(&m.defs[i].expr, &[], &mut names);
+            // Names used inside called user functions count too.
+            let mut k = 0;
+            let mut visited: Vec<String> = Vec::new();
+            while k < names.len() {
+                let name = names[k].clone();
+                k += 1;
+                if let Some(f) = m.funcs.get(&name) {
+                    if visited.contains(&name) {
+                        continue;
+                    }
+                    visited.push(name);
+                    eval::free_names(&f.body, &f.params, &mut names);
+                }
+            }
+            names.iter().filter_map(|x| m.index.get(x).copied()).collect()
+        })
+        .collect();
+    // Iterative depth-first search (colours: 0 new, 1 on the stack, 2 done).
+    let mut colour = vec![0u8; n];
+    let mut order = Vec::with_capacity(n);
+    let mut on_cycle: Vec<(usize, String)> = Vec::new();
+    for start in 0..n {
+        if colour[start] != 0 {
+            continue;
+        }
+        let mut stack: Vec<(usize, usize)> = vec![(start, 0)];
+        colour[start] = 1;
+        while let Some(&mut (v, ref mut next)) = stack.last_mut() {
+            if *next < deps[v].len() {
+                let w = deps[v][*next];
+                *next += 1;
+                if colour[w] == 0 {
+                    colour[w] = 1;
+                    stack.push((w, 0));
+                } else if colour[w] == 1 {
+                    // A cycle: w … v → w.
+                    let pos = stack.iter().position(|(x, _)| *x == w).unwrap_or(0);
+                    let mut path: Vec<&str> = stack[pos..].iter().map(|(x, _)| m.defs[*x].name.as_str()).collect();
+                    path.push(&m.defs[w].name);
+                    let text = path.join(" → ");
+                    for (x, _) in &stack[pos..] {
+                        if !on_cycle.iter().any(|(y, _)| y == x) {
+                            on_cycle.push((*x, text.clone()));
+                        }
+                    }
+                }
+            } else {
+                colour[v] = 2;
+                order.push(v);
+                stack.pop();
+            }
+        }
+    }
+    for (i, path) in on_cycle {
+        let d = &mut m.defs[i];
+        d.static_error = Some(
+            EvalError::new(
+                DiagKind::Cycle,
+                &d.name_span,
+                format!("`{}` depends on itself: {path}", d.name),
+            )
+            .hint("break the loop: one of these must be a given or a fixed value"),
+        );
+    }
+    m.order = order;
+}
+
+// ---------------------------------------------------------------------------------------
+// Passes over the model.
+
+struct Scope<'m> {
+    model: &'m Model,
+    values: &'m [Option<Result<Value, String>>],
+}
+
+impl Names for Scope<'_> {
+    fn lookup(&self, name: &str) -> Option<Result<Value, String>> {
+        let &i = self.model.index.get(name)?;
+        Some(match &self.values[i] {
+            Some(v) => v.clone(),
+            None => Err("it is not computed yet".into()),
+        })
+    }
+    fn function(&self, name: &str) -> Option<&Function> {
+        self.model.funcs.get(name)
+    }
+    fn all_names(&self) -> Vec<String> {
+        self.model.index.keys().chain(self.model.funcs.keys()).cloned().collect()
+    }
+}
+
+/// Which statement an error belongs to.
+#[derive(Clone, Copy, PartialEq, Eq, Hash, Debug)]
+enum StmtId {
+    Def(usize),
+    Check(usize),
+    Show(usize),
+}
+
+struct Runner<'m> {
+    model: &'m Model,
+    reg: Registry,
+    interrupt: &'m Interrupt,
+    errors: HashMap<StmtId, EvalError>,
+    notes: Vec<(usize, Diagnostic)>,
+    /// A pinned value for one definition (sweeps): (definition index, value).
+    pin: Option<(usize, Num)>,
+    /// Extra expressions evaluated after the statements (a sweep's series): (key, expr).
+    extra: Vec<(String, Expr)>,
+    /// Values of the nominal pass: definitions, and shown expressions by index.
+    nominal_values: Vec<Option<Result<Value, String>>>,
+    shown: HashMap<usize, Value>,
+}
+
+fn def_key(name: &str) -> String {
+    format!("d:{name}")
+}
+
+impl Runner<'_> {
+    fn fail(&mut self, id: StmtId, e: EvalError) {
+        self.errors.entry(id).or_insert(e);
+    }
+
+    fn run(&mut self, mode: Mode) -> Option<Pass> {
+        if self.interrupt.is_raised() {
+            return None;
+        }
+        let nominal = matches!(mode, Mode::Nominal);
+        let model = self.model;
+        let mut pass = Pass::new(mode, self.reg.scalar_keys.len());
+        let mut values: Vec<Option<Result<Value, String>>> = vec![None; model.defs.len()];
+        for &d in &model.order {
+            let def = &model.defs[d];
+            if let Some(e) = &def.static_error {
+                if nominal {
+                    self.fail(StmtId::Def(d), e.clone());
+                }
+                values[d] = Some(Err(e.message.clone()));
+                continue;
+            }
+            let result = if let Some((pd, pv)) = self.pin.filter(|(pd, _)| *pd == d) {
+                let _ = pd;
+                Ok(Value::Num(pv))
+            } else {
+                let scope = Scope { model, values: &values };
+                let mut ev = Evaluator {
+                    names: &scope,
+                    reg: &mut self.reg,
+                    pass: &mut pass,
+                    stmt_key: def_key(&def.name),
+                    stmt_label: def.name.clone(),
+                    given: def.given,
+                    locals: Vec::new(),
+                    depth: 0,
+                    notes: Vec::new(),
+                };
+                let r = ev.eval(&def.expr).and_then(|v| {
+                    if let Some(u) = &def.unit {
+                        eval::check_declared(&v, u, &def.value_span)?;
+                    }
+                    Ok(v)
+                });
+                let notes = std::mem::take(&mut ev.notes);
+                if nominal {
+                    self.notes.extend(notes.into_iter().map(|n| (def.cell, n)));
+                }
+                r
+            };
+            match result {
+                Ok(v) => {
+                    let scope_key = def_key(&def.name);
+                    let mut ev = Evaluator {
+                        names: &NoNames,
+                        reg: &mut self.reg,
+                        pass: &mut pass,
+                        stmt_key: scope_key.clone(),
+                        stmt_label: def.name.clone(),
+                        given: def.given,
+                        locals: Vec::new(),
+                        depth: 0,
+                        notes: Vec::new(),
+                    };
+                    ev.record_value(&scope_key, &v);
+                    values[d] = Some(Ok(v));
+                }
+                Err(mut e) => {
+                    if def.overridden && e.kind != DiagKind::DependencyFailed {
+                        e.message = format!("in the value set from outside for `{}`: {}", def.name, e.message);
+                        e.span = def.value_span.clone();
+                    }
+                    values[d] = Some(Err(e.message.clone()));
+                    self.fail(StmtId::Def(d), e);
+                }
+            }
+        }
+        let scope = Scope { model, values: &values };
+        for (i, c) in model.checks.iter().enumerate() {
+            let mut ev = Evaluator {
+                names: &scope,
+                reg: &mut self.reg,
+                pass: &mut pass,
+                stmt_key: c.key.clone(),
+                stmt_label: "check".into(),
+                given: false,
+                locals: Vec::new(),
+                depth: 0,
+                notes: Vec::new(),
+            };
+            let r = (|| {
+                let a = ev.eval(&c.lhs)?;
+                let b = ev.eval(&c.rhs)?;
+                let (Value::Num(a), Value::Num(b)) = (a, b) else {
+                    return Err(EvalError::new(DiagKind::TypeMismatch, &c.span, "a check compares two numbers"));
+                };
+                let diff = eval::binary(crate::ast::BinOp::Sub, a, b, &c.span, &c.rhs.span).map_err(|mut e| {
+                    e.message = format!("the two sides cannot be compared: {}", e.message);
+                    e
+                })?;
+                ev.record(&format!("{}:lhs", c.key), a);
+                ev.record(&format!("{}:rhs", c.key), b);
+                ev.record(&format!("{}:diff", c.key), diff);
+                Ok(())
+            })();
+            let notes = std::mem::take(&mut ev.notes);
+            if nominal {
+                self.notes.extend(notes.into_iter().map(|n| (c.cell, n)));
+            }
+            if let Err(e) = r {
+                self.fail(StmtId::Check(i), e);
+            }
+        }
+        for (i, s) in model.shows.iter().enumerate() {
+            if let Some(e) = &s.unit_error {
+                if nominal {
+                    self.fail(StmtId::Show(i), e.clone());
+                }
+                continue;
+            }
+            let mut ev = Evaluator {
+                names: &scope,
+                reg: &mut self.reg,
+                pass: &mut pass,
+                stmt_key: s.key.clone(),
+                stmt_label: s.text.clone(),
+                given: false,
+                locals: Vec::new(),
+                depth: 0,
+                notes: Vec::new(),
+            };
+            let r = ev.eval(&s.expr).and_then(|v| {
+                if let Some(u) = &s.unit {
+                    eval::check_declared(&v, u, &s.expr.span)?;
+                }
+                Ok(v)
+            });
+            let r = r.map(|v| {
+                ev.record_value(&s.key, &v);
+                v
+            });
+            let notes = std::mem::take(&mut ev.notes);
+            if nominal {
+                self.notes.extend(notes.into_iter().map(|n| (s.cell, n)));
+            }
+            match r {
+                Ok(v) => {
+                    if nominal {
+                        self.shown.insert(i, v);
+                    }
+                }
+                Err(e) => self.fail(StmtId::Show(i), e),
+            }
+        }
+        for (key, e) in &self.extra {
+            let mut ev = Evaluator {
+                names: &scope,
+                reg: &mut self.reg,
+                pass: &mut pass,
+                stmt_key: key.clone(),
+                stmt_label: "sweep".into(),
+                given: false,
+                locals: Vec::new(),
+                depth: 0,
+                notes: Vec::new(),
+            };
+            if let Ok(v) = ev.eval(e) {
+                ev.record_value(key, &v);
+            }
+        }
+        if nominal {
+            self.nominal_values = values;
+        }
+        Some(pass)
+    }
+}
+
+struct NoNames;
+impl Names for NoNames {
+    fn lookup(&self, _: &str) -> Option<Result<Value, String>> {
+        None
+    }
+    fn function(&self, _: &str) -> Option<&Function> {
+        None
+    }
+    fn all_names(&self) -> Vec<String> {
+        Vec::new()
+    }
+}
+
+impl analysis::Evaluate for Runner<'_> {
+    fn pass(&mut self, mode: Mode) -> Option<Pass> {
+        self.run(mode)
+    }
+}
+
+impl<'m> Runner<'m> {
+    fn new(model: &'m Model, interrupt: &'m Interrupt) -> Self {
+        Runner {
+            model,
+            reg: Registry::default(),
+            interrupt,
+            errors: HashMap::new(),
+            notes: Vec::new(),
+            pin: None,
+            extra: Vec::new(),
+            nominal_values: Vec::new(),
+            shown: HashMap::new(),
+        }
+    }
+}
+
+/// The analysed state of one evaluation: the nominal pass, the bounds of every scalar,
+/// and the memoised passes (to read other scalars at a deciding corner).
+struct Analysed<'r, 'm> {
+    reg: Registry,
+    nominal: Pass,
+    bounds: Vec<Option<ScalarBounds>>,
+    passes: Passes<'r, Runner<'m>>,
+}
+
+impl Analysed<'_, '_> {
+    fn scalar_by_id(&self, id: usize) -> Option<(Num, Option<ScalarBounds>)> {
+        let n = self.nominal.scalars.get(id).copied().flatten()?;
+        Some((n, self.bounds.get(id).cloned().flatten()))
+    }
+
+    fn scalar(&self, key: &str) -> Option<(Num, Option<ScalarBounds>)> {
+        self.scalar_by_id(self.reg.find_scalar(key)?)
+    }
+
+    /// Scalar `key` at the assignment `at`.
+    fn at(&mut self, at: &[Interval], key: &str) -> Option<Num> {
+        let id = self.reg.find_scalar(key)?;
+        self.passes.at(at, id)
+    }
+
+    fn bounds_of(&self, b: &ScalarBounds) -> Bounds {
+        let total: f64 = b.swings.iter().sum();
+        let mut shares: Vec<Share> = Vec::new();
+        for (k, s) in b.depends.iter().zip(&b.swings) {
+            let label = &self.reg.inputs[*k].label;
+            let f = if total > 0.0 { s / total } else { 0.0 };
+            match shares.iter_mut().find(|x| &x.input == label) {
+                Some(x) => x.fraction += f,
+                None => shares.push(Share {
+                    input: label.clone(),
+                    fraction: f,
+                }),
+            }
+        }
+        shares.sort_by(|a, b| b.fraction.total_cmp(&a.fraction));
+        Bounds {
+            min: b.min,
+            max: b.max,
+            conservative: b.conservative,
+            shares,
+            rss: b.swings.iter().map(|s| (s / 2.0).powi(2)).sum::<f64>().sqrt(),
+        }
+    }
+
+    /// "vin = 10.8 V, iload = 216 mA": the inputs a value depends on at an assignment.
+    fn describe_corner(&mut self, b: &ScalarBounds, at: &[Interval]) -> String {
+        let mut parts: Vec<String> = Vec::new();
+        for &k in &b.depends {
+            let Some(&sid) = self.reg.input_scalars.get(k) else { continue };
+            if sid == usize::MAX {
+                continue;
+            }
+            let label = self.reg.inputs[k].label.clone();
+            if let Some(v) = self.passes.at(at, sid) {
+                let t = format!("{label} = {}", units::format_si(v.x.value(), v.dim, v.abs, SIG));
+                if !parts.contains(&t) {
+                    parts.push(t);
+                }
+            }
+        }
+        parts.join(", ")
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn value_rows(
+        &self,
+        key: &str,
+        name: &str,
+        v: &Value,
+        unit: Option<&Unit>,
+        display: Option<&'static str>,
+        note: &str,
+        given: bool,
+        out: &mut Vec<ValueRow>,
+    ) {
+        let row = |shown: Shown, text: String| ValueRow {
+            name: name.to_string(),
+            given,
+            note: note.to_string(),
+            shown,
+            unit: unit.cloned(),
+            preferred: None,
+            text,
+            range_text: None,
+        };
+        match v {
+            Value::Num(n) => {
+                let (nom, b) = self.scalar(key).unwrap_or((*n, None));
+                let preferred = display.and_then(|t| units::parse_unit(t).ok());
+                let u = unit.or(preferred.as_ref());
+                let si = nom.x.value();
+                let text = fmt_value(si, nom.dim, nom.abs, u);
+                let range_text = b
+                    .as_ref()
+                    .map(|b| format!("{} … {}", fmt_value(b.min, nom.dim, nom.abs, u), fmt_value(b.max, nom.dim, nom.abs, u)));
+                out.push(ValueRow {
+                    preferred: preferred.clone(),
+                    range_text,
+                    ..row(
+                        Shown::Number {
+                            value: crate::results::Quantity {
+                                si,
+                                dim: nom.dim,
+                                absolute: nom.abs,
+                            },
+                            bounds: b.as_ref().map(|b| self.bounds_of(b)),
+                        },
+                        text,
+                    )
+                });
+            }
+            Value::Record(r) => {
+                for (i, f) in r.fields.iter().enumerate() {
+                    self.value_rows(
+                        &format!("{key}.{}", f.name),
+                        &format!("{name}.{}", f.name),
+                        &f.value,
+                        None,
+                        f.display,
+                        if i == 0 { note } else { "" },
+                        given,
+                        out,
+                    );
+                }
+            }
+            Value::Str(s) => out.push(row(Shown::Text(s.to_string()), s.to_string())),
+            Value::List(_) | Value::Series(_) => {
+                let t = plain(v);
+                out.push(row(Shown::Other(t.clone()), t));
+            }
+        }
+    }
+}
+
+/// A value as text without bounds (lists, series).
+fn plain(v: &Value) -> String {
+    match v {
+        Value::Num(n) => units::format_si(n.x.value(), n.dim, n.abs, SIG),
+        Value::Str(s) => format!("\"{s}\""),
+        Value::List(items) => format!("[{}]", items.iter().map(plain).collect::<Vec<_>>().join(", ")),
+        Value::Record(r) => format!("({} result)", r.kind),
+        Value::Series(s) => format!("{} ({} values per decade)", s.name, s.values.len()),
+    }
+}
+
+const SIG: usize = 3;
+
+fn fmt_value(si: f64, dim: Dim, abs: bool, unit: Option<&Unit>) -> String {
+    match unit {
+        Some(u) => units::format_in(si, abs, u, SIG),
+        None => units::format_si(si, dim, abs, SIG),
+    }
+}
+
+/// The two sides of a check with enough digits to differ in the verdict's direction.
+fn side_texts(worst: Num, limit: Num) -> (String, String) {
+    let mut sig = SIG;
+    loop {
+        let a = units::format_si(worst.x.value(), worst.dim, worst.abs, sig);
+        let b = units::format_si(limit.x.value(), limit.dim, limit.abs, sig);
+        if a != b || sig >= 12 || worst.x.value() == limit.x.value() {
+            return (a, b);
+        }
+        sig += 1;
+    }
+}
+
+fn cell_of_stmt(model: &Model, cells: &[Cell], key: &str) -> Option<usize> {
+    if let Some(name) = key.strip_prefix("d:") {
+        return model.index.get(name).map(|&i| model.defs[i].cell);
+    }
+    let (cell, _) = key.rsplit_once(':')?;
+    cells.iter().position(|c| c.key == cell)
+}
+
+/// Evaluates every cell; None when interrupted.
+fn evaluate(cells: &[Cell], overrides: &[Override], interrupt: &Interrupt) -> Option<Vec<CellReport>> {
+    let model = build_model(cells, overrides);
+    let mut runner = Runner::new(&model, interrupt);
+    let nominal = runner.run(Mode::Nominal)?;
+    let reg = runner.reg.clone();
+    let nominal_values = std::mem::take(&mut runner.nominal_values);
+    let shown = std::mem::take(&mut runner.shown);
+    let mut passes = Passes::new(&mut runner);
+    let bounds = analysis::analyse(&reg, &nominal, &mut passes)?;
+    let mut an = Analysed {
+        reg,
+        nominal,
+        bounds,
+        passes,
+    };
+    let mut reports: Vec<CellReport> = cells
+        .iter()
+        .enumerate()
+        .map(|(ci, c)| CellReport {
+            cell: c.key.clone(),
+            source: c.source.clone(),
+            diagnostics: model.diags[ci].clone(),
+            ..CellReport::default()
+        })
+        .collect();
+    for (ci, report) in reports.iter_mut().enumerate() {
+        for item in &model.items[ci] {
+            match item {
+                Item::Def(d) => {
+                    let def = &model.defs[*d];
+                    if let Some(e) = an.passes.eval.errors.get(&StmtId::Def(*d)) {
+                        report.diagnostics.push(e.clone().into_diagnostic());
+                        continue;
+                    }
+                    if let Some(Ok(v)) = &nominal_values[*d] {
+                        an.value_rows(&def_key(&def.name), &def.name, v, def.unit.as_ref(), None, &def.note, def.given, &mut report.values);
+                    }
+                }
+                Item::Check(i) => {
+                    if let Some(e) = an.passes.eval.errors.get(&StmtId::Check(*i)) {
+                        report.diagnostics.push(e.clone().into_diagnostic());
+                        continue;
+                    }
+                    if let Some(row) = check_row(&mut an, &model.checks[*i]) {
+                        report.checks.push(row);
+                    }
+                }
+                Item::Show(i) => {
+                    if let Some(e) = an.passes.eval.errors.get(&StmtId::Show(*i)) {
+                        report.diagnostics.push(e.clone().into_diagnostic());
+                        continue;
+                    }
+                    let s = &model.shows[*i];
+                    if let Some(v) = shown.get(i) {
+                        an.value_rows(&s.key, &s.text, v, s.unit.as_ref(), None, "", false, &mut report.shown);
+                    }
+                }
+                Item::Sweep(i) => {
+                    let s = &model.sweeps[*i];
+                    match crate::sweep::run(&SweepHost { model: &model, cells, interrupt }, &s.stmt, &cells[s.cell].source)? {
+                        Ok(t) => report.sweeps.push(t),
+                        Err(d) => report.diagnostics.push(d),
+                    }
+                }
+            }
+        }
+    }
+    // Warnings of the built-ins, judged at their worst case.
+    let probes = an.reg.probes.clone();
+    let mut fired: Vec<(usize, usize, f64, WarningRow)> = Vec::new();
+    for p in &probes {
+        let Some(ci) = cell_of_stmt(&model, cells, &p.stmt) else { continue };
+        let Some((nom, b)) = an.scalar_by_id(p.scalar) else { continue };
+        let (above, limit) = match p.rule.when {
+            crate::builtins::WarnWhen::MaxAbove(l) => (true, l),
+            crate::builtins::WarnWhen::MinBelow(l) => (false, l),
+        };
+        let v = match &b {
+            Some(b) if above => b.max,
+            Some(b) => b.min,
+            None => nom.x.value(),
+        };
+        if (above && v > limit) || (!above && v < limit) {
+            let at = match &b {
+                Some(b) => {
+                    let corner = if above { b.max_at.clone() } else { b.min_at.clone() };
+                    let c = an.describe_corner(b, &corner);
+                    if c.is_empty() {
+                        String::new()
+                    } else {
+                        format!(" at {c}")
+                    }
+                }
+                None => String::new(),
+            };
+            let text = format!(
+                "{}: {} {} {} (limit {}){}",
+                p.rule.message,
+                p.rule.label,
+                if b.is_some() {
+                    if above {
+                        "reaches"
+                    } else {
+                        "falls to"
+                    }
+                } else {
+                    "is"
+                },
+                units::format_si(v, nom.dim, nom.abs, SIG),
+                units::format_si(limit, nom.dim, nom.abs, SIG),
+                at
+            );
+            let row = WarningRow {
+                source: p.source.clone(),
+                text,
+            };
+            // Of several rules on one value, the most severe one speaks.
+            match fired.iter_mut().find(|(c, s, _, _)| *c == ci && *s == p.scalar) {
+                Some(f) if (above && limit > f.2) || (!above && limit < f.2) => *f = (ci, p.scalar, limit, row),
+                Some(_) => {}
+                None => fired.push((ci, p.scalar, limit, row)),
+            }
+        }
+    }
+    for (ci, _, _, row) in fired {
+        reports[ci].warnings.push(row);
+    }
+    for (label, key, text) in &an.reg.warnings {
+        if let Some(ci) = cell_of_stmt(&model, cells, key) {
+            reports[ci].warnings.push(WarningRow {
+                source: label.clone(),
+                text: text.clone(),
+            });
+        }
+    }
+    let notes = std::mem::take(&mut an.passes.eval.notes);
+    for (ci, n) in notes {
+        if !reports[ci].diagnostics.contains(&n) {
+            reports[ci].diagnostics.push(n);
+        }
+    }
+    Some(reports)
+}
+
+fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
+    let lk = format!("{}:lhs", c.key);
+    let rk = format!("{}:rhs", c.key);
+    let (lhs, _) = an.scalar(&lk)?;
+    let (rhs, _) = an.scalar(&rk)?;
+    let (diff, b) = an.scalar(&format!("{}:diff", c.key))?;
+    let le = matches!(c.op, CmpOp::Lt | CmpOp::Le);
+    let (worst_diff, at) = match &b {
+        Some(b) if le => (b.max, Some(b.max_at.clone())),
+        Some(b) => (b.min, Some(b.min_at.clone())),
+        None => (diff.x.value(), None),
+    };
+    let passed = match c.op {
+        CmpOp::Lt => worst_diff < 0.0,
+        CmpOp::Le => worst_diff <= 0.0,
+        CmpOp::Gt => worst_diff > 0.0,
+        CmpOp::Ge => worst_diff >= 0.0,
+    };
+    let margin = if le { -worst_diff } else { worst_diff };
+    let (worst, limit) = match at {
+        Some(a) => (an.at(&a, &lk).unwrap_or(lhs), an.at(&a, &rk).unwrap_or(rhs)),
+        None => (lhs, rhs),
+    };
+    let (worst_text, limit_text) = side_texts(worst, limit);
+    Some(CheckRow {
+        text: c.text.clone(),
+        note: c.note.clone(),
+        passed,
+        worst: worst.x.value(),
+        limit: limit.x.value(),
+        absolute: worst.abs && limit.abs,
+        margin,
+        dim: diff.dim,
+        conservative: b.as_ref().is_some_and(|b| b.conservative),
+        worst_text,
+        limit_text,
+        margin_text: units::format_difference(margin, diff.dim, SIG),
+    })
+}
+
+/// What a sweep needs of the worksheet: re-running it with one definition pinned.
+pub(crate) struct SweepHost<'a> {
+    model: &'a Model,
+    cells: &'a [Cell],
+    interrupt: &'a Interrupt,
+}
+
+/// One analysed evaluation of the worksheet with a definition pinned to a value.
+pub(crate) struct SweepPoint {
+    /// For each extra expression: nominal, and (min, max) when uncertain.
+    pub values: Vec<Option<(Num, Option<(f64, f64)>)>>,
+}
+
+impl SweepHost<'_> {
+    pub fn interrupt(&self) -> &Interrupt {
+        self.interrupt
+    }
+
+    /// The nominal value of a definition, if it evaluated.
+    pub fn definition(&self, name: &str) -> Option<Result<usize, ()>> {
+        let &i = self.model.index.get(name)?;
+        Some(Ok(i))
+    }
+
+    /// The first check whose left side is exactly `name`: (its text, the right side's
+    /// nominal value).
+    pub fn check_on(&self, name: &str) -> Vec<(String, Expr)> {
+        self.model
+            .checks
+            .iter()
+            .filter(|c| matches!(&c.lhs.kind, ExprKind::Name(n) if n == name))
+            .map(|c| (c.text.clone(), c.rhs.clone()))
+            .collect()
+    }
+
+    /// A known number written in the sweep (an end, a step count): literals only.
+    pub fn constant(&self, e: &Expr) -> Result<Num, EvalError> {
+        let _ = self.cells.len();
+        let mut pass = Pass::new(Mode::Nominal, 0);
+        let mut scratch = Registry::default();
+        let mut ev = Evaluator {
+            names: &NoNames,
+            reg: &mut scratch,
+            pass: &mut pass,
+            stmt_key: "sweep".into(),
+            stmt_label: "sweep".into(),
+            given: false,
+            locals: Vec::new(),
+            depth: 0,
+            notes: Vec::new(),
+        };
+        match ev.eval(e)? {
+            Value::Num(n) if scratch.inputs.is_empty() => Ok(n),
+            Value::Num(_) => Err(EvalError::new(DiagKind::TypeMismatch, &e.span, "a sweep's ends and steps are exact numbers, without a tolerance")),
+            v => Err(EvalError::new(DiagKind::TypeMismatch, &e.span, format!("expected a number, found {}", v.type_name()))),
+        }
+    }
+
+    /// Evaluates `exprs` with definition `pin` (an index from `definition`) set to `value`.
+    /// None when interrupted; an error when an expression fails at this point.
+    pub fn point(&self, pin: Option<(usize, Num)>, exprs: &[Expr]) -> Option<Result<SweepPoint, EvalError>> {
+        let mut r = Runner::new(self.model, self.interrupt);
+        r.pin = pin;
+        r.extra = exprs.iter().enumerate().map(|(j, e)| (format!("sw:{j}"), e.clone())).collect();
+        let nominal = r.run(Mode::Nominal)?;
+        // An expression that fails is evaluated once more alone to report why.
+        let reg = r.reg.clone();
+        for (j, e) in exprs.iter().enumerate() {
+            if reg.find_scalar(&format!("sw:{j}")).is_none() {
+                let model = self.model;
+                let values = std::mem::take(&mut r.nominal_values);
+                let scope = Scope { model, values: &values };
+                let mut pass = Pass::new(Mode::Nominal, 0);
+                let mut scratch = Registry::default();
+                let mut ev = Evaluator {
+                    names: &scope,
+                    reg: &mut scratch,
+                    pass: &mut pass,
+                    stmt_key: format!("sw:{j}"),
+                    stmt_label: "sweep".into(),
+                    given: false,
+                    locals: Vec::new(),
+                    depth: 0,
+                    notes: Vec::new(),
+                };
+                return Some(match ev.eval(e) {
+                    Err(err) => Err(err),
+                    Ok(v) => Err(EvalError::new(
+                        DiagKind::TypeMismatch,
+                        &e.span,
+                        format!("a sweep shows numbers; this is {}", v.type_name()),
+                    )),
+                });
+            }
+        }
+        let mut passes = Passes::new(&mut r);
+        let bounds = analysis::analyse(&reg, &nominal, &mut passes)?;
+        let values = (0..exprs.len())
+            .map(|j| {
+                let id = reg.find_scalar(&format!("sw:{j}"))?;
+                let n = nominal.scalars.get(id).copied().flatten()?;
+                Some((n, bounds.get(id).cloned().flatten().map(|b| (b.min, b.max))))
+            })
+            .collect();
+        Some(Ok(SweepPoint { values }))
     }
 }

@@ -1,1 +1,172 @@
-//! Rendering of results data into text, HTML and JSON; shared by the kernel and the CLI (STUB).
+//! Rendering of results data into plain text, HTML and the results JSON.
+//!
+//! Shared by the kernel and the command line, so a worksheet run from the shell shows the very
+//! same outputs as in JupyterLab. Numbers arrive already formatted by the language (`text`,
+//! `range_text`, a check's `worst_text`/`limit_text`/`margin_text`); only the JSON carries raw SI
+//! numbers.
+
+mod html;
+mod json;
+mod text;
+
+use serde_json::{Map, Value};
+use worksheet_lang::diagnostic;
+use worksheet_lang::results::{CellReport, CheckRow, Shown, ValueRow};
+use worksheet_lang::units::Dim;
+
+/// MIME type of the results data, the same for the kernel and `headroom run --json`.
+pub const RESULTS_MIME: &str = "application/vnd.headroom.results+json";
+
+/// Shown wherever a worksheet holds a temperature hot enough to burn.
+pub const HOT_SURFACE_CAUTION: &str = "Caution: surfaces above about 60 °C burn on touch; \
+confirm with the part's datasheet and by measurement.";
+
+/// 60 °C in kelvin. The project's caution rule sets this threshold; touch-temperature limits in
+/// product safety standards for briefly touched metal parts are of this order (from memory).
+const HOT_SURFACE_K: f64 = 273.15 + 60.0;
+
+/// The display bundle of a cell's result block: `text/plain`, `text/html` and the results JSON.
+#[allow(dead_code)] // called by the kernel's execute handler
+pub fn bundle(report: &CellReport) -> Map<String, Value> {
+    let mut m = Map::new();
+    m.insert("text/plain".into(), Value::String(text(report)));
+    m.insert("text/html".into(), Value::String(html::report(report)));
+    m.insert(RESULTS_MIME.into(), results_json(&[report]));
+    m
+}
+
+/// The bundle of the bare-expression values of a cell (its `execute_result`), or `None` when
+/// the cell has none. With one value, `text/plain` is just its text and worst-case range.
+#[allow(dead_code)] // called by the kernel's execute handler
+pub fn shown_bundle(report: &CellReport) -> Option<Map<String, Value>> {
+    let plain = shown_text(report)?;
+    let mut m = Map::new();
+    m.insert("text/plain".into(), Value::String(plain));
+    m.insert("text/html".into(), Value::String(html::shown(&report.shown)));
+    m.insert(RESULTS_MIME.into(), json::results_of(&report.shown, &[], &[], &[]));
+    Some(m)
+}
+
+/// The plain text of the bare-expression values, or `None` when there are none.
+pub fn shown_text(report: &CellReport) -> Option<String> {
+    text::shown(&report.shown)
+}
+
+/// `(ename, evalue, traceback)` for the kernel's error reply, from the cell's error
+/// diagnostics; `None` when the cell has no error. `ename` is the first error's stable code;
+/// the traceback carries every error with its caret excerpt, the header line in red.
+#[allow(dead_code)] // called by the kernel's execute handler
+pub fn error_traceback(report: &CellReport) -> Option<(String, String, Vec<String>)> {
+    let errors: Vec<_> = report.diagnostics.iter().filter(|d| d.is_error()).collect();
+    let first = errors.first()?;
+    let mut traceback = Vec::new();
+    for (i, d) in errors.iter().enumerate() {
+        if i > 0 {
+            traceback.push(String::new());
+        }
+        let rendered = diagnostic::render(&report.source, d);
+        for (j, line) in rendered.lines().enumerate() {
+            if j == 0 {
+                traceback.push(format!("\x1b[1;31m{line}\x1b[0m"));
+            } else {
+                traceback.push(line.to_string());
+            }
+        }
+    }
+    Some((
+        first.kind.code().to_string(),
+        first.message.clone(),
+        traceback,
+    ))
+}
+
+/// The "results as data" object over one or more cells (version 1).
+pub fn results_json(reports: &[&CellReport]) -> Value {
+    json::results(reports)
+}
+
+/// The aligned plain-text result block of a cell: inputs, values, checks, warnings and,
+/// where it applies, the hot-surface caution. Empty when the cell has nothing to show.
+pub fn text(report: &CellReport) -> String {
+    text::report(report)
+}
+
+/// The caution to show with these results, if any: a value, shown value, check side or swept
+/// result that is an absolute temperature above about 60 °C at its nominal or worst case.
+pub fn caution(reports: &[&CellReport]) -> Option<&'static str> {
+    reports
+        .iter()
+        .any(|r| is_hot(r))
+        .then_some(HOT_SURFACE_CAUTION)
+}
+
+fn is_hot(r: &CellReport) -> bool {
+    let hot = |si: f64| si > HOT_SURFACE_K;
+    let hot_row = |v: &ValueRow| match &v.shown {
+        Shown::Number { value, bounds } => {
+            value.absolute
+                && value.dim == Dim::TEMPERATURE
+                && (hot(value.si) || bounds.as_ref().is_some_and(|b| hot(b.max)))
+        }
+        Shown::Text(_) | Shown::Other(_) => false,
+    };
+    // A temperature check whose limit is above 60 °C says the part is expected to run that
+    // hot, even while its computed side is still cool.
+    let hot_check =
+        |c: &CheckRow| c.absolute && c.dim == Dim::TEMPERATURE && (hot(c.worst) || hot(c.limit));
+    r.values.iter().any(hot_row)
+        || r.shown.iter().any(hot_row)
+        || r.checks.iter().any(hot_check)
+        || r.sweeps.iter().any(|s| {
+            s.series.iter().any(|se| {
+                se.absolute
+                    && se.dim == Dim::TEMPERATURE
+                    && se
+                        .nominal
+                        .iter()
+                        .chain(se.max.iter().flatten())
+                        .any(|&x| hot(x))
+            })
+        })
+}
+
+/// Splits a display text such as "79.4 °C" into its number and unit ("79.4", "°C") so the
+/// columns can align numbers right and units left. Texts without a space stay whole.
+fn split_number_unit(text: &str) -> (&str, &str) {
+    match text.split_once(' ') {
+        Some((num, unit)) if num.starts_with(|c: char| c.is_ascii_digit() || "+-−.".contains(c)) => {
+            (num, unit)
+        }
+        _ => (text, ""),
+    }
+}
+
+/// The margin text with its sign always written ("+34.0 K", "-14.0 W").
+fn signed_margin(c: &CheckRow) -> String {
+    let t = c.margin_text.trim();
+    if t.starts_with(['+', '-', '−']) {
+        t.to_string()
+    } else if c.margin < 0.0 {
+        format!("-{t}")
+    } else {
+        format!("+{t}")
+    }
+}
+
+/// One line per warning diagnostic (errors go to the traceback or stderr instead).
+fn diagnostic_warnings(r: &CellReport) -> Vec<String> {
+    r.diagnostics
+        .iter()
+        .filter(|d| !d.is_error())
+        .map(|d| {
+            let (line, _) = diagnostic::line_col(&r.source, d.span.start);
+            match &d.hint {
+                Some(h) => format!("line {line}: {} (hint: {h})", d.message),
+                None => format!("line {line}: {}", d.message),
+            }
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod tests;

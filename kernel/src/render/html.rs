@@ -1,0 +1,166 @@
+//! The HTML result block.
+//!
+//! Notebooks written by `headroom run` open untrusted, and JupyterLab then passes HTML through
+//! its sanitizer: no `<style>` or `<script>` survives, and each inline style declaration is kept
+//! only when its value passes a per-property pattern. Those patterns accept hex and `rgba()`
+//! colours, lengths and keywords, but not `var(…)`. So every coloured declaration comes twice:
+//! first a value the sanitizer keeps (mid-tone colours and translucent backgrounds that read on
+//! light and dark themes alike), then the JupyterLab theme variable, which wins where the HTML
+//! is trusted. Body text sets no colour at all and inherits the theme's.
+//! JupyterLab's own table rules right-align cells and centre tables, so every cell states its
+//! alignment and the table its margin.
+
+use super::{caution, diagnostic_warnings, signed_margin, split_number_unit};
+use html_escape::encode_text;
+use std::fmt::Write as _;
+use worksheet_lang::results::{CellReport, CheckRow, Shown, ValueRow};
+
+const BLOCK: &str = "margin: 2px 0; padding: 0";
+const TABLE: &str = "border-collapse: collapse; margin: 2px 0; border: none";
+const SECTION: &str = "text-align: left; font-weight: bold; padding: 6px 8px 2px 4px; \
+border-bottom: 1px solid rgba(128, 128, 128, 0.45); \
+border-bottom: 1px solid var(--jp-border-color1, rgba(128, 128, 128, 0.45))";
+const NAME: &str = "text-align: left; padding: 2px 8px 2px 4px; white-space: nowrap; \
+font-family: monospace; font-family: var(--jp-code-font-family, monospace)";
+const NUMBER: &str = "text-align: right; padding: 2px 0 2px 12px; white-space: nowrap";
+const UNIT: &str = "text-align: left; padding: 2px 12px 2px 4px; white-space: nowrap";
+const RANGE: &str = "text-align: left; padding: 2px 12px 2px 4px; white-space: nowrap";
+const NOTE: &str = "text-align: left; padding: 2px 4px; font-style: italic; opacity: 0.75";
+const PLAIN: &str = "text-align: left; padding: 2px 8px 2px 4px";
+const SOFT: &str = "opacity: 0.7";
+const PASS: &str = "text-align: left; padding: 2px 8px 2px 4px; white-space: nowrap; \
+font-weight: bold; color: #2e8b57; color: var(--jp-success-color1, #2e8b57)";
+const FAIL: &str = "text-align: left; padding: 2px 8px 2px 4px; white-space: nowrap; \
+font-weight: bold; color: #d9443a; color: var(--jp-error-color1, #d9443a)";
+const FAIL_ROW: &str = "background: rgba(217, 68, 58, 0.10)";
+const WARNINGS: &str = "margin: 6px 0 2px 0; padding: 4px 8px; \
+border-left: 3px solid #d08c00; border-left: 3px solid var(--jp-warn-color1, #d08c00); \
+background: rgba(208, 140, 0, 0.10)";
+const CAUTION: &str = "margin: 6px 0 2px 0; padding: 4px 8px; font-weight: bold; \
+border-left: 3px solid #d9443a; border-left: 3px solid var(--jp-error-color1, #d9443a); \
+background: rgba(217, 68, 58, 0.08)";
+const LIST: &str = "margin: 2px 0; padding-left: 18px";
+
+/// Text escaped for element content.
+fn esc(s: &str) -> String {
+    encode_text(s).into_owned()
+}
+
+fn section(out: &mut String, title: &str, span: usize) {
+    let _ = write!(
+        out,
+        r#"<tr><th colspan="{span}" style="{SECTION}">{}</th></tr>"#,
+        esc(title)
+    );
+}
+
+fn value_row(out: &mut String, v: &ValueRow) {
+    out.push_str("<tr>");
+    let _ = write!(out, r#"<td style="{NAME}">{}</td>"#, esc(&v.name));
+    match &v.shown {
+        Shown::Number { bounds, .. } => {
+            let (n, u) = split_number_unit(&v.text);
+            let _ = write!(
+                out,
+                r#"<td style="{NUMBER}">{}</td><td style="{UNIT}">{}</td>"#,
+                esc(n),
+                esc(u)
+            );
+            let range = v.range_text.as_deref().unwrap_or("");
+            let conservative = if bounds.as_ref().is_some_and(|b| b.conservative) && !range.is_empty() {
+                format!(
+                    r#" <span style="{SOFT}" title="guaranteed to enclose the worst case, perhaps wider">(conservative)</span>"#
+                )
+            } else {
+                String::new()
+            };
+            let _ = write!(out, r#"<td style="{RANGE}">{}{conservative}</td>"#, esc(range));
+        }
+        Shown::Text(_) | Shown::Other(_) => {
+            let _ = write!(out, r#"<td colspan="3" style="{PLAIN}">{}</td>"#, esc(&v.text));
+        }
+    }
+    let _ = write!(out, r#"<td style="{NOTE}">{}</td>"#, esc(&v.note));
+    out.push_str("</tr>");
+}
+
+fn check_row(out: &mut String, c: &CheckRow) {
+    if c.passed {
+        out.push_str("<tr>");
+        let _ = write!(out, r#"<td style="{PASS}">✓ pass</td>"#);
+    } else {
+        let _ = write!(out, r#"<tr style="{FAIL_ROW}">"#);
+        let _ = write!(out, r#"<td style="{FAIL}">✗ FAIL</td>"#);
+    }
+    let margin = signed_margin(c);
+    let (n, u) = split_number_unit(&margin);
+    let _ = write!(
+        out,
+        r#"<td style="{NAME}">{}</td><td style="{NUMBER}">{}</td><td style="{UNIT}">{}</td>"#,
+        esc(&c.text),
+        esc(n),
+        esc(u)
+    );
+    let conservative = if c.conservative { " (conservative)" } else { "" };
+    let _ = write!(
+        out,
+        r#"<td style="{RANGE}"><span style="{SOFT}">worst</span> {} <span style="{SOFT}">limit</span> {}{conservative}</td>"#,
+        esc(&c.worst_text),
+        esc(&c.limit_text)
+    );
+    let _ = write!(out, r#"<td style="{NOTE}">{}</td>"#, esc(&c.note));
+    out.push_str("</tr>");
+}
+
+pub(super) fn report(r: &CellReport) -> String {
+    let mut out = format!(r#"<div style="{BLOCK}">"#);
+    let inputs: Vec<&ValueRow> = r.values.iter().filter(|v| v.given).collect();
+    let derived: Vec<&ValueRow> = r.values.iter().filter(|v| !v.given).collect();
+    if !r.values.is_empty() {
+        let _ = write!(out, r#"<table style="{TABLE}"><tbody>"#);
+        if !inputs.is_empty() {
+            section(&mut out, "Inputs", 5);
+            inputs.iter().for_each(|v| value_row(&mut out, v));
+        }
+        if !derived.is_empty() {
+            section(&mut out, "Values", 5);
+            derived.iter().for_each(|v| value_row(&mut out, v));
+        }
+        out.push_str("</tbody></table>");
+    }
+    if !r.checks.is_empty() {
+        let _ = write!(out, r#"<table style="{TABLE}"><tbody>"#);
+        section(&mut out, "Checks", 6);
+        r.checks.iter().for_each(|c| check_row(&mut out, c));
+        out.push_str("</tbody></table>");
+    }
+    let mut warnings: Vec<String> = r
+        .warnings
+        .iter()
+        .map(|w| format!("<b>{}</b>: {}", esc(&w.source), esc(&w.text)))
+        .collect();
+    warnings.extend(diagnostic_warnings(r).iter().map(|w| esc(w)));
+    if !warnings.is_empty() {
+        let _ = write!(
+            out,
+            r#"<div style="{WARNINGS}"><div style="font-weight: bold">Warnings</div><ul style="{LIST}">"#
+        );
+        for w in &warnings {
+            let _ = write!(out, "<li>{w}</li>");
+        }
+        out.push_str("</ul></div>");
+    }
+    if let Some(c) = caution(&[r]) {
+        let _ = write!(out, r#"<div style="{CAUTION}">{}</div>"#, esc(c));
+    }
+    out.push_str("</div>");
+    out
+}
+
+/// The bare-expression values as a small table without section headers.
+pub(super) fn shown(rows: &[ValueRow]) -> String {
+    let mut out = format!(r#"<table style="{TABLE}"><tbody>"#);
+    rows.iter().for_each(|v| value_row(&mut out, v));
+    out.push_str("</tbody></table>");
+    out
+}

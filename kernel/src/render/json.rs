@@ -1,0 +1,241 @@
+//! The results data (`application/vnd.headroom.results+json`, `headroom run --json`), version 1.
+//!
+//! Numbers are in the coherent SI unit named by `unit`; absolute temperatures in kelvin with
+//! `absolute: true`. A value shown as text (a list, a word) has only `name`, `text`, `given`
+//! and `note`. A sweep also says whether its swept points are absolute temperatures.
+
+use serde_json::{json, Map, Value};
+use std::collections::BTreeSet;
+use worksheet_lang::results::{CellReport, CheckRow, Shown, SweepTable, ValueRow, WarningRow};
+use worksheet_lang::units::Dim;
+
+/// Most points a sweep's data holds.
+pub(super) const MAX_SWEEP_POINTS: usize = 1000;
+
+pub(super) fn results(reports: &[&CellReport]) -> Value {
+    let values: Vec<ValueRow> = reports.iter().flat_map(|r| r.values.clone()).collect();
+    let checks: Vec<CheckRow> = reports.iter().flat_map(|r| r.checks.clone()).collect();
+    let warnings: Vec<WarningRow> = reports.iter().flat_map(|r| r.warnings.clone()).collect();
+    let sweeps: Vec<SweepTable> = reports.iter().flat_map(|r| r.sweeps.clone()).collect();
+    results_of(&values, &checks, &warnings, &sweeps)
+}
+
+pub(super) fn results_of(
+    values: &[ValueRow],
+    checks: &[CheckRow],
+    warnings: &[WarningRow],
+    sweeps: &[SweepTable],
+) -> Value {
+    json!({
+        "version": 1,
+        "values": values.iter().map(value).collect::<Vec<_>>(),
+        "checks": checks.iter().map(check).collect::<Vec<_>>(),
+        "warnings": warnings
+            .iter()
+            .map(|w| json!({ "source": w.source, "text": w.text }))
+            .collect::<Vec<_>>(),
+        "sweeps": sweeps.iter().map(sweep).collect::<Vec<_>>(),
+    })
+}
+
+/// A JSON number. The language turns every NaN or infinity into a domain error before it
+/// reaches a result, so a non-finite number here is a bug upstream; JSON cannot carry one.
+fn num(x: f64) -> Value {
+    debug_assert!(x.is_finite(), "non-finite number {x} in results data");
+    serde_json::Number::from_f64(x).map_or(Value::Null, Value::Number)
+}
+
+fn nums(xs: &[f64]) -> Value {
+    Value::Array(xs.iter().copied().map(num).collect())
+}
+
+fn value(v: &ValueRow) -> Value {
+    let mut m = Map::new();
+    m.insert("name".into(), json!(v.name));
+    if let Shown::Number { value, bounds } = &v.shown {
+        m.insert("si".into(), num(value.si));
+        m.insert("unit".into(), json!(unit_symbol(value.dim)));
+        m.insert("absolute".into(), json!(value.absolute));
+        m.insert("text".into(), json!(v.text));
+        if let Some(b) = bounds {
+            m.insert("min".into(), num(b.min));
+            m.insert("max".into(), num(b.max));
+        }
+        m.insert(
+            "conservative".into(),
+            json!(bounds.as_ref().is_some_and(|b| b.conservative)),
+        );
+    } else {
+        m.insert("text".into(), json!(v.text));
+    }
+    m.insert("given".into(), json!(v.given));
+    m.insert("note".into(), json!(v.note));
+    Value::Object(m)
+}
+
+fn check(c: &CheckRow) -> Value {
+    json!({
+        "text": c.text,
+        "passed": c.passed,
+        "worst": num(c.worst),
+        "limit": num(c.limit),
+        "absolute": c.absolute,
+        "margin": num(c.margin),
+        "unit": unit_symbol(c.dim),
+    })
+}
+
+fn sweep(s: &SweepTable) -> Value {
+    let keep = decimate(s);
+    let pick = |xs: &[f64]| -> Vec<f64> { keep.iter().filter_map(|&i| xs.get(i).copied()).collect() };
+    let series: Vec<Value> = s
+        .series
+        .iter()
+        .map(|se| {
+            let mut m = Map::new();
+            m.insert("name".into(), json!(se.name));
+            m.insert("unit".into(), json!(unit_symbol(se.dim)));
+            m.insert("absolute".into(), json!(se.absolute));
+            m.insert("nominal".into(), nums(&pick(&se.nominal)));
+            if let Some(min) = &se.min {
+                m.insert("min".into(), nums(&pick(min)));
+            }
+            if let Some(max) = &se.max {
+                m.insert("max".into(), nums(&pick(max)));
+            }
+            Value::Object(m)
+        })
+        .collect();
+    json!({
+        "over": s.over,
+        "unit": unit_symbol(s.dim),
+        "absolute": s.absolute,
+        "points": nums(&pick(&s.points)),
+        "series": series,
+    })
+}
+
+/// Indices of the sweep points the data keeps: all of them up to `MAX_SWEEP_POINTS`, else
+/// the first, the last and every series' extremes, filled up with evenly spaced points.
+pub(super) fn decimate(s: &SweepTable) -> Vec<usize> {
+    let n = s.points.len();
+    if n <= MAX_SWEEP_POINTS {
+        return (0..n).collect();
+    }
+    let mut extremes = BTreeSet::from([0, n - 1]);
+    let arrays = s.series.iter().flat_map(|se| {
+        std::iter::once(&se.nominal)
+            .chain(se.min.as_ref())
+            .chain(se.max.as_ref())
+    });
+    for xs in arrays {
+        let by = |better: fn(f64, f64) -> bool| {
+            xs.iter()
+                .take(n)
+                .enumerate()
+                .fold(None::<(usize, f64)>, |best, (i, &x)| match best {
+                    Some((_, b)) if !better(x, b) => best,
+                    _ => Some((i, x)),
+                })
+                .map(|(i, _)| i)
+        };
+        extremes.extend(by(|x, b| x < b));
+        extremes.extend(by(|x, b| x > b));
+    }
+    if extremes.len() >= MAX_SWEEP_POINTS {
+        return extremes.into_iter().take(MAX_SWEEP_POINTS).collect();
+    }
+    // Evenly spaced points including the first and last (already among the extremes), so the
+    // union holds at most MAX_SWEEP_POINTS. With n > MAX_SWEEP_POINTS the steps are ≥ 1.
+    let even = MAX_SWEEP_POINTS - extremes.len() + 2;
+    let mut keep = extremes;
+    keep.extend((0..even).map(|k| k * (n - 1) / (even - 1)));
+    keep.into_iter().collect()
+}
+
+/// The coherent SI unit of a dimension as written in the data: "V", "K/W", "1" for a pure
+/// number. Named units first, then a quotient or product of two named units ("V/K"), else
+/// the SI base units ("kg·m^2/(s^3·A)").
+pub(super) fn unit_symbol(dim: Dim) -> String {
+    const NAMED: &[(Dim, &str)] = &[
+        (Dim::NONE, "1"),
+        (Dim::VOLTAGE, "V"),
+        (Dim::CURRENT, "A"),
+        (Dim::POWER, "W"),
+        (Dim::RESISTANCE, "Ω"),
+        (Dim::TEMPERATURE, "K"),
+        (Dim::THERMAL_RESISTANCE, "K/W"),
+        (Dim::CAPACITANCE, "F"),
+        (Dim::CHARGE, "C"),
+        (Dim::ENERGY, "J"),
+        (Dim::TIME, "s"),
+        (Dim::LENGTH, "m"),
+        (Dim([2, 1, -2, -2, 0, 0, 0]), "H"),
+        (Dim([0, 0, -1, 0, 0, 0, 0]), "Hz"),
+        (Dim([-2, -1, 3, 2, 0, 0, 0]), "S"),
+        (Dim([0, 1, 0, 0, 0, 0, 0]), "kg"),
+    ];
+    let named = |d: Dim| NAMED.iter().find(|(nd, _)| *nd == d).map(|(_, s)| *s);
+    if let Some(s) = named(dim) {
+        return s.to_string();
+    }
+    // Pairs from the named units that are themselves single symbols (not "1" or "K/W").
+    let simple = || NAMED.iter().filter(|(d, s)| !d.is_none() && !s.contains('/'));
+    for (a, sa) in simple() {
+        for (b, sb) in simple() {
+            if a.div(*b) == dim {
+                return format!("{sa}/{sb}");
+            }
+        }
+    }
+    for (a, sa) in simple() {
+        // A square is written with its exponent by the base-unit form ("m^2").
+        for (b, sb) in simple().filter(|(b, _)| b != a) {
+            if a.mul(*b) == dim {
+                return format!("{sa}·{sb}");
+            }
+        }
+    }
+    base_units(dim)
+}
+
+fn base_units(dim: Dim) -> String {
+    // Index into Dim's L, M, T, I, Θ, N, J, written mass first as is usual.
+    const ORDER: [(usize, &str); 7] = [
+        (1, "kg"),
+        (0, "m"),
+        (2, "s"),
+        (3, "A"),
+        (4, "K"),
+        (5, "mol"),
+        (6, "cd"),
+    ];
+    let power = |sym: &str, e: i8| {
+        let e = i16::from(e).abs();
+        if e == 1 {
+            sym.to_string()
+        } else {
+            format!("{sym}^{e}")
+        }
+    };
+    let num: Vec<String> = ORDER
+        .iter()
+        .filter(|(i, _)| dim.0[*i] > 0)
+        .map(|(i, s)| power(s, dim.0[*i]))
+        .collect();
+    let den: Vec<String> = ORDER
+        .iter()
+        .filter(|(i, _)| dim.0[*i] < 0)
+        .map(|(i, s)| power(s, dim.0[*i]))
+        .collect();
+    let top = if num.is_empty() {
+        "1".to_string()
+    } else {
+        num.join("·")
+    };
+    match den.len() {
+        0 => top,
+        1 => format!("{top}/{}", den[0]),
+        _ => format!("{top}/({})", den.join("·")),
+    }
+}

@@ -1,0 +1,219 @@
+//! The plain-text result block: aligned columns for consoles and `headroom run`.
+
+use super::{caution, diagnostic_warnings, signed_margin, split_number_unit};
+use unicode_width::UnicodeWidthStr;
+use worksheet_lang::results::{CellReport, CheckRow, Shown, ValueRow};
+
+const INDENT: &str = "  ";
+const PASS: &str = "✓ pass";
+const FAIL: &str = "✗ FAIL";
+
+#[derive(Clone, Copy)]
+enum Align {
+    Left,
+    Right,
+}
+
+/// Rows of cells laid out in columns. `gaps[i]` is written before column `i` (ignored for the
+/// first); a column that is empty in every row is left out with its gap.
+struct Grid {
+    align: &'static [Align],
+    gaps: &'static [&'static str],
+    rows: Vec<Vec<String>>,
+}
+
+impl Grid {
+    fn lines(&self) -> Vec<String> {
+        let ncol = self.align.len();
+        let mut widths = vec![0usize; ncol];
+        for row in &self.rows {
+            for (w, cell) in widths.iter_mut().zip(row) {
+                *w = (*w).max(cell.width());
+            }
+        }
+        self.rows
+            .iter()
+            .map(|row| {
+                let mut line = String::from(INDENT);
+                let mut first = true;
+                for (i, cell) in row.iter().enumerate().take(ncol) {
+                    if widths[i] == 0 {
+                        continue;
+                    }
+                    if !first {
+                        line.push_str(self.gaps[i]);
+                    }
+                    first = false;
+                    let pad = " ".repeat(widths[i] - cell.width());
+                    match self.align[i] {
+                        Align::Left => {
+                            line.push_str(cell);
+                            line.push_str(&pad);
+                        }
+                        Align::Right => {
+                            line.push_str(&pad);
+                            line.push_str(cell);
+                        }
+                    }
+                }
+                line.trim_end().to_string()
+            })
+            .collect()
+    }
+}
+
+/// Notes and messages are one line in a table.
+fn one_line(s: &str) -> String {
+    s.split_whitespace().collect::<Vec<_>>().join(" ")
+}
+
+const VALUE_ALIGN: &[Align] = &[
+    Align::Left,
+    Align::Right,
+    Align::Left,
+    Align::Left,
+    Align::Left,
+];
+const VALUE_GAPS: &[&str] = &["", "  ", " ", "   ", "   "];
+
+fn value_cells(v: &ValueRow) -> Vec<String> {
+    let (number, unit, range) = match &v.shown {
+        Shown::Number { bounds, .. } => {
+            let (n, u) = split_number_unit(&v.text);
+            let mut range = v.range_text.clone().unwrap_or_default();
+            if bounds.as_ref().is_some_and(|b| b.conservative) && !range.is_empty() {
+                range.push_str(" (conservative)");
+            }
+            (n.to_string(), u.to_string(), range)
+        }
+        Shown::Text(_) | Shown::Other(_) => (v.text.clone(), String::new(), String::new()),
+    };
+    vec![one_line(&v.name), number, unit, range, one_line(&v.note)]
+}
+
+const CHECK_ALIGN: &[Align] = &[
+    Align::Left,
+    Align::Left,
+    Align::Left,
+    Align::Right,
+    Align::Left,
+    Align::Left,
+    Align::Left,
+];
+const CHECK_GAPS: &[&str] = &["", "  ", "   ", " ", " ", "   ", "   "];
+
+fn check_cells(c: &CheckRow) -> Vec<String> {
+    let margin = signed_margin(c);
+    let (n, u) = split_number_unit(&margin);
+    let mut detail = format!("worst {}, limit {}", c.worst_text, c.limit_text);
+    if c.conservative {
+        detail.push_str(" (conservative)");
+    }
+    vec![
+        if c.passed { PASS } else { FAIL }.to_string(),
+        one_line(&c.text),
+        "margin".to_string(),
+        n.to_string(),
+        u.to_string(),
+        detail,
+        one_line(&c.note),
+    ]
+}
+
+pub(super) fn report(r: &CellReport) -> String {
+    let mut sections: Vec<String> = Vec::new();
+
+    let inputs: Vec<&ValueRow> = r.values.iter().filter(|v| v.given).collect();
+    let derived: Vec<&ValueRow> = r.values.iter().filter(|v| !v.given).collect();
+    // One grid for both, so inputs and values share their columns.
+    let grid = Grid {
+        align: VALUE_ALIGN,
+        gaps: VALUE_GAPS,
+        rows: inputs
+            .iter()
+            .chain(&derived)
+            .map(|v| value_cells(v))
+            .collect(),
+    };
+    let mut lines = grid.lines().into_iter();
+    if !inputs.is_empty() {
+        let body: Vec<String> = lines.by_ref().take(inputs.len()).collect();
+        sections.push(format!("Inputs\n{}", body.join("\n")));
+    }
+    if !derived.is_empty() {
+        let body: Vec<String> = lines.collect();
+        sections.push(format!("Values\n{}", body.join("\n")));
+    }
+
+    if !r.checks.is_empty() {
+        let grid = Grid {
+            align: CHECK_ALIGN,
+            gaps: CHECK_GAPS,
+            rows: r.checks.iter().map(check_cells).collect(),
+        };
+        sections.push(format!("Checks\n{}", grid.lines().join("\n")));
+    }
+
+    if !r.sweeps.is_empty() {
+        let lines: Vec<String> = r
+            .sweeps
+            .iter()
+            .map(|s| {
+                let names: Vec<&str> = s.series.iter().map(|se| se.name.as_str()).collect();
+                format!(
+                    "{INDENT}over {} ({} points): {}",
+                    s.over,
+                    s.points.len(),
+                    names.join(", ")
+                )
+            })
+            .collect();
+        sections.push(format!("Sweeps\n{}", lines.join("\n")));
+    }
+
+    let mut warnings: Vec<String> = r
+        .warnings
+        .iter()
+        .map(|w| format!("{INDENT}! {}: {}", one_line(&w.source), one_line(&w.text)))
+        .collect();
+    warnings.extend(
+        diagnostic_warnings(r)
+            .iter()
+            .map(|w| format!("{INDENT}! {}", one_line(w))),
+    );
+    if !warnings.is_empty() {
+        sections.push(format!("Warnings\n{}", warnings.join("\n")));
+    }
+
+    if let Some(c) = caution(&[r]) {
+        sections.push(c.to_string());
+    }
+    sections.join("\n\n")
+}
+
+/// The bare-expression values: one alone is just "6.00 V" (with " (5.70 V … 6.30 V)" when
+/// uncertain); several are an aligned table with their expressions.
+pub(super) fn shown(rows: &[ValueRow]) -> Option<String> {
+    match rows {
+        [] => None,
+        [v] => Some(match &v.range_text {
+            Some(range) if matches!(v.shown, Shown::Number { .. }) => {
+                format!("{} ({range})", v.text)
+            }
+            _ => v.text.clone(),
+        }),
+        _ => {
+            let grid = Grid {
+                align: VALUE_ALIGN,
+                gaps: VALUE_GAPS,
+                rows: rows.iter().map(value_cells).collect(),
+            };
+            let lines: Vec<String> = grid
+                .lines()
+                .into_iter()
+                .map(|l| l.strip_prefix(INDENT).unwrap_or(&l).to_string())
+                .collect();
+            Some(lines.join("\n"))
+        }
+    }
+}

@@ -1,0 +1,251 @@
+//! Jupyter wire messages: the multipart frames, their signature, and the JSON parts.
+//!
+//! Incoming frames are split and verified by `jupyter_zmq_client::RawMessage::from_multipart`
+//! (HMAC-SHA256 checked in constant time by `ring`). We stop there and parse the four JSON
+//! parts ourselves: the crate's own conversion to `JupyterMessage` rejects execute requests
+//! that omit `silent`/`store_history`, and re-serialising its parsed header would change the
+//! parent header we must echo back byte for byte in meaning (its dates gain nine digits).
+//!
+//! Outgoing frames are written here: the crate's sending path is private and serialises
+//! through `jupyter-protocol`, which writes `null` where the schema wants `{}`, nine
+//! fractional digits in dates (Python clients parse six), protocol version 5.3 and the
+//! username "runtimelib". Signing uses the same `ring` key the verification uses.
+
+use bytes::Bytes;
+use jupyter_zmq_client::RawMessage;
+use ring::hmac;
+use serde::Serialize;
+use serde_json::{json, Map, Value};
+use zeromq::ZmqMessage;
+
+/// The protocol version this kernel speaks.
+pub(crate) const PROTOCOL_VERSION: &str = "5.4";
+
+const DELIMITER: &[u8] = b"<IDS|MSG>";
+
+/// A request as received, verified and parsed.
+#[derive(Debug, Clone)]
+pub(crate) struct Incoming {
+    /// Routing frames (the ROUTER socket puts the peer's identity first).
+    pub identities: Vec<Bytes>,
+    /// The header exactly as sent: it becomes the parent header of every message we send
+    /// in response.
+    pub header: Value,
+    pub msg_type: String,
+    pub metadata: Value,
+    pub content: Value,
+}
+
+impl Incoming {
+    pub fn msg_id(&self) -> &str {
+        self.header.get("msg_id").and_then(Value::as_str).unwrap_or("")
+    }
+}
+
+#[derive(Debug, thiserror::Error)]
+pub(crate) enum WireError {
+    #[error("bad framing or signature: {0}")]
+    Frames(#[from] jupyter_zmq_client::RuntimeError),
+    #[error("the {part} part is not a JSON object: {detail}")]
+    Json { part: &'static str, detail: String },
+    #[error("the header has no msg_type")]
+    NoMsgType,
+}
+
+/// Splits, verifies and parses one multipart message. A message that fails here must be
+/// dropped without being acted on.
+pub(crate) fn decode(frames: ZmqMessage, key: &Option<hmac::Key>) -> Result<Incoming, WireError> {
+    let raw = RawMessage::from_multipart(frames, key)?;
+    let object = |i: usize, part: &'static str| -> Result<Value, WireError> {
+        let v: Value = serde_json::from_slice(&raw.jparts[i]).map_err(|e| WireError::Json {
+            part,
+            detail: e.to_string(),
+        })?;
+        if v.is_object() {
+            Ok(v)
+        } else {
+            Err(WireError::Json {
+                part,
+                detail: "not an object".into(),
+            })
+        }
+    };
+    let header = object(0, "header")?;
+    let metadata = object(2, "metadata")?;
+    let content = object(3, "content")?;
+    let msg_type = header
+        .get("msg_type")
+        .and_then(Value::as_str)
+        .ok_or(WireError::NoMsgType)?
+        .to_string();
+    Ok(Incoming {
+        identities: raw.zmq_identities,
+        header,
+        msg_type,
+        metadata,
+        content,
+    })
+}
+
+/// The kernel's side of a session: its id, its key, and how it writes messages.
+pub(crate) struct Session {
+    pub id: String,
+    key: Option<hmac::Key>,
+}
+
+impl Session {
+    pub fn new(key: Option<hmac::Key>) -> Self {
+        Session {
+            id: uuid::Uuid::new_v4().to_string(),
+            key,
+        }
+    }
+
+    /// Frames one message. `identities` route a reply back through a ROUTER socket; iopub
+    /// messages pass a topic instead.
+    pub fn encode(
+        &self,
+        identities: &[Bytes],
+        msg_type: &str,
+        parent: Option<&Value>,
+        content: &Value,
+    ) -> ZmqMessage {
+        let header = json!({
+            "msg_id": uuid::Uuid::new_v4().to_string(),
+            "username": "headroom",
+            "session": self.id,
+            "date": now_iso8601(),
+            "msg_type": msg_type,
+            "version": PROTOCOL_VERSION,
+        });
+        let empty = Value::Object(Map::new());
+        let parts = [
+            to_bytes(&header),
+            to_bytes(parent.unwrap_or(&empty)),
+            to_bytes(&empty),
+            to_bytes(content),
+        ];
+        let signature = self.sign(&parts);
+        let mut frames: Vec<Bytes> = identities.to_vec();
+        frames.push(Bytes::from_static(DELIMITER));
+        frames.push(Bytes::from(signature));
+        frames.extend(parts);
+        // Never empty: the delimiter is always there.
+        ZmqMessage::try_from(frames).unwrap_or_else(|_| ZmqMessage::from(DELIMITER.to_vec()))
+    }
+
+    /// Hex HMAC-SHA256 over header, parent header, metadata and content; empty without a key.
+    fn sign(&self, parts: &[Bytes; 4]) -> String {
+        let Some(key) = &self.key else {
+            return String::new();
+        };
+        let mut ctx = hmac::Context::with_key(key);
+        for p in parts {
+            ctx.update(p);
+        }
+        hex(ctx.sign().as_ref())
+    }
+}
+
+fn to_bytes(v: &Value) -> Bytes {
+    // Serialising a `Value` cannot fail (its map keys are strings).
+    Bytes::from(serde_json::to_vec(v).unwrap_or_default())
+}
+
+fn hex(bytes: &[u8]) -> String {
+    use std::fmt::Write;
+    let mut s = String::with_capacity(bytes.len() * 2);
+    for b in bytes {
+        let _ = write!(s, "{b:02x}");
+    }
+    s
+}
+
+/// ISO 8601 in UTC with exactly six fractional digits, as Python's `datetime.isoformat`
+/// writes and `jupyter_client` reads.
+pub(crate) fn now_iso8601() -> String {
+    let since = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .unwrap_or_default();
+    iso8601(since)
+}
+
+fn iso8601(since_epoch: std::time::Duration) -> String {
+    let secs = i64::try_from(since_epoch.as_secs()).unwrap_or(0);
+    match chrono::DateTime::from_timestamp(secs, since_epoch.subsec_nanos()) {
+        Some(t) => t.format("%Y-%m-%dT%H:%M:%S%.6fZ").to_string(),
+        None => "1970-01-01T00:00:00.000000Z".to_string(),
+    }
+}
+
+/// Serialises a `jupyter-protocol` content type, then replaces the `null`s it writes for
+/// absent optional objects with the `{}` the message schema asks for.
+pub(crate) fn content<T: Serialize>(value: &T, objects: &[&str]) -> Value {
+    let mut v = serde_json::to_value(value).unwrap_or_else(|_| Value::Object(Map::new()));
+    if let Some(map) = v.as_object_mut() {
+        for key in objects {
+            if map.get(*key).is_none_or(Value::is_null) {
+                map.insert((*key).to_string(), Value::Object(Map::new()));
+            }
+        }
+    }
+    v
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::time::Duration;
+
+    #[test]
+    fn dates_have_six_fractional_digits() {
+        // 1_700_000_000 s after the epoch is 2023-11-14T22:13:20Z (POSIX time; checked with
+        // `date -u -d @1700000000`).
+        let t = iso8601(Duration::new(1_700_000_000, 123_456_789));
+        assert_eq!(t, "2023-11-14T22:13:20.123456Z");
+        let t = iso8601(Duration::new(1_700_000_000, 0));
+        assert_eq!(t, "2023-11-14T22:13:20.000000Z");
+    }
+
+    #[test]
+    fn signature_is_hmac_sha256_of_the_four_parts() {
+        // RFC 4231 test case 2: key "Jefe", data "what do ya want for nothing?".
+        let s = Session::new(Some(hmac::Key::new(hmac::HMAC_SHA256, b"Jefe")));
+        let parts = [
+            Bytes::from_static(b"what do "),
+            Bytes::from_static(b"ya want "),
+            Bytes::from_static(b"for "),
+            Bytes::from_static(b"nothing?"),
+        ];
+        assert_eq!(
+            s.sign(&parts),
+            "5bdcc146bf60754e6a042426089575c75a003f089d2739839dec58b964ec3843"
+        );
+        assert_eq!(Session::new(None).sign(&parts), "");
+    }
+
+    #[test]
+    fn encoded_messages_verify_and_decode() {
+        let key = Some(hmac::Key::new(hmac::HMAC_SHA256, b"k"));
+        let s = Session::new(key.clone());
+        let parent = json!({"msg_id": "p1", "msg_type": "kernel_info_request"});
+        let id = [Bytes::from_static(b"peer")];
+        let frames = s.encode(&id, "kernel_info_reply", Some(&parent), &json!({"status": "ok"}));
+        let m = decode(frames.clone(), &key).expect("our own message verifies");
+        assert_eq!(m.msg_type, "kernel_info_reply");
+        assert_eq!(m.identities, id.to_vec());
+        assert_eq!(m.header["version"], PROTOCOL_VERSION);
+        assert_eq!(m.header["session"], s.id.as_str());
+        // A different key must not verify.
+        let other = Some(hmac::Key::new(hmac::HMAC_SHA256, b"other"));
+        assert!(decode(frames, &other).is_err());
+    }
+
+    #[test]
+    fn null_objects_become_empty_objects() {
+        let reply = jupyter_protocol::ExecuteReply::default();
+        let v = content(&reply, &["user_expressions"]);
+        assert_eq!(v["user_expressions"], json!({}));
+        assert_eq!(v["status"], "ok");
+    }
+}

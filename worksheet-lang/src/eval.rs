@@ -1,0 +1,1206 @@
+//! Evaluation of expressions in one pass of the worst-case analysis.
+//!
+//! A *pass* evaluates every definition, check and shown expression of the worksheet under
+//! one assignment of the uncertain inputs (see `analysis`). The nominal pass discovers the
+//! inputs (each tolerance, range or `tol` site, each chosen part) and the scalars to be
+//! analysed; every later pass walks the same code and looks them up.
+
+use crate::ast::{Arg, BinOp, CodeKind, Expr, ExprKind, Span};
+use crate::builtins::{self, CallCtx, CallError, CallHost, WarnRule};
+use crate::diagnostic::{DiagKind, Diagnostic};
+use crate::num::{Dual, Interval};
+use crate::units::{self, Dim};
+use crate::value::{Num, Record, Value};
+use std::collections::HashMap;
+use std::sync::Arc;
+
+/// Deepest nesting of user-function calls.
+pub const MAX_CALL_DEPTH: usize = 32;
+/// Longest list a worksheet may build.
+pub const MAX_LIST_LEN: usize = 10_000;
+
+/// An evaluation error, turned into a diagnostic at the statement that met it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EvalError {
+    pub kind: DiagKind,
+    pub span: Span,
+    pub message: String,
+    pub hint: Option<String>,
+}
+
+impl EvalError {
+    pub fn new(kind: DiagKind, span: &Span, message: impl Into<String>) -> Self {
+        EvalError {
+            kind,
+            span: span.clone(),
+            message: message.into(),
+            hint: None,
+        }
+    }
+    pub fn hint(mut self, h: impl Into<String>) -> Self {
+        self.hint = Some(h.into());
+        self
+    }
+    pub fn into_diagnostic(self) -> Diagnostic {
+        let mut d = Diagnostic::error(self.kind, self.span, self.message);
+        d.hint = self.hint;
+        d
+    }
+}
+
+type R<T> = Result<T, EvalError>;
+
+/// One uncertain input of the worksheet: a perturbation variable with its range.
+#[derive(Debug, Clone, PartialEq)]
+pub struct InputInfo {
+    pub key: String,
+    /// Who it belongs to, for shares and corner descriptions ("vin", "tolerance of R7").
+    pub label: String,
+    pub nominal: f64,
+    pub lo: f64,
+    pub hi: f64,
+}
+
+/// A probed value whose worst case decides a warning.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ProbeInfo {
+    pub scalar: usize,
+    /// The statement it belongs to (for the warning's source).
+    pub source: String,
+    /// The key of that statement.
+    pub stmt: String,
+    pub rule: WarnRule,
+}
+
+/// What the nominal pass discovers, shared by every later pass.
+#[derive(Debug, Default, Clone)]
+pub struct Registry {
+    pub inputs: Vec<InputInfo>,
+    input_index: HashMap<String, usize>,
+    /// The scalar each input's site produces (its value, for describing corners).
+    pub input_scalars: Vec<usize>,
+    pub scalar_keys: Vec<String>,
+    scalar_index: HashMap<String, usize>,
+    choices: HashMap<String, f64>,
+    pub probes: Vec<ProbeInfo>,
+    /// Unconditional warnings of built-ins: (statement label, statement key, text).
+    pub warnings: Vec<(String, String, String)>,
+}
+
+impl Registry {
+    pub fn scalar_id(&mut self, key: &str) -> usize {
+        if let Some(&i) = self.scalar_index.get(key) {
+            return i;
+        }
+        let i = self.scalar_keys.len();
+        self.scalar_keys.push(key.to_string());
+        self.scalar_index.insert(key.to_string(), i);
+        i
+    }
+    pub fn find_scalar(&self, key: &str) -> Option<usize> {
+        self.scalar_index.get(key).copied()
+    }
+}
+
+/// How the inputs are set in a pass.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Mode {
+    /// Every input at its nominal point; inputs, scalars and choices are registered.
+    Nominal,
+    /// Every input over its range; the derivative of input `seed` is carried (if any).
+    Box { seed: Option<usize> },
+    /// Each input at the given interval (points for corners).
+    Assign(Vec<Interval>),
+}
+
+/// The values of one pass.
+#[derive(Debug)]
+pub struct Pass {
+    pub mode: Mode,
+    /// Scalar values by scalar id (None where not reached).
+    pub scalars: Vec<Option<Num>>,
+}
+
+impl Pass {
+    pub fn new(mode: Mode, n_scalars: usize) -> Self {
+        Pass {
+            mode,
+            scalars: vec![None; n_scalars],
+        }
+    }
+    fn set_scalar(&mut self, id: usize, n: Num) {
+        if id >= self.scalars.len() {
+            self.scalars.resize(id + 1, None);
+        }
+        self.scalars[id] = Some(n);
+    }
+}
+
+/// A user function.
+#[derive(Debug, Clone)]
+pub struct Function {
+    pub params: Vec<String>,
+    pub body: Expr,
+    pub unit: Option<units::Unit>,
+}
+
+/// What names resolve to during a pass.
+pub trait Names {
+    /// The value of a definition in this pass; `Err` when it failed or is not defined.
+    fn lookup(&self, name: &str) -> Option<Result<Value, String>>;
+    fn function(&self, name: &str) -> Option<&Function>;
+    /// Every name in scope, for "did you mean".
+    fn all_names(&self) -> Vec<String>;
+}
+
+/// The evaluator for one statement in one pass.
+pub struct Evaluator<'a> {
+    pub names: &'a dyn Names,
+    pub reg: &'a mut Registry,
+    pub pass: &'a mut Pass,
+    /// Key of the statement being evaluated ("cell:3"), prefix of site keys.
+    pub stmt_key: String,
+    /// Human name of the statement (definition name, or "check"), for labels.
+    pub stmt_label: String,
+    /// Label given to this statement's tolerance sites when it is a `given`.
+    pub given: bool,
+    pub locals: Vec<(String, Value)>,
+    pub depth: usize,
+    /// Warnings (unit read as a unit although a name exists) met in the nominal pass.
+    pub notes: Vec<Diagnostic>,
+}
+
+impl<'a> Evaluator<'a> {
+    fn nominal(&self) -> bool {
+        matches!(self.pass.mode, Mode::Nominal)
+    }
+
+    /// Records a scalar (a value, a record field) of the current pass under `key`.
+    pub fn record(&mut self, key: &str, n: Num) {
+        let id = if self.nominal() {
+            self.reg.scalar_id(key)
+        } else {
+            match self.reg.find_scalar(key) {
+                Some(id) => id,
+                None => return,
+            }
+        };
+        self.pass.set_scalar(id, n);
+    }
+
+    /// Records every numeric leaf of a value under `key` (records as `key.field`).
+    pub fn record_value(&mut self, key: &str, v: &Value) {
+        match v {
+            Value::Num(n) => self.record(key, *n),
+            Value::Record(r) => {
+                for f in &r.fields {
+                    let k = format!("{key}.{}", f.name);
+                    self.record_value(&k, &f.value);
+                }
+            }
+            _ => {}
+        }
+    }
+
+    /// The value of an input site in this pass, registering it in the nominal pass.
+    fn input(&mut self, key: &str, label: String, nominal: f64, lo: f64, hi: f64) -> R<Dual> {
+        let id = match self.reg.input_index.get(key) {
+            Some(&id) => id,
+            None if self.nominal() => {
+                let id = self.reg.inputs.len();
+                self.reg.inputs.push(InputInfo {
+                    key: key.to_string(),
+                    label,
+                    nominal,
+                    lo,
+                    hi,
+                });
+                self.reg.input_index.insert(key.to_string(), id);
+                id
+            }
+            None => {
+                return Err(EvalError::new(
+                    DiagKind::DomainError,
+                    &(0..0),
+                    "internal: an uncertain input appeared outside the nominal pass",
+                ))
+            }
+        };
+        let info = &self.reg.inputs[id];
+        Ok(match &self.pass.mode {
+            Mode::Nominal => Dual::constant(info.nominal),
+            Mode::Box { seed } => Dual::input(Interval::new(info.lo, info.hi), *seed == Some(id)),
+            Mode::Assign(a) => Dual::input(a.get(id).copied().unwrap_or(Interval::point(info.nominal)), false),
+        })
+    }
+
+    fn input_site(&mut self, span: &Span, nominal: f64, lo: f64, hi: f64, site_value: impl Fn(Dual) -> R<Num>) -> R<Num> {
+        let key = format!("{}@{}", self.stmt_key, span.start);
+        let label = if self.given {
+            self.stmt_label.clone()
+        } else {
+            format!("tolerance in {}", self.stmt_label)
+        };
+        let e = self.input(&key, label, nominal, lo, hi)?;
+        let n = site_value(e)?;
+        let skey = format!("input:{key}");
+        if self.nominal() {
+            let sid = self.reg.scalar_id(&skey);
+            let iid = self.reg.input_index[&key];
+            if self.reg.input_scalars.len() <= iid {
+                self.reg.input_scalars.resize(iid + 1, usize::MAX);
+            }
+            self.reg.input_scalars[iid] = sid;
+        }
+        self.record(&skey, n);
+        Ok(n)
+    }
+
+    pub fn eval(&mut self, e: &Expr) -> R<Value> {
+        let v = self.eval_inner(e)?;
+        if let Value::Num(n) = &v {
+            if !n.x.is_finite() {
+                return Err(EvalError::new(
+                    DiagKind::DomainError,
+                    &e.span,
+                    "this has no finite value (an overflow or a division by zero)",
+                ));
+            }
+        }
+        Ok(v)
+    }
+
+    fn num(&mut self, e: &Expr) -> R<Num> {
+        match self.eval(e)? {
+            Value::Num(n) => Ok(n),
+            other => Err(EvalError::new(
+                DiagKind::TypeMismatch,
+                &e.span,
+                format!("expected a number here, found {}", other.type_name()),
+            )),
+        }
+    }
+
+    fn eval_inner(&mut self, e: &Expr) -> R<Value> {
+        match &e.kind {
+            ExprKind::Number { value, unit } => self.number(*value, unit.as_ref(), &e.span, false),
+            ExprKind::Code { value, kind, .. } => Ok(Value::Num(Num::constant(
+                *value,
+                match kind {
+                    CodeKind::Resistance => Dim::RESISTANCE,
+                    CodeKind::Capacitance => Dim::CAPACITANCE,
+                },
+            ))),
+            ExprKind::Str(s) => Ok(Value::Str(Arc::from(s.as_str()))),
+            ExprKind::Name(n) => self.name(n, &e.span),
+            ExprKind::Neg(x) => {
+                let n = self.num(x)?;
+                if n.abs {
+                    return Err(abs_error(&e.span, "negate"));
+                }
+                Ok(Value::Num(Num { x: -n.x, ..n }))
+            }
+            ExprKind::Binary { op, lhs, rhs } => {
+                let a = self.num(lhs)?;
+                let b = self.num(rhs)?;
+                binary(*op, a, b, &e.span, &rhs.span).map(Value::Num)
+            }
+            ExprKind::PlusMinus { base, spread } => self.plus_minus(base, spread, &e.span),
+            ExprKind::Range { lo, hi } => self.range(lo, hi, &e.span),
+            ExprKind::Call { callee, args } => self.call(callee, args, &e.span),
+            ExprKind::Field { base, field } => {
+                if let Some(path) = e.path() {
+                    if let Some(b) = builtins::lookup(&path) {
+                        return Err(EvalError::new(
+                            DiagKind::TypeMismatch,
+                            &e.span,
+                            format!("`{}` is a built-in function; call it with arguments", b.path),
+                        )
+                        .hint(format!("write `{}`", b.doc.signature)));
+                    }
+                }
+                match self.eval(base)? {
+                    Value::Record(r) => match r.get(&field.name) {
+                        Some(f) => Ok(f.value.clone()),
+                        None => {
+                            let names: Vec<String> = r.fields.iter().map(|f| f.name.to_string()).collect();
+                            let mut err = EvalError::new(
+                                DiagKind::UnknownName,
+                                &field.span,
+                                format!("a `{}` result has no field `{}`", r.kind, field.name),
+                            );
+                            err = match nearest(&field.name, &names) {
+                                Some(n) => err.hint(format!("did you mean `{n}`? fields: {}", names.join(", "))),
+                                None => err.hint(format!("its fields are {}", names.join(", "))),
+                            };
+                            Err(err)
+                        }
+                    },
+                    other => Err(EvalError::new(
+                        DiagKind::TypeMismatch,
+                        &field.span,
+                        format!("only a record has fields; this is {}", other.type_name()),
+                    )),
+                }
+            }
+            ExprKind::List(items) => {
+                if items.len() > MAX_LIST_LEN {
+                    return Err(EvalError::new(
+                        DiagKind::Limit,
+                        &e.span,
+                        format!("a list may hold at most {MAX_LIST_LEN} items"),
+                    ));
+                }
+                let vals = items.iter().map(|i| self.eval(i)).collect::<R<Vec<_>>>()?;
+                Ok(Value::List(Arc::from(vals)))
+            }
+            ExprKind::Error => Err(EvalError::new(
+                DiagKind::UnexpectedToken,
+                &e.span,
+                "this part did not parse",
+            )),
+        }
+    }
+
+    /// A number literal; `difference` reads a lone °C/°F as a temperature difference.
+    fn number(&mut self, value: f64, unit: Option<&crate::ast::UnitExpr>, span: &Span, difference: bool) -> R<Value> {
+        let Some(u) = unit else {
+            return Ok(Value::Num(Num::constant(value, Dim::NONE)));
+        };
+        let parsed = units::parse_unit(&u.text).map_err(|err| {
+            let mut e = EvalError::new(DiagKind::UnknownUnit, &u.span, err.message);
+            e.hint = err.hint;
+            e
+        })?;
+        if self.nominal() && self.names.lookup(&u.text).is_some() && self.depth == 0 {
+            self.notes.push(
+                Diagnostic::warning(
+                    DiagKind::UnitShadowsName,
+                    span.clone(),
+                    format!("`{}` after a number is read as the unit {}, not as your `{}`", u.text, parsed.text, u.text),
+                )
+                .hint(format!("to multiply by the name, write `{value} * {}`", u.text)),
+            );
+        }
+        let absolute = parsed.is_absolute_temperature() && !difference;
+        let si = parsed.to_si(value, absolute);
+        Ok(Value::Num(Num {
+            x: Dual::constant(si),
+            dim: parsed.dim,
+            abs: absolute,
+        }))
+    }
+
+    fn name(&mut self, n: &str, span: &Span) -> R<Value> {
+        if let Some((_, v)) = self.locals.iter().rev().find(|(k, _)| k == n) {
+            return Ok(v.clone());
+        }
+        match self.names.lookup(n) {
+            Some(Ok(v)) => return Ok(v),
+            Some(Err(why)) => {
+                return Err(EvalError::new(
+                    DiagKind::DependencyFailed,
+                    span,
+                    format!("`{n}` has no value: {why}"),
+                ))
+            }
+            None => {}
+        }
+        if let Some(c) = builtins::constant(n) {
+            return Ok(c);
+        }
+        Err(self.unknown_name(n, span))
+    }
+
+    fn unknown_name(&self, n: &str, span: &Span) -> EvalError {
+        let mut err = EvalError::new(DiagKind::UnknownName, span, format!("unknown name `{n}`"));
+        if units::parse_unit(n).is_ok() {
+            return err.hint(format!("`{n}` is a unit; a unit follows a number: write `1 {n}`"));
+        }
+        if let Some(code) = reversed_code(n) {
+            return err.hint(format!("did you mean `{code}`?"));
+        }
+        let mut names = self.names.all_names();
+        names.extend(self.locals.iter().map(|(k, _)| k.clone()));
+        names.extend(builtins::namespaces().iter().map(|s| s.to_string()));
+        if let Some(best) = nearest(n, &names) {
+            err = err.hint(format!("did you mean `{best}`?"));
+        }
+        err
+    }
+
+    fn plus_minus(&mut self, base: &Expr, spread: &Expr, span: &Span) -> R<Value> {
+        let b = self.num(base)?;
+        let relative = is_relative_literal(spread);
+        let s = match &spread.kind {
+            ExprKind::Number { value, unit } => match self.number(*value, unit.as_ref(), &spread.span, true)? {
+                Value::Num(n) => n,
+                _ => unreachable_num(&spread.span)?,
+            },
+            _ => self.num(spread)?,
+        };
+        if s.abs {
+            return Err(abs_error(&spread.span, "use as a tolerance"));
+        }
+        let sv = s.x.v.hi;
+        if !s.x.v.is_point() {
+            return Err(EvalError::new(
+                DiagKind::TypeMismatch,
+                &spread.span,
+                "a tolerance must be a known number, not an uncertain one",
+            ));
+        }
+        if sv < 0.0 {
+            return Err(EvalError::new(DiagKind::DomainError, &spread.span, "a tolerance cannot be negative")
+                .hint("write the size of the tolerance: `± 5 %`"));
+        }
+        if relative {
+            if b.abs {
+                return Err(EvalError::new(
+                    DiagKind::Temperature,
+                    &spread.span,
+                    "a relative tolerance on an absolute temperature has no meaning (it depends on the scale)",
+                )
+                .hint("give the tolerance as a temperature difference: `50 °C ± 2 K`"));
+            }
+            let n = self.input_site(span, 0.0, -sv, sv, |eps| Ok(Num { x: b.x * (Dual::constant(1.0) + eps), ..b }))?;
+            return Ok(Value::Num(n));
+        }
+        if s.dim != b.dim {
+            return Err(EvalError::new(
+                DiagKind::DimensionMismatch,
+                &spread.span,
+                format!("the tolerance is {} but the value is {}", s.dim.describe(), b.dim.describe()),
+            )
+            .hint("give an absolute tolerance in the value's unit, or a relative one in % or ppm"));
+        }
+        let n = self.input_site(span, 0.0, -sv, sv, |d| Ok(Num { x: b.x + d, ..b }))?;
+        Ok(Value::Num(n))
+    }
+
+    fn range(&mut self, lo: &Expr, hi: &Expr, span: &Span) -> R<Value> {
+        let a = self.num(lo)?;
+        let b = self.num(hi)?;
+        if a.dim != b.dim || a.abs != b.abs {
+            let mut err = EvalError::new(
+                DiagKind::DimensionMismatch,
+                span,
+                format!(
+                    "the ends of a range must agree: {} and {}",
+                    units::describe_quantity(a.dim, a.abs),
+                    units::describe_quantity(b.dim, b.abs)
+                ),
+            );
+            if a.dim.is_none() && !b.dim.is_none() {
+                err = err.hint("each end carries its own unit: `10.8 V .. 13.2 V`");
+            }
+            return Err(err);
+        }
+        if !a.x.v.is_point() || !b.x.v.is_point() {
+            return Err(EvalError::new(
+                DiagKind::TypeMismatch,
+                span,
+                "the ends of a range must be known numbers",
+            ));
+        }
+        let (l, h) = (a.x.value(), b.x.value());
+        if l > h {
+            return Err(EvalError::new(DiagKind::DomainError, span, "this range runs downward")
+                .hint("write the smaller end first"));
+        }
+        let mid = 0.5 * (l + h);
+        let half = 0.5 * (h - l);
+        let n = self.input_site(span, 0.0, -half, half, |d| {
+            Ok(Num {
+                x: Dual::constant(mid) + d,
+                ..a
+            })
+        })?;
+        Ok(Value::Num(n))
+    }
+
+    fn call(&mut self, callee: &Expr, args: &[Arg], span: &Span) -> R<Value> {
+        let Some(path) = callee.path() else {
+            return Err(EvalError::new(
+                DiagKind::TypeMismatch,
+                &callee.span,
+                "only functions can be called",
+            ));
+        };
+        if let Some(f) = self.names.function(&path) {
+            let f = f.clone();
+            return self.user_call(&path, &f, args, span);
+        }
+        if let Some(b) = builtins::lookup(&path) {
+            return self.builtin_call(b, args, span);
+        }
+        if let Some(v) = self.math(&path, args, span)? {
+            return Ok(v);
+        }
+        let mut err = EvalError::new(DiagKind::UnknownFunction, &callee.span, format!("unknown function `{path}`"));
+        let mut known: Vec<String> = builtins::all().iter().map(|b| b.path.to_string()).collect();
+        known.extend(MATH.iter().map(|s| s.to_string()));
+        if let Some(best) = nearest(&path, &known) {
+            err = err.hint(format!("did you mean `{best}`?"));
+        }
+        Err(err)
+    }
+
+    fn user_call(&mut self, name: &str, f: &Function, args: &[Arg], span: &Span) -> R<Value> {
+        if self.depth >= MAX_CALL_DEPTH {
+            return Err(EvalError::new(
+                DiagKind::Limit,
+                span,
+                format!("calls nest deeper than {MAX_CALL_DEPTH} (does `{name}` call itself?)"),
+            ));
+        }
+        if let Some(a) = args.iter().find(|a| a.name.is_some()) {
+            return Err(EvalError::new(
+                DiagKind::Argument,
+                &a.value.span,
+                format!("`{name}` takes its arguments by position"),
+            ));
+        }
+        if args.len() != f.params.len() {
+            return Err(EvalError::new(
+                DiagKind::Argument,
+                span,
+                format!("`{name}` takes {} argument(s), {} given", f.params.len(), args.len()),
+            )
+            .hint(format!("{name}({})", f.params.join(", "))));
+        }
+        let vals = args.iter().map(|a| self.eval(&a.value)).collect::<R<Vec<_>>>()?;
+        let saved = std::mem::take(&mut self.locals);
+        self.locals = f.params.iter().cloned().zip(vals).collect();
+        self.depth += 1;
+        let r = self.eval(&f.body);
+        self.depth -= 1;
+        self.locals = saved;
+        let v = r?;
+        if let Some(u) = &f.unit {
+            check_declared(&v, u, span)?;
+        }
+        Ok(v)
+    }
+
+    fn builtin_call(&mut self, b: &'static builtins::Builtin, args: &[Arg], span: &Span) -> R<Value> {
+        let mut slots: Vec<Option<Value>> = vec![None; b.params.len()];
+        let mut spans: Vec<Span> = vec![span.clone(); b.params.len()];
+        let mut positional = 0;
+        for a in args {
+            let idx = match &a.name {
+                None => {
+                    if positional >= b.params.len() {
+                        return Err(EvalError::new(
+                            DiagKind::Argument,
+                            &a.value.span,
+                            format!("`{}` takes at most {} arguments", b.path, b.params.len()),
+                        )
+                        .hint(b.doc.signature));
+                    }
+                    positional += 1;
+                    positional - 1
+                }
+                Some(n) => match b.params.iter().position(|p| p.name == n.name) {
+                    Some(i) => i,
+                    None => {
+                        let names: Vec<String> = b.params.iter().map(|p| p.name.to_string()).collect();
+                        let mut err = EvalError::new(
+                            DiagKind::Argument,
+                            &n.span,
+                            format!("`{}` has no parameter `{}`", b.path, n.name),
+                        );
+                        err = match nearest(&n.name, &names) {
+                            Some(best) => err.hint(format!("did you mean `{best}`? ({})", b.doc.signature)),
+                            None => err.hint(b.doc.signature),
+                        };
+                        return Err(err);
+                    }
+                },
+            };
+            if slots[idx].is_some() {
+                return Err(EvalError::new(
+                    DiagKind::Argument,
+                    &a.value.span,
+                    format!("`{}` is given twice", b.params[idx].name),
+                ));
+            }
+            slots[idx] = Some(self.eval(&a.value)?);
+            spans[idx] = a.value.span.clone();
+        }
+        if let Some((i, p)) = b.params.iter().enumerate().find(|(i, p)| p.required && slots[*i].is_none()) {
+            let _ = i;
+            return Err(EvalError::new(
+                DiagKind::Argument,
+                span,
+                format!("`{}` needs `{}`", b.path, p.name),
+            )
+            .hint(b.doc.signature));
+        }
+        let mut host = Host {
+            ev: self,
+            call_key: format!("{}", span.start),
+        };
+        let mut ctx = CallCtx { host: &mut host };
+        (b.call)(&mut ctx, &slots).map_err(|e: CallError| {
+            let at = e.param.and_then(|i| spans.get(i).cloned()).unwrap_or(span.clone());
+            let mut err = EvalError::new(DiagKind::Argument, &at, format!("{}: {}", b.path, e.message));
+            err.hint = e.hint;
+            err
+        })
+    }
+
+    fn math(&mut self, path: &str, args: &[Arg], span: &Span) -> R<Option<Value>> {
+        if !MATH.contains(&path) {
+            return Ok(None);
+        }
+        if let Some(a) = args.iter().find(|a| a.name.is_some()) {
+            return Err(EvalError::new(
+                DiagKind::Argument,
+                &a.value.span,
+                format!("`{path}` takes its arguments by position"),
+            ));
+        }
+        let want = match path {
+            "min" | "max" => 0,
+            "tol" => 3,
+            _ => 1,
+        };
+        if (want > 0 && args.len() != want) || (want == 0 && args.len() < 2) {
+            return Err(EvalError::new(
+                DiagKind::Argument,
+                span,
+                match want {
+                    0 => format!("`{path}` takes two or more arguments"),
+                    1 => format!("`{path}` takes one argument"),
+                    n => format!("`{path}` takes {n} arguments"),
+                },
+            ));
+        }
+        if path == "tol" {
+            return self.tol(args, span).map(Some);
+        }
+        let vals = args.iter().map(|a| self.num(&a.value)).collect::<R<Vec<_>>>()?;
+        let a = vals[0];
+        let dimensionless = |what: &str| -> R<()> {
+            if !a.dim.is_none() || a.abs {
+                Err(EvalError::new(
+                    DiagKind::DimensionMismatch,
+                    &args[0].value.span,
+                    format!("`{what}` needs a dimensionless number, not {}", units::describe_quantity(a.dim, a.abs)),
+                )
+                .hint("divide by a reference value to make it dimensionless"))
+            } else {
+                Ok(())
+            }
+        };
+        let r = match path {
+            "sqrt" => {
+                if a.abs {
+                    return Err(abs_error(&args[0].value.span, "take the square root of"));
+                }
+                let Some(dim) = a.dim.root(2) else {
+                    return Err(EvalError::new(
+                        DiagKind::DimensionMismatch,
+                        &args[0].value.span,
+                        format!("the square root of {} has no unit", a.dim.describe()),
+                    ));
+                };
+                if a.x.v.lo < 0.0 {
+                    return Err(domain(&args[0].value.span, "the square root of a negative value", a));
+                }
+                Num::new(a.x.sqrt(), dim)
+            }
+            "exp" => {
+                dimensionless("exp")?;
+                Num::new(a.x.exp(), Dim::NONE)
+            }
+            "ln" | "log10" => {
+                dimensionless(path)?;
+                if a.x.v.lo <= 0.0 {
+                    return Err(domain(&args[0].value.span, "the logarithm of a value that is not positive", a));
+                }
+                Num::new(if path == "ln" { a.x.ln() } else { a.x.log10() }, Dim::NONE)
+            }
+            "abs" => {
+                if a.abs {
+                    return Err(abs_error(&args[0].value.span, "take the magnitude of"));
+                }
+                Num { x: a.x.abs(), ..a }
+            }
+            "kelvin" => {
+                if a.dim != Dim::TEMPERATURE || !a.abs {
+                    return Err(EvalError::new(
+                        DiagKind::Temperature,
+                        &args[0].value.span,
+                        format!("`kelvin` takes an absolute temperature, not {}", units::describe_quantity(a.dim, a.abs)),
+                    ));
+                }
+                Num { abs: false, ..a }
+            }
+            _ => {
+                // min / max
+                let mut acc = a;
+                for (i, b) in vals.iter().enumerate().skip(1) {
+                    if b.dim != acc.dim || b.abs != acc.abs {
+                        return Err(EvalError::new(
+                            DiagKind::DimensionMismatch,
+                            &args[i].value.span,
+                            format!(
+                                "`{path}` compares like with like: {} and {}",
+                                units::describe_quantity(acc.dim, acc.abs),
+                                units::describe_quantity(b.dim, b.abs)
+                            ),
+                        ));
+                    }
+                    acc.x = if path == "min" { acc.x.min(b.x) } else { acc.x.max(b.x) };
+                }
+                acc
+            }
+        };
+        Ok(Some(Value::Num(r)))
+    }
+
+    /// `tol(x, lo, hi)`: an asymmetric tolerance, relative (%, ppm) or absolute.
+    fn tol(&mut self, args: &[Arg], span: &Span) -> R<Value> {
+        let b = self.num(&args[0].value)?;
+        let relative = is_relative_literal(&args[1].value) && is_relative_literal(&args[2].value);
+        let lo = self.num(&args[1].value)?;
+        let hi = self.num(&args[2].value)?;
+        for (n, a) in [(lo, &args[1]), (hi, &args[2])] {
+            if !n.x.v.is_point() {
+                return Err(EvalError::new(DiagKind::TypeMismatch, &a.value.span, "a tolerance must be a known number"));
+            }
+            if !relative && (n.dim != b.dim || n.abs) {
+                return Err(EvalError::new(
+                    DiagKind::DimensionMismatch,
+                    &a.value.span,
+                    format!("the tolerance is {} but the value is {}", n.dim.describe(), b.dim.describe()),
+                )
+                .hint("give both ends in % (`tol(x, -20 %, +80 %)`) or in the value's unit"));
+            }
+        }
+        let (l, h) = (lo.x.value(), hi.x.value());
+        if l > 0.0 || h < 0.0 {
+            return Err(EvalError::new(
+                DiagKind::DomainError,
+                span,
+                "`tol` takes the downward deviation (≤ 0) then the upward one (≥ 0)",
+            )
+            .hint("for example `tol(10 µF, -20 %, +80 %)`"));
+        }
+        if relative && b.abs {
+            return Err(EvalError::new(
+                DiagKind::Temperature,
+                span,
+                "a relative tolerance on an absolute temperature has no meaning",
+            ));
+        }
+        let n = if relative {
+            self.input_site(span, 0.0, l, h, |e| Ok(Num { x: b.x * (Dual::constant(1.0) + e), ..b }))?
+        } else {
+            self.input_site(span, 0.0, l, h, |d| Ok(Num { x: b.x + d, ..b }))?
+        };
+        Ok(Value::Num(n))
+    }
+}
+
+/// The math functions of the language.
+pub const MATH: &[&str] = &["sqrt", "exp", "ln", "log10", "abs", "min", "max", "kelvin", "tol"];
+
+/// The evaluator as the built-ins' host.
+struct Host<'e, 'a> {
+    ev: &'e mut Evaluator<'a>,
+    call_key: String,
+}
+
+impl CallHost for Host<'_, '_> {
+    fn is_nominal(&self) -> bool {
+        self.ev.nominal()
+    }
+    fn choose(&mut self, key: &str, pick: &mut dyn FnMut() -> Result<f64, CallError>) -> Result<f64, CallError> {
+        let k = format!("{}#{}:{}", self.ev.stmt_key, self.call_key, key);
+        if let Some(&v) = self.ev.reg.choices.get(&k) {
+            return Ok(v);
+        }
+        if !self.ev.nominal() {
+            return Err(CallError::new("internal: a choice was not made in the nominal pass"));
+        }
+        let v = pick()?;
+        self.ev.reg.choices.insert(k, v);
+        Ok(v)
+    }
+    fn part_input(&mut self, key: &str, label: String, nominal: f64, lo: f64, hi: f64, dim: Dim) -> Dual {
+        let k = format!("{}#{}:{}", self.ev.stmt_key, self.call_key, key);
+        let label = format!("{label} in {}", self.ev.stmt_label);
+        match self.ev.input(&k, label, nominal, lo, hi) {
+            Ok(x) => {
+                let skey = format!("input:{k}");
+                if self.ev.nominal() {
+                    let sid = self.ev.reg.scalar_id(&skey);
+                    if let Some(&iid) = self.ev.reg.input_index.get(&k) {
+                        if self.ev.reg.input_scalars.len() <= iid {
+                            self.ev.reg.input_scalars.resize(iid + 1, usize::MAX);
+                        }
+                        self.ev.reg.input_scalars[iid] = sid;
+                    }
+                }
+                self.ev.record(&skey, Num::new(x, dim));
+                x
+            }
+            Err(_) => Dual::constant(nominal),
+        }
+    }
+    fn probe(&mut self, key: &str, value: Num, rule: WarnRule) {
+        let k = format!("probe:{}#{}:{}", self.ev.stmt_key, self.call_key, key);
+        if self.ev.nominal() {
+            let scalar = self.ev.reg.scalar_id(&k);
+            if !self.ev.reg.probes.iter().any(|p| p.scalar == scalar && p.rule == rule) {
+                self.ev.reg.probes.push(ProbeInfo {
+                    scalar,
+                    source: self.ev.stmt_label.clone(),
+                    stmt: self.ev.stmt_key.clone(),
+                    rule,
+                });
+            }
+        }
+        self.ev.record(&k, value);
+    }
+    fn warn(&mut self, text: String) {
+        let src = self.ev.stmt_label.clone();
+        let key = self.ev.stmt_key.clone();
+        if !self.ev.reg.warnings.iter().any(|(_, k, t)| *k == key && *t == text) {
+            self.ev.reg.warnings.push((src, key, text));
+        }
+    }
+}
+
+fn unreachable_num(span: &Span) -> R<Num> {
+    Err(EvalError::new(DiagKind::TypeMismatch, span, "expected a number"))
+}
+
+/// True when the expression is a `%` or `ppm` literal (only those make a tolerance relative).
+fn is_relative_literal(e: &Expr) -> bool {
+    match &e.kind {
+        ExprKind::Number { unit: Some(u), .. } => u.text == "%" || u.text == "ppm",
+        ExprKind::Neg(x) => is_relative_literal(x),
+        _ => false,
+    }
+}
+
+fn abs_error(span: &Span, what: &str) -> EvalError {
+    EvalError::new(
+        DiagKind::Temperature,
+        span,
+        format!("cannot {what} an absolute temperature"),
+    )
+    .hint("absolute temperatures only take a difference added or subtracted; `kelvin(t)` gives the thermodynamic value in K for formulas")
+}
+
+fn domain(span: &Span, what: &str, n: Num) -> EvalError {
+    let text = if n.x.v.is_point() {
+        format!("{what}: {}", units::format_si(n.x.value(), n.dim, n.abs, 3))
+    } else {
+        format!(
+            "{what} at the worst case: it ranges over {} … {}",
+            units::format_si(n.x.v.lo, n.dim, n.abs, 3),
+            units::format_si(n.x.v.hi, n.dim, n.abs, 3)
+        )
+    };
+    EvalError::new(DiagKind::DomainError, span, text)
+}
+
+/// Arithmetic with the dimension and temperature rules of the language.
+pub fn binary(op: BinOp, a: Num, b: Num, span: &Span, rhs_span: &Span) -> R<Num> {
+    let mismatch = |verb: &str| {
+        EvalError::new(
+            DiagKind::DimensionMismatch,
+            span,
+            format!(
+                "cannot {verb} {} and {}",
+                units::describe_quantity(a.dim, a.abs),
+                units::describe_quantity(b.dim, b.abs)
+            ),
+        )
+    };
+    match op {
+        BinOp::Add | BinOp::Sub => {
+            if a.dim != b.dim {
+                let mut e = mismatch(if op == BinOp::Add { "add" } else { "subtract" });
+                e.message = format!(
+                    "{} {} {}: the dimensions differ",
+                    capital(&units::describe_quantity(a.dim, a.abs)),
+                    if op == BinOp::Add { "plus" } else { "minus" },
+                    units::describe_quantity(b.dim, b.abs)
+                );
+                return Err(e);
+            }
+            let abs = match (op, a.abs, b.abs) {
+                (BinOp::Add, true, true) => {
+                    return Err(EvalError::new(
+                        DiagKind::Temperature,
+                        span,
+                        "two absolute temperatures cannot be added",
+                    )
+                    .hint("add a temperature difference in K (`25 °C + 10 K`), or use `kelvin(t)` for thermodynamic values"))
+                }
+                (BinOp::Sub, false, true) => {
+                    return Err(EvalError::new(
+                        DiagKind::Temperature,
+                        span,
+                        "an absolute temperature cannot be subtracted from a difference",
+                    )
+                    .hint("write the absolute temperature first: `t - 10 K`"))
+                }
+                (BinOp::Add, x, y) => x || y,
+                (BinOp::Sub, true, true) => false,
+                (BinOp::Sub, x, _) => x,
+                _ => false,
+            };
+            let x = if op == BinOp::Add { a.x + b.x } else { a.x - b.x };
+            Ok(Num { x, dim: a.dim, abs })
+        }
+        BinOp::Mul | BinOp::Div => {
+            if a.abs || b.abs {
+                return Err(abs_error(span, if op == BinOp::Mul { "multiply" } else { "divide" }));
+            }
+            if op == BinOp::Mul {
+                return Ok(Num::new(a.x * b.x, a.dim.mul(b.dim)));
+            }
+            divisor_check(b, rhs_span)?;
+            Ok(Num::new(a.x / b.x, a.dim.div(b.dim)))
+        }
+        BinOp::Parallel => {
+            if a.dim != b.dim {
+                return Err(mismatch("combine in parallel"));
+            }
+            if a.abs || b.abs {
+                return Err(abs_error(span, "combine in parallel"));
+            }
+            if a.x.v.lo <= 0.0 || b.x.v.lo <= 0.0 {
+                return Err(EvalError::new(
+                    DiagKind::DomainError,
+                    span,
+                    "a parallel combination needs two positive values",
+                ));
+            }
+            // 1/(1/a + 1/b): each operand appears once, so interval bounds stay exact.
+            Ok(Num::new((a.x.recip() + b.x.recip()).recip(), a.dim))
+        }
+        BinOp::Pow => {
+            if a.abs {
+                return Err(abs_error(span, "raise to a power"));
+            }
+            if !b.dim.is_none() || b.abs {
+                return Err(EvalError::new(
+                    DiagKind::DimensionMismatch,
+                    rhs_span,
+                    "an exponent must be a dimensionless number",
+                ));
+            }
+            if !b.x.v.is_point() {
+                if !a.dim.is_none() {
+                    return Err(EvalError::new(
+                        DiagKind::DimensionMismatch,
+                        rhs_span,
+                        "a quantity with a unit can only be raised to a known exponent",
+                    ));
+                }
+                if a.x.v.lo <= 0.0 {
+                    return Err(domain(span, "a power with an uncertain exponent needs a positive base", a));
+                }
+                return Ok(Num::new(a.x.powf(b.x), Dim::NONE));
+            }
+            let p = b.x.value();
+            if p.fract() == 0.0 && p.abs() <= 64.0 {
+                let n = p as i32;
+                let Some(dim) = a.dim.powi(n) else {
+                    return Err(EvalError::new(DiagKind::Limit, span, "the unit's exponent grows too large"));
+                };
+                if n < 0 {
+                    divisor_check(a, span)?;
+                }
+                return Ok(Num::new(a.x.powi(n), dim));
+            }
+            if (p * 2.0).fract() == 0.0 && p.abs() <= 64.0 {
+                let Some(dim) = a.dim.root(2).and_then(|d| d.powi((p * 2.0) as i32)) else {
+                    return Err(EvalError::new(
+                        DiagKind::DimensionMismatch,
+                        span,
+                        format!("{} has no square root", a.dim.describe()),
+                    ));
+                };
+                if a.x.v.lo < 0.0 {
+                    return Err(domain(span, "a fractional power of a negative value", a));
+                }
+                return Ok(Num::new(a.x.sqrt().powi((p * 2.0) as i32), dim));
+            }
+            if !a.dim.is_none() {
+                return Err(EvalError::new(
+                    DiagKind::DimensionMismatch,
+                    rhs_span,
+                    "a quantity with a unit takes only whole or half exponents",
+                ));
+            }
+            if a.x.v.lo <= 0.0 {
+                return Err(domain(span, "a fractional power needs a positive base", a));
+            }
+            Ok(Num::new(a.x.powf(b.x), Dim::NONE))
+        }
+    }
+}
+
+fn divisor_check(b: Num, span: &Span) -> R<()> {
+    if b.x.v.contains_zero() {
+        if b.x.v.is_point() {
+            return Err(EvalError::new(DiagKind::DomainError, span, "division by zero"));
+        }
+        return Err(EvalError::new(
+            DiagKind::DivisorSpansZero,
+            span,
+            format!(
+                "the divisor ranges over {} … {}, which includes zero",
+                units::format_si(b.x.v.lo, b.dim, false, 3),
+                units::format_si(b.x.v.hi, b.dim, false, 3)
+            ),
+        )
+        .hint("narrow the tolerances so that the divisor keeps one sign"));
+    }
+    Ok(())
+}
+
+fn capital(s: &str) -> String {
+    let mut c = s.chars();
+    match c.next() {
+        Some(f) => f.to_uppercase().collect::<String>() + c.as_str(),
+        None => String::new(),
+    }
+}
+
+/// Checks a value against a declared unit: same dimension; °C/°F need an absolute temperature.
+pub fn check_declared(v: &Value, u: &units::Unit, span: &Span) -> R<()> {
+    let Value::Num(n) = v else {
+        if let Value::Record(_) = v {
+            return Err(EvalError::new(
+                DiagKind::TypeMismatch,
+                span,
+                format!("a record cannot be shown in `{}`; declare the unit of one of its fields", u.text),
+            ));
+        }
+        return Err(EvalError::new(
+            DiagKind::TypeMismatch,
+            span,
+            format!("{} has no unit", v.type_name()),
+        ));
+    };
+    if n.dim != u.dim {
+        return Err(EvalError::new(
+            DiagKind::DimensionMismatch,
+            span,
+            format!(
+                "declared as `{}` ({}) but the value is {}",
+                u.text,
+                u.dim.describe(),
+                units::describe_quantity(n.dim, n.abs)
+            ),
+        ));
+    }
+    if u.is_absolute_temperature() && !n.abs {
+        return Err(EvalError::new(
+            DiagKind::Temperature,
+            span,
+            format!("declared as `{}`, an absolute temperature, but the value is a temperature difference", u.text),
+        )
+        .hint("declare a difference as `[K]`"));
+    }
+    if n.abs && u.temperature.is_none() {
+        return Err(EvalError::new(
+            DiagKind::Temperature,
+            span,
+            format!("an absolute temperature cannot be shown in `{}`", u.text),
+        ));
+    }
+    Ok(())
+}
+
+/// A component-value code written the wrong way round (`R47` → `0R47`).
+fn reversed_code(n: &str) -> Option<String> {
+    let mut chars = n.chars();
+    let first = chars.next()?;
+    let rest: String = chars.collect();
+    if matches!(first, 'R' | 'k' | 'M' | 'G' | 'n' | 'p' | 'u' | 'µ') && !rest.is_empty() && rest.chars().all(|c| c.is_ascii_digit()) {
+        return Some(format!("0{n}"));
+    }
+    None
+}
+
+/// The closest of `names` to `n`, if it is close enough to be a plausible typo.
+pub fn nearest(n: &str, names: &[String]) -> Option<String> {
+    let mut best: Option<(f64, &String)> = None;
+    for c in names {
+        if c == n {
+            continue;
+        }
+        let s = strsim::jaro_winkler(n, c);
+        if s > 0.8 && best.is_none_or(|(b, _)| s > b) {
+            best = Some((s, c));
+        }
+    }
+    best.map(|(_, c)| c.clone())
+}
+
+impl Record {
+    /// A record as a language value.
+    pub fn into_value(self) -> Value {
+        Value::Record(Arc::new(self))
+    }
+}
+
+/// All dependencies (free names) of an expression, excluding `bound` names.
+pub fn free_names(e: &Expr, bound: &[String], out: &mut Vec<String>) {
+    // An explicit stack: expressions can nest deeply.
+    let mut stack = vec![e];
+    while let Some(e) = stack.pop() {
+        match &e.kind {
+            ExprKind::Name(n) => {
+                if !bound.contains(n) && !out.contains(n) {
+                    out.push(n.clone());
+                }
+            }
+            ExprKind::Neg(x) => stack.push(x),
+            ExprKind::Binary { lhs, rhs, .. } => {
+                stack.push(lhs);
+                stack.push(rhs);
+            }
+            ExprKind::PlusMinus { base, spread } => {
+                stack.push(base);
+                stack.push(spread);
+            }
+            ExprKind::Range { lo, hi } => {
+                stack.push(lo);
+                stack.push(hi);
+            }
+            ExprKind::Call { callee, args } => {
+                match callee.path() {
+                    Some(p) if !p.contains('.') => {
+                        if !bound.contains(&p) && !out.contains(&p) {
+                            out.push(p);
+                        }
+                    }
+                    Some(_) => {}
+                    None => stack.push(callee),
+                }
+                for a in args {
+                    stack.push(&a.value);
+                }
+            }
+            ExprKind::Field { base, .. } => {
+                if e.path().is_none_or(|p| builtins::lookup(&p).is_none()) {
+                    stack.push(base);
+                }
+            }
+            ExprKind::List(items) => stack.extend(items.iter()),
+            ExprKind::Number { .. } | ExprKind::Code { .. } | ExprKind::Str(_) | ExprKind::Error => {}
+        }
+    }
+}

@@ -1,0 +1,253 @@
+//! `sweep NAME over A .. B (steps N | by STEP): EXPR, …` — the listed expressions
+//! re-evaluated, with their worst cases, while one definition takes a series of values.
+
+use crate::ast::{Expr, ExprKind, Stmt, StmtKind, SweepStep};
+use crate::diagnostic::{DiagKind, Diagnostic};
+use crate::eval::EvalError;
+use crate::num::Dual;
+use crate::results::{SweepLimit, SweepSeries, SweepTable};
+use crate::value::Num;
+use crate::worksheet::SweepHost;
+
+/// Points a sweep may have.
+pub const MAX_POINTS: usize = 10_000_000;
+/// Points used when the sweep does not say.
+pub const DEFAULT_POINTS: usize = 50;
+/// Points kept in the results data (decimated, extremes kept).
+pub const MAX_DATA_POINTS: usize = 1_000;
+
+fn err(e: EvalError) -> Diagnostic {
+    e.into_diagnostic()
+}
+
+/// Runs one sweep statement; None when interrupted.
+pub(crate) fn run(host: &SweepHost<'_>, stmt: &Stmt, source: &str) -> Option<Result<SweepTable, Diagnostic>> {
+    let StmtKind::Sweep { vars, exprs } = &stmt.kind else {
+        return Some(Err(Diagnostic::error(DiagKind::UnexpectedToken, stmt.span.clone(), "not a sweep")));
+    };
+    let Some(var) = vars.first() else {
+        return Some(Err(Diagnostic::error(DiagKind::UnexpectedToken, stmt.span.clone(), "a sweep needs a name to vary")));
+    };
+    if vars.len() > 1 {
+        return Some(Err(Diagnostic::error(
+            DiagKind::UnexpectedToken,
+            vars[1].name.span.clone(),
+            "a sweep varies one name at a time",
+        )
+        .hint("write one sweep per name")));
+    }
+    let name = &var.name.name;
+    let Some(Ok(def)) = host.definition(name) else {
+        return Some(Err(Diagnostic::error(
+            DiagKind::UnknownName,
+            var.name.span.clone(),
+            format!("`{name}` is not defined, so it cannot be swept"),
+        )));
+    };
+    let name_expr = Expr {
+        kind: ExprKind::Name(name.clone()),
+        span: var.name.span.clone(),
+    };
+    // The swept definition's own dimension.
+    let current = match host.point(None, std::slice::from_ref(&name_expr))? {
+        Ok(p) => match p.values.first().cloned().flatten() {
+            Some((n, _)) => n,
+            None => return Some(Err(Diagnostic::error(DiagKind::TypeMismatch, var.name.span.clone(), format!("`{name}` is not a number")))),
+        },
+        Err(e) => return Some(Err(err(e))),
+    };
+    let end = |e: &Expr| -> Result<Num, Diagnostic> {
+        let n = host.constant(e).map_err(err)?;
+        if n.dim != current.dim || n.abs != current.abs {
+            return Err(Diagnostic::error(
+                DiagKind::DimensionMismatch,
+                e.span.clone(),
+                format!(
+                    "`{name}` is {}, but this end is {}",
+                    crate::units::describe_quantity(current.dim, current.abs),
+                    crate::units::describe_quantity(n.dim, n.abs)
+                ),
+            ));
+        }
+        Ok(n)
+    };
+    let (from, to) = match (end(&var.from), end(&var.to)) {
+        (Ok(a), Ok(b)) => (a.x.value(), b.x.value()),
+        (Err(e), _) | (_, Err(e)) => return Some(Err(e)),
+    };
+    let count = match &var.step {
+        None => DEFAULT_POINTS,
+        Some(SweepStep::Steps(e)) => match host.constant(e) {
+            Ok(n) if n.dim.is_none() && n.x.value().fract() == 0.0 && n.x.value() >= 2.0 => {
+                let c = n.x.value();
+                if c > MAX_POINTS as f64 {
+                    return Some(Err(limit(e, c)));
+                }
+                c as usize
+            }
+            Ok(_) => {
+                return Some(Err(Diagnostic::error(
+                    DiagKind::Argument,
+                    e.span.clone(),
+                    "`steps` takes a whole number of points, at least 2",
+                )))
+            }
+            Err(x) => return Some(Err(err(x))),
+        },
+        Some(SweepStep::By(e)) => match host.constant(e) {
+            Ok(n) if n.dim == current.dim && !n.abs && n.x.value() > 0.0 => {
+                let c = ((to - from) / n.x.value() + 1e-9).floor() + 1.0;
+                if c > MAX_POINTS as f64 {
+                    return Some(Err(limit(e, c)));
+                }
+                c.max(1.0) as usize
+            }
+            Ok(_) => {
+                return Some(Err(Diagnostic::error(
+                    DiagKind::Argument,
+                    e.span.clone(),
+                    format!("`by` takes a positive step in the unit of `{name}`"),
+                )))
+            }
+            Err(x) => return Some(Err(err(x))),
+        },
+    };
+    let step = match &var.step {
+        Some(SweepStep::By(e)) => host.constant(e).map(|n| n.x.value()).unwrap_or(0.0),
+        _ if count > 1 => (to - from) / (count - 1) as f64,
+        _ => 0.0,
+    };
+    let mut points = Vec::with_capacity(count.min(MAX_DATA_POINTS * 4));
+    let mut series: Vec<SweepSeries> = exprs
+        .iter()
+        .map(|e| SweepSeries {
+            name: source.get(e.span.clone()).unwrap_or("").trim().to_string(),
+            dim: crate::units::Dim::NONE,
+            absolute: false,
+            nominal: Vec::new(),
+            min: None,
+            max: None,
+        })
+        .collect();
+    for i in 0..count {
+        if host.interrupt().is_raised() {
+            return None;
+        }
+        let x = from + step * i as f64;
+        let pin = Num {
+            x: Dual::constant(x),
+            ..current
+        };
+        let p = match host.point(Some((def, pin)), exprs)? {
+            Ok(p) => p,
+            Err(e) => {
+                let mut d = err(e);
+                d.message = format!(
+                    "at {name} = {}: {}",
+                    crate::units::format_si(x, current.dim, current.abs, 3),
+                    d.message
+                );
+                return Some(Err(d));
+            }
+        };
+        points.push(x);
+        for (s, v) in series.iter_mut().zip(p.values) {
+            let Some((n, b)) = v else { continue };
+            s.dim = n.dim;
+            s.absolute = n.abs;
+            s.nominal.push(n.x.value());
+            if let Some((lo, hi)) = b {
+                // Points before the first uncertain one are their own bounds.
+                let len = s.nominal.len() - 1;
+                let nominal_so_far = s.nominal[..len].to_vec();
+                s.min.get_or_insert_with(|| nominal_so_far.clone()).push(lo);
+                s.max.get_or_insert(nominal_so_far).push(hi);
+            } else {
+                if let Some(m) = s.min.as_mut() {
+                    m.push(n.x.value());
+                }
+                if let Some(m) = s.max.as_mut() {
+                    m.push(n.x.value());
+                }
+            }
+        }
+    }
+    let mut limits = Vec::new();
+    for (e, s) in exprs.iter().zip(&series) {
+        if let ExprKind::Name(n) = &e.kind {
+            for (text, rhs) in host.check_on(n) {
+                if let Ok(l) = host.constant(&rhs) {
+                    if l.dim == s.dim {
+                        limits.push(SweepLimit {
+                            series: s.name.clone(),
+                            limit: l.x.value(),
+                            text,
+                        });
+                    }
+                }
+            }
+        }
+    }
+    let (points, series) = decimate(points, series, MAX_DATA_POINTS);
+    Some(Ok(SweepTable {
+        over: name.clone(),
+        dim: current.dim,
+        absolute: current.abs,
+        points,
+        series,
+        limits,
+    }))
+}
+
+fn limit(e: &Expr, c: f64) -> Diagnostic {
+    Diagnostic::error(
+        DiagKind::Limit,
+        e.span.clone(),
+        format!("a sweep may have at most {MAX_POINTS} points; this one asks for {c:.0}"),
+    )
+}
+
+/// Keeps at most `max` points: evenly spaced picks plus, in each bucket, the points where
+/// any series reaches its extreme, so peaks survive.
+pub fn decimate(points: Vec<f64>, series: Vec<SweepSeries>, max: usize) -> (Vec<f64>, Vec<SweepSeries>) {
+    let n = points.len();
+    if n <= max || max < 4 {
+        return (points, series);
+    }
+    let buckets = max / 2;
+    let mut keep: Vec<usize> = vec![0, n - 1];
+    for b in 0..buckets {
+        let lo = b * n / buckets;
+        let hi = ((b + 1) * n / buckets).max(lo + 1).min(n);
+        let mut lo_i = lo;
+        let mut hi_i = lo;
+        let first = series.first();
+        if let Some(s) = first {
+            for i in lo..hi {
+                let v = s.max.as_ref().map_or(s.nominal[i], |m| m[i]);
+                let w = s.min.as_ref().map_or(s.nominal[i], |m| m[i]);
+                if v > s.max.as_ref().map_or(s.nominal[hi_i], |m| m[hi_i]) {
+                    hi_i = i;
+                }
+                if w < s.min.as_ref().map_or(s.nominal[lo_i], |m| m[lo_i]) {
+                    lo_i = i;
+                }
+            }
+        }
+        keep.push(lo_i);
+        keep.push(hi_i);
+    }
+    keep.sort_unstable();
+    keep.dedup();
+    let pick = |v: &Vec<f64>| keep.iter().map(|&i| v[i]).collect::<Vec<_>>();
+    let series = series
+        .into_iter()
+        .map(|s| SweepSeries {
+            nominal: pick(&s.nominal),
+            min: s.min.as_ref().map(pick),
+            max: s.max.as_ref().map(pick),
+            ..s
+        })
+        .collect();
+    (pick(&points), series)
+}
