@@ -30,13 +30,23 @@ pub struct InstallArgs {
 const KERNEL_NAME: &str = "headroom";
 
 const LOGOS: [(&str, &[u8]); 3] = [
-    ("logo-32x32.png", include_bytes!("../../install/logo-32x32.png")),
-    ("logo-64x64.png", include_bytes!("../../install/logo-64x64.png")),
+    (
+        "logo-32x32.png",
+        include_bytes!("../../install/logo-32x32.png"),
+    ),
+    (
+        "logo-64x64.png",
+        include_bytes!("../../install/logo-64x64.png"),
+    ),
     ("logo-svg.svg", include_bytes!("../../install/logo-svg.svg")),
 ];
 
 pub fn install(args: &InstallArgs) -> anyhow::Result<()> {
-    let env = |name: &str| std::env::var_os(name).filter(|v| !v.is_empty()).map(PathBuf::from);
+    let env = |name: &str| {
+        std::env::var_os(name)
+            .filter(|v| !v.is_empty())
+            .map(PathBuf::from)
+    };
     let data_dir = if let Some(prefix) = &args.prefix {
         prefix.join("share").join("jupyter")
     } else if args.sys_prefix {
@@ -103,7 +113,10 @@ impl Platform {
     }
 }
 
-fn user_data_dir(env: &dyn Fn(&str) -> Option<PathBuf>, platform: Platform) -> anyhow::Result<PathBuf> {
+fn user_data_dir(
+    env: &dyn Fn(&str) -> Option<PathBuf>,
+    platform: Platform,
+) -> anyhow::Result<PathBuf> {
     if let Some(dir) = env("JUPYTER_DATA_DIR") {
         return Ok(dir);
     }
@@ -138,7 +151,10 @@ fn sys_prefix_data_dir(env: &dyn Fn(&str) -> Option<PathBuf>) -> anyhow::Result<
         _ => None,
     };
     let user = user_data_dir(env, Platform::current()).ok();
-    if let Some(dir) = paths.as_ref().and_then(|p| env_data_dir(p, env, user.as_deref())) {
+    if let Some(dir) = paths
+        .as_ref()
+        .and_then(|p| env_data_dir(p, env, user.as_deref()))
+    {
         return Ok(dir);
     }
     bail!(
@@ -192,7 +208,11 @@ mod tests {
 
     #[test]
     fn jupyter_data_dir_wins_everywhere() {
-        let env = env_of(&[("JUPYTER_DATA_DIR", "/d"), ("HOME", "/h"), ("XDG_DATA_HOME", "/x")]);
+        let env = env_of(&[
+            ("JUPYTER_DATA_DIR", "/d"),
+            ("HOME", "/h"),
+            ("XDG_DATA_HOME", "/x"),
+        ]);
         for p in [Platform::MacOs, Platform::Windows, Platform::Other] {
             assert_eq!(user_data_dir(&env, p).ok(), Some(PathBuf::from("/d")));
         }
@@ -201,7 +221,10 @@ mod tests {
     #[test]
     fn linux_follows_xdg_then_dot_local() {
         let env = env_of(&[("HOME", "/home/ana"), ("XDG_DATA_HOME", "/xdg")]);
-        assert_eq!(user_data_dir(&env, Platform::Other).ok(), Some(PathBuf::from("/xdg/jupyter")));
+        assert_eq!(
+            user_data_dir(&env, Platform::Other).ok(),
+            Some(PathBuf::from("/xdg/jupyter"))
+        );
         let env = env_of(&[("HOME", "/home/ana")]);
         assert_eq!(
             user_data_dir(&env, Platform::Other).ok(),
@@ -230,7 +253,10 @@ mod tests {
             Some(PathBuf::from("/venvs/a/share/jupyter"))
         );
         let env = env_of(&[("CONDA_PREFIX", "/conda")]);
-        assert_eq!(sys_prefix_data_dir(&env).ok(), Some(PathBuf::from("/conda/share/jupyter")));
+        assert_eq!(
+            sys_prefix_data_dir(&env).ok(),
+            Some(PathBuf::from("/conda/share/jupyter"))
+        );
     }
 
     #[test]
@@ -259,7 +285,12 @@ mod tests {
         let spec: serde_json::Value = serde_json::from_str(&text).expect("valid JSON");
         assert_eq!(
             spec["argv"],
-            json!(["/opt/headroom/bin/headroom", "kernel", "--connection-file", "{connection_file}"])
+            json!([
+                "/opt/headroom/bin/headroom",
+                "kernel",
+                "--connection-file",
+                "{connection_file}"
+            ])
         );
         assert_eq!(spec["interrupt_mode"], "message");
         assert_eq!(spec["language"], "headroom");

@@ -7,6 +7,7 @@
 use crate::render;
 use anyhow::{bail, Context};
 use clap::Args;
+use std::io::Write as _;
 use std::path::{Path, PathBuf};
 use worksheet_lang::{diagnostic, Interrupt, Worksheet};
 
@@ -52,7 +53,9 @@ pub fn run(args: &RunArgs) -> anyhow::Result<u8> {
 fn run_worksheet(args: &RunArgs) -> anyhow::Result<u8> {
     let path = &args.file;
     if args.output.is_some() || args.in_place {
-        bail!("-o/--output and --in-place apply to notebooks (.ipynb); a worksheet run only prints");
+        bail!(
+            "-o/--output and --in-place apply to notebooks (.ipynb); a worksheet run only prints"
+        );
     }
     let source = read_source(path)?;
 
@@ -87,22 +90,24 @@ fn run_worksheet(args: &RunArgs) -> anyhow::Result<u8> {
         );
     }
 
-    if args.json {
+    let out = if args.json {
         let data = render::results_json(&[report]);
-        println!("{}", serde_json::to_string_pretty(&data)?);
         // stdout is the data alone; the caution still reaches the person running it.
         if let Some(c) = render::caution(&[report]) {
             eprintln!("{c}");
         }
+        serde_json::to_string_pretty(&data)?
     } else {
         let text = render::text(report);
-        let shown = render::shown_text(report);
-        match (text.is_empty(), shown) {
-            (false, Some(s)) => println!("{text}\n\nShown\n{}", indent(&s)),
-            (true, Some(s)) => println!("Shown\n{}", indent(&s)),
-            (false, None) => println!("{text}"),
-            (true, None) => {}
+        match (text.is_empty(), render::shown_listing(report)) {
+            (false, Some(s)) => format!("{text}\n\nShown\n{}", indent(&s)),
+            (true, Some(s)) => format!("Shown\n{}", indent(&s)),
+            (false, None) => text,
+            (true, None) => String::new(),
         }
+    };
+    if !out.is_empty() {
+        print_stdout(&out)?;
     }
 
     let failed = report.failed_checks();
@@ -117,6 +122,17 @@ fn run_worksheet(args: &RunArgs) -> anyhow::Result<u8> {
     }
 }
 
+/// Writes the results; a reader that stopped early (`| head`) is not an error.
+fn print_stdout(text: &str) -> anyhow::Result<()> {
+    let mut stdout = std::io::stdout().lock();
+    match writeln!(stdout, "{text}").and_then(|()| stdout.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
+            Err(e).context("cannot write the results to stdout")
+        }
+        _ => Ok(()),
+    }
+}
+
 fn indent(s: &str) -> String {
     s.lines()
         .map(|l| format!("  {l}"))
@@ -125,8 +141,8 @@ fn indent(s: &str) -> String {
 }
 
 fn read_source(path: &Path) -> anyhow::Result<String> {
-    let bytes =
-        std::fs::read(path).with_context(|| format!("cannot read worksheet `{}`", path.display()))?;
+    let bytes = std::fs::read(path)
+        .with_context(|| format!("cannot read worksheet `{}`", path.display()))?;
     let text = String::from_utf8(bytes).map_err(|e| {
         anyhow::anyhow!(
             "worksheet `{}` is not UTF-8 text (invalid byte at offset {}); save it as UTF-8",

@@ -85,14 +85,21 @@ async fn run(conn: &Connection) -> anyhow::Result<()> {
     let replier = Replier {
         socket: control_send,
     };
-    tokio::spawn(handlers::serve_control(control_recv, replier, shared.clone()));
+    tokio::spawn(handlers::serve_control(
+        control_recv,
+        replier,
+        shared.clone(),
+    ));
 
     shared.shutdown.notified().await;
     tokio::time::sleep(SHUTDOWN_GRACE).await;
     Ok(())
 }
 
-async fn publish(mut socket: zeromq::PubSocket, mut rx: mpsc::UnboundedReceiver<zeromq::ZmqMessage>) {
+async fn publish(
+    mut socket: zeromq::PubSocket,
+    mut rx: mpsc::UnboundedReceiver<zeromq::ZmqMessage>,
+) {
     while let Some(frames) = rx.recv().await {
         if let Err(e) = socket.send(frames).await {
             tracing::warn!("cannot publish on iopub: {e}");

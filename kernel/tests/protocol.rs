@@ -39,7 +39,12 @@ impl Kernel {
         Self::start_with(transport, key, "hmac-sha256", |_| {})
     }
 
-    fn start_with(transport: Transport, key: &str, scheme: &str, before: impl FnOnce(&Value)) -> Kernel {
+    fn start_with(
+        transport: Transport,
+        key: &str,
+        scheme: &str,
+        before: impl FnOnce(&Value),
+    ) -> Kernel {
         let dir = tempfile::tempdir().expect("temp dir");
         let info = match transport {
             Transport::Tcp => {
@@ -109,7 +114,10 @@ impl Kernel {
         let mut shell = zeromq::DealerSocket::new();
         shell.connect(&self.url("shell")).await.expect("shell");
         let mut control = zeromq::DealerSocket::new();
-        control.connect(&self.url("control")).await.expect("control");
+        control
+            .connect(&self.url("control"))
+            .await
+            .expect("control");
         let mut iopub = zeromq::SubSocket::new();
         iopub.subscribe("").await.expect("subscribe");
         iopub.connect(&self.url("iopub")).await.expect("iopub");
@@ -189,13 +197,20 @@ impl Client {
     }
 
     /// The frames of a request; `sign` may replace the signature the key gives.
-    fn frames(&self, header: &Value, content: &Value, metadata: &Value, signature: Option<&str>) -> ZmqMessage {
+    fn frames(
+        &self,
+        header: &Value,
+        content: &Value,
+        metadata: &Value,
+        signature: Option<&str>,
+    ) -> ZmqMessage {
         let parts: Vec<Vec<u8>> = [header, &json!({}), metadata, content]
             .iter()
             .map(|v| serde_json::to_vec(v).expect("json"))
             .collect();
         let sig = signature.map_or_else(|| hmac_hex(&self.key, &parts), str::to_string);
-        let mut frames: Vec<bytes::Bytes> = vec![DELIMITER.to_vec().into(), sig.into_bytes().into()];
+        let mut frames: Vec<bytes::Bytes> =
+            vec![DELIMITER.to_vec().into(), sig.into_bytes().into()];
         frames.extend(parts.into_iter().map(bytes::Bytes::from));
         ZmqMessage::try_from(frames).expect("frames")
     }
@@ -209,7 +224,13 @@ impl Client {
     }
 
     /// Sends a request and returns its msg_id.
-    async fn send_meta(&mut self, channel: Channel, msg_type: &str, content: Value, metadata: Value) -> String {
+    async fn send_meta(
+        &mut self,
+        channel: Channel,
+        msg_type: &str,
+        content: Value,
+        metadata: Value,
+    ) -> String {
         let header = self.header(msg_type);
         let frames = self.frames(&header, &content, &metadata, None);
         self.send_frames(channel, frames).await;
@@ -245,7 +266,11 @@ impl Client {
         };
         let frames = timeout(within, socket.recv()).await.ok()?.ok()?;
         let m = self.decode(frames);
-        assert_eq!(m.signature, hmac_hex(&self.key, &m.parts), "every reply is signed");
+        assert_eq!(
+            m.signature,
+            hmac_hex(&self.key, &m.parts),
+            "every reply is signed"
+        );
         Some(m)
     }
 
@@ -261,7 +286,11 @@ impl Client {
     async fn iopub_msg(&mut self, within: Duration) -> Option<Msg> {
         let frames = timeout(within, self.iopub.recv()).await.ok()?.ok()?;
         let m = self.decode(frames);
-        assert_eq!(m.signature, hmac_hex(&self.key, &m.parts), "every iopub message is signed");
+        assert_eq!(
+            m.signature,
+            hmac_hex(&self.key, &m.parts),
+            "every iopub message is signed"
+        );
         Some(m)
     }
 
@@ -270,30 +299,42 @@ impl Client {
         let mut out = Vec::new();
         let until = Instant::now() + REPLY_TIMEOUT;
         while Instant::now() < until {
-            let Some(m) = self.iopub_msg(REPLY_TIMEOUT).await else { break };
+            let Some(m) = self.iopub_msg(REPLY_TIMEOUT).await else {
+                break;
+            };
             if m.parent_id() != id {
                 continue;
             }
             let idle = m.msg_type() == "status" && m.content["execution_state"] == "idle";
             out.push(m);
             if idle {
-                assert_eq!(out[0].content["execution_state"], "busy", "busy comes first");
+                assert_eq!(
+                    out[0].content["execution_state"], "busy",
+                    "busy comes first"
+                );
                 return out;
             }
         }
-        panic!("no idle status for {id}; got {:?}", out.iter().map(Msg::msg_type).collect::<Vec<_>>());
+        panic!(
+            "no idle status for {id}; got {:?}",
+            out.iter().map(Msg::msg_type).collect::<Vec<_>>()
+        );
     }
 
     /// A late subscriber misses messages, so ask for kernel_info until its status messages
     /// arrive on iopub (as jupyter_client does).
     async fn wait_ready(&mut self) {
         for _ in 0..100 {
-            let id = self.send(Channel::Shell, "kernel_info_request", json!({})).await;
+            let id = self
+                .send(Channel::Shell, "kernel_info_request", json!({}))
+                .await;
             let _ = self.reply(Channel::Shell, &id).await;
             let until = Instant::now() + Duration::from_millis(300);
             while Instant::now() < until {
                 match self.iopub_msg(Duration::from_millis(100)).await {
-                    Some(m) if m.parent_id() == id && m.content["execution_state"] == "idle" => return,
+                    Some(m) if m.parent_id() == id && m.content["execution_state"] == "idle" => {
+                        return
+                    }
                     _ => {}
                 }
             }
@@ -311,7 +352,9 @@ impl Client {
         if let (Some(c), Some(e)) = (content.as_object_mut(), extra.as_object()) {
             c.extend(e.clone());
         }
-        let id = self.send_meta(Channel::Shell, "execute_request", content, metadata).await;
+        let id = self
+            .send_meta(Channel::Shell, "execute_request", content, metadata)
+            .await;
         let reply = self.reply(Channel::Shell, &id).await;
         let outputs = self.outputs(&id).await;
         (reply, outputs)
@@ -323,9 +366,18 @@ fn types(outputs: &[Msg]) -> Vec<&str> {
 }
 
 async fn shut_down(kernel: &mut Kernel, client: &mut Client) {
-    let id = client.send(Channel::Control, "shutdown_request", json!({"restart": false})).await;
+    let id = client
+        .send(
+            Channel::Control,
+            "shutdown_request",
+            json!({"restart": false}),
+        )
+        .await;
     let _ = client.reply(Channel::Control, &id).await;
-    assert!(kernel.wait_exit(Duration::from_secs(5)).is_some(), "the kernel exits");
+    assert!(
+        kernel.wait_exit(Duration::from_secs(5)).is_some(),
+        "the kernel exits"
+    );
 }
 
 // ---------------------------------------------------------------------------------------
@@ -346,7 +398,9 @@ async fn kernel_info_is_signed_dated_and_describes_the_language() {
         assert_eq!(k["language_info"]["name"], "headroom");
         assert_eq!(k["language_info"]["file_extension"], ".hrw");
         assert_eq!(k["language_info"]["mimetype"], "text/x-headroom");
-        assert!(k["banner"].as_str().is_some_and(|b| b.contains("datasheet")));
+        assert!(k["banner"]
+            .as_str()
+            .is_some_and(|b| b.contains("datasheet")));
         // The header is the kernel's own: its session, this protocol version, and a date
         // with exactly six fractional digits, as Python's isoformat writes.
         let h = &r.header;
@@ -356,7 +410,10 @@ async fn kernel_info_is_signed_dated_and_describes_the_language() {
         let date = h["date"].as_str().unwrap_or("");
         let frac = date.split('.').nth(1).unwrap_or("");
         assert_eq!(frac.len(), 7, "six digits then Z: {date}");
-        assert!(frac.ends_with('Z') && frac[..6].chars().all(|ch| ch.is_ascii_digit()), "{date}");
+        assert!(
+            frac.ends_with('Z') && frac[..6].chars().all(|ch| ch.is_ascii_digit()),
+            "{date}"
+        );
         // Busy and idle are published around kernel_info too, on either channel.
         let out = c.outputs(&id).await;
         assert_eq!(types(&out), ["status", "status"]);
@@ -377,8 +434,14 @@ async fn execution_counts_history_flags_and_silent_runs() {
     assert_eq!(r.content["execution_count"], 1);
     assert_eq!(r.content["user_expressions"], json!({}));
     assert_eq!(r.content["payload"], json!([]));
-    let input = out.iter().find(|m| m.msg_type() == "execute_input").expect("execute_input");
-    assert_eq!(input.content, json!({"code": "x = 1 V", "execution_count": 1}));
+    let input = out
+        .iter()
+        .find(|m| m.msg_type() == "execute_input")
+        .expect("execute_input");
+    assert_eq!(
+        input.content,
+        json!({"code": "x = 1 V", "execution_count": 1})
+    );
 
     // Not stored: the count stays.
     let (r, _) = c.execute("y = 2 V", json!({"store_history": false})).await;
@@ -391,7 +454,13 @@ async fn execution_counts_history_flags_and_silent_runs() {
     assert_eq!(types(&out), ["status", "status"]);
 
     // Real clients may leave out silent and store_history: the defaults apply.
-    let id = c.send(Channel::Shell, "execute_request", json!({"code": "w = 4 V"})).await;
+    let id = c
+        .send(
+            Channel::Shell,
+            "execute_request",
+            json!({"code": "w = 4 V"}),
+        )
+        .await;
     let r = c.reply(Channel::Shell, &id).await;
     assert_eq!(r.content["status"], "ok", "{:?}", r.content);
     assert_eq!(r.content["execution_count"], 2);
@@ -399,18 +468,26 @@ async fn execution_counts_history_flags_and_silent_runs() {
     assert!(types(&out).contains(&"execute_input"));
 
     // user_expressions get one answer per key.
-    let (r, _) = c.execute("v = 5 V", json!({"user_expressions": {"a": "x"}})).await;
+    let (r, _) = c
+        .execute("v = 5 V", json!({"user_expressions": {"a": "x"}}))
+        .await;
     assert_eq!(r.content["user_expressions"]["a"]["status"], "error");
     assert_eq!(r.content["execution_count"], 3);
 
     // History holds the stored inputs only, numbered by execution count.
     let id = c
-        .send(Channel::Shell, "history_request",
-              json!({"hist_access_type": "tail", "n": 10, "output": false, "raw": true}))
+        .send(
+            Channel::Shell,
+            "history_request",
+            json!({"hist_access_type": "tail", "n": 10, "output": false, "raw": true}),
+        )
         .await;
     let h = c.reply(Channel::Shell, &id).await;
     assert_eq!(h.content["status"], "ok");
-    assert_eq!(h.content["history"], json!([[1, 1, "x = 1 V"], [1, 2, "w = 4 V"], [1, 3, "v = 5 V"]]));
+    assert_eq!(
+        h.content["history"],
+        json!([[1, 1, "x = 1 V"], [1, 2, "w = 4 V"], [1, 3, "v = 5 V"]])
+    );
     let id = c
         .send(Channel::Shell, "history_request",
               json!({"hist_access_type": "range", "session": 0, "start": 2, "stop": 3, "output": false, "raw": true}))
@@ -422,10 +499,16 @@ async fn execution_counts_history_flags_and_silent_runs() {
               json!({"hist_access_type": "search", "pattern": "? = [45] V", "output": false, "raw": true}))
         .await;
     let h = c.reply(Channel::Shell, &id).await;
-    assert_eq!(h.content["history"], json!([[1, 2, "w = 4 V"], [1, 3, "v = 5 V"]]));
+    assert_eq!(
+        h.content["history"],
+        json!([[1, 2, "w = 4 V"], [1, 3, "v = 5 V"]])
+    );
     let id = c
-        .send(Channel::Shell, "history_request",
-              json!({"hist_access_type": "tail", "n": 1, "output": true, "raw": true}))
+        .send(
+            Channel::Shell,
+            "history_request",
+            json!({"hist_access_type": "tail", "n": 1, "output": true, "raw": true}),
+        )
         .await;
     let h = c.reply(Channel::Shell, &id).await;
     assert_eq!(h.content["history"][0][2][0], "v = 5 V");
@@ -439,7 +522,13 @@ async fn complete_inspect_is_complete_and_comm_info_replies() {
 
     // "θ = 1 V\nθ" is 9 code points but 11 bytes: positions must come back in code points.
     let code = "θ = 1 V\nθ";
-    let id = c.send(Channel::Shell, "complete_request", json!({"code": code, "cursor_pos": 9})).await;
+    let id = c
+        .send(
+            Channel::Shell,
+            "complete_request",
+            json!({"code": code, "cursor_pos": 9}),
+        )
+        .await;
     let r = c.reply(Channel::Shell, &id).await;
     assert_eq!(r.msg_type(), "complete_reply");
     assert_eq!(r.content["status"], "ok");
@@ -449,7 +538,11 @@ async fn complete_inspect_is_complete_and_comm_info_replies() {
     assert!(r.content["metadata"].is_object());
 
     let id = c
-        .send(Channel::Shell, "inspect_request", json!({"code": "zz_nothing_here", "cursor_pos": 3, "detail_level": 0}))
+        .send(
+            Channel::Shell,
+            "inspect_request",
+            json!({"code": "zz_nothing_here", "cursor_pos": 3, "detail_level": 0}),
+        )
         .await;
     let r = c.reply(Channel::Shell, &id).await;
     assert_eq!(r.content["status"], "ok");
@@ -457,17 +550,31 @@ async fn complete_inspect_is_complete_and_comm_info_replies() {
     assert_eq!(r.content["data"], json!({}));
     assert_eq!(r.content["metadata"], json!({}));
 
-    let id = c.send(Channel::Shell, "is_complete_request", json!({"code": "x = 1 V"})).await;
+    let id = c
+        .send(
+            Channel::Shell,
+            "is_complete_request",
+            json!({"code": "x = 1 V"}),
+        )
+        .await;
     let r = c.reply(Channel::Shell, &id).await;
     assert_eq!(r.content["status"], "complete");
 
-    let id = c.send(Channel::Shell, "comm_info_request", json!({"target_name": "anything"})).await;
+    let id = c
+        .send(
+            Channel::Shell,
+            "comm_info_request",
+            json!({"target_name": "anything"}),
+        )
+        .await;
     let r = c.reply(Channel::Shell, &id).await;
     assert_eq!(r.content, json!({"status": "ok", "comms": {}}));
     assert_eq!(types(&c.outputs(&id).await), ["status", "status"]);
 
     // A malformed request gets an error reply, not silence and not a crash.
-    let id = c.send(Channel::Shell, "complete_request", json!({"code": 42})).await;
+    let id = c
+        .send(Channel::Shell, "complete_request", json!({"code": 42}))
+        .await;
     let r = c.reply(Channel::Shell, &id).await;
     assert_eq!(r.content["status"], "error");
     assert_eq!(r.content["ename"], "BadRequest");
@@ -478,13 +585,28 @@ async fn complete_inspect_is_complete_and_comm_info_replies() {
 async fn unknown_message_types_are_ignored() {
     let mut kernel = Kernel::start(Transport::Tcp, "k");
     let mut c = kernel.connect().await;
-    let _ = c.send(Channel::Shell, "frobnicate_request", json!({})).await;
-    let _ = c.send(Channel::Control, "frobnicate_request", json!({})).await;
-    assert!(c.recv(Channel::Control, SILENCE).await.is_none(), "no reply on control");
-    let id = c.send(Channel::Shell, "kernel_info_request", json!({})).await;
-    let r = c.recv(Channel::Shell, REPLY_TIMEOUT).await.expect("a reply");
+    let _ = c
+        .send(Channel::Shell, "frobnicate_request", json!({}))
+        .await;
+    let _ = c
+        .send(Channel::Control, "frobnicate_request", json!({}))
+        .await;
+    assert!(
+        c.recv(Channel::Control, SILENCE).await.is_none(),
+        "no reply on control"
+    );
+    let id = c
+        .send(Channel::Shell, "kernel_info_request", json!({}))
+        .await;
+    let r = c
+        .recv(Channel::Shell, REPLY_TIMEOUT)
+        .await
+        .expect("a reply");
     assert_eq!(r.parent_id(), id, "the first reply is the kernel_info one");
-    assert!(kernel.stderr().contains("frobnicate_request"), "the kernel logs it");
+    assert!(
+        kernel.stderr().contains("frobnicate_request"),
+        "the kernel logs it"
+    );
     shut_down(&mut kernel, &mut c).await;
 }
 
@@ -506,20 +628,45 @@ async fn messages_failing_verification_are_dropped_and_logged() {
     c.send_frames(Channel::Shell, frames).await;
     // A correct signature over different content (tampered after signing).
     let h2 = c.header("shutdown_request");
-    let sig_for_other = hmac_hex(&c.key, &[
-        serde_json::to_vec(&h2).expect("json"), b"{}".to_vec(), b"{}".to_vec(), b"{\"restart\":true}".to_vec(),
-    ]);
-    let frames = c.frames(&h2, &json!({"restart": false}), &json!({}), Some(&sig_for_other));
+    let sig_for_other = hmac_hex(
+        &c.key,
+        &[
+            serde_json::to_vec(&h2).expect("json"),
+            b"{}".to_vec(),
+            b"{}".to_vec(),
+            b"{\"restart\":true}".to_vec(),
+        ],
+    );
+    let frames = c.frames(
+        &h2,
+        &json!({"restart": false}),
+        &json!({}),
+        Some(&sig_for_other),
+    );
     c.send_frames(Channel::Control, frames).await;
     // No signature at all, and one that is not hex.
     let frames = c.frames(&c.header("execute_request"), &exec, &json!({}), Some(""));
     c.send_frames(Channel::Shell, frames).await;
-    let frames = c.frames(&c.header("execute_request"), &exec, &json!({}), Some("zz-not-hex"));
+    let frames = c.frames(
+        &c.header("execute_request"),
+        &exec,
+        &json!({}),
+        Some("zz-not-hex"),
+    );
     c.send_frames(Channel::Shell, frames).await;
 
-    assert!(c.recv(Channel::Shell, SILENCE).await.is_none(), "no shell reply");
-    assert!(c.recv(Channel::Control, SILENCE).await.is_none(), "no control reply");
-    assert!(kernel.wait_exit(Duration::from_millis(100)).is_none(), "the tampered shutdown was not acted on");
+    assert!(
+        c.recv(Channel::Shell, SILENCE).await.is_none(),
+        "no shell reply"
+    );
+    assert!(
+        c.recv(Channel::Control, SILENCE).await.is_none(),
+        "no control reply"
+    );
+    assert!(
+        kernel.wait_exit(Duration::from_millis(100)).is_none(),
+        "the tampered shutdown was not acted on"
+    );
     // Nothing ran: no execute_input, no busy status.
     while let Some(m) = c.iopub_msg(Duration::from_millis(200)).await {
         assert_ne!(m.msg_type(), "execute_input", "a rejected request ran");
@@ -529,7 +676,10 @@ async fn messages_failing_verification_are_dropped_and_logged() {
     let (r, _) = c.execute("x = 1 V", json!({})).await;
     assert_eq!(r.content["execution_count"], 1);
     let log = kernel.stderr();
-    assert!(log.matches("dropped a message").count() >= 4, "each drop is logged: {log}");
+    assert!(
+        log.matches("dropped a message").count() >= 4,
+        "each drop is logged: {log}"
+    );
     shut_down(&mut kernel, &mut c).await;
 }
 
@@ -537,7 +687,9 @@ async fn messages_failing_verification_are_dropped_and_logged() {
 async fn an_empty_key_disables_signing() {
     let mut kernel = Kernel::start(Transport::Tcp, "");
     let mut c = kernel.connect().await;
-    let id = c.send(Channel::Shell, "kernel_info_request", json!({})).await;
+    let id = c
+        .send(Channel::Shell, "kernel_info_request", json!({}))
+        .await;
     let r = c.reply(Channel::Shell, &id).await;
     assert_eq!(r.signature, "");
     shut_down(&mut kernel, &mut c).await;
@@ -546,10 +698,15 @@ async fn an_empty_key_disables_signing() {
 #[test]
 fn an_unknown_signature_scheme_stops_start_up() {
     let mut kernel = Kernel::start_with(Transport::Tcp, "k", "hmac-whirlpool", |_| {});
-    let status = kernel.wait_exit(Duration::from_secs(10)).expect("the kernel exits");
+    let status = kernel
+        .wait_exit(Duration::from_secs(10))
+        .expect("the kernel exits");
     assert!(!status.success());
     let log = kernel.stderr();
-    assert!(log.contains("signature_scheme") && log.contains("hmac-whirlpool"), "{log}");
+    assert!(
+        log.contains("signature_scheme") && log.contains("hmac-whirlpool"),
+        "{log}"
+    );
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
@@ -560,8 +717,14 @@ async fn heartbeat_echoes() {
     hb.connect(&kernel.url("hb")).await.expect("hb");
     for word in ["ping", "pong?"] {
         hb.send(ZmqMessage::from(word)).await.expect("send");
-        let back = timeout(REPLY_TIMEOUT, hb.recv()).await.expect("in time").expect("recv");
-        assert_eq!(back.get(0).map(|b| b.to_vec()), Some(word.as_bytes().to_vec()));
+        let back = timeout(REPLY_TIMEOUT, hb.recv())
+            .await
+            .expect("in time")
+            .expect("recv");
+        assert_eq!(
+            back.get(0).map(|b| b.to_vec()),
+            Some(word.as_bytes().to_vec())
+        );
     }
     shut_down(&mut kernel, &mut c).await;
 }
@@ -570,11 +733,15 @@ async fn heartbeat_echoes() {
 async fn shutdown_with_restart_on_shell() {
     let mut kernel = Kernel::start(Transport::Tcp, "k");
     let mut c = kernel.connect().await;
-    let id = c.send(Channel::Shell, "shutdown_request", json!({"restart": true})).await;
+    let id = c
+        .send(Channel::Shell, "shutdown_request", json!({"restart": true}))
+        .await;
     let r = c.reply(Channel::Shell, &id).await;
     assert_eq!(r.msg_type(), "shutdown_reply");
     assert_eq!(r.content, json!({"restart": true, "status": "ok"}));
-    let status = kernel.wait_exit(Duration::from_secs(5)).expect("the kernel exits");
+    let status = kernel
+        .wait_exit(Duration::from_secs(5))
+        .expect("the kernel exits");
     assert!(status.success());
 }
 
@@ -582,10 +749,18 @@ async fn shutdown_with_restart_on_shell() {
 async fn shutdown_on_control_exits_cleanly() {
     let mut kernel = Kernel::start(Transport::Tcp, "k");
     let mut c = kernel.connect().await;
-    let id = c.send(Channel::Control, "shutdown_request", json!({"restart": false})).await;
+    let id = c
+        .send(
+            Channel::Control,
+            "shutdown_request",
+            json!({"restart": false}),
+        )
+        .await;
     let r = c.reply(Channel::Control, &id).await;
     assert_eq!(r.content, json!({"restart": false, "status": "ok"}));
-    let status = kernel.wait_exit(Duration::from_secs(5)).expect("the kernel exits");
+    let status = kernel
+        .wait_exit(Duration::from_secs(5))
+        .expect("the kernel exits");
     assert!(status.success());
 }
 
@@ -603,14 +778,19 @@ async fn ipc_transport_replaces_a_stale_socket_file() {
     assert_eq!(r.content["status"], "ok");
     shut_down(&mut kernel, &mut c).await;
     let stale = stale.take().expect("path");
-    assert!(!Path::new(&stale).exists(), "socket files are removed on exit");
+    assert!(
+        !Path::new(&stale).exists(),
+        "socket files are removed on exit"
+    );
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn interrupt_while_idle_is_acknowledged() {
     let mut kernel = Kernel::start(Transport::Tcp, "k");
     let mut c = kernel.connect().await;
-    let id = c.send(Channel::Control, "interrupt_request", json!({})).await;
+    let id = c
+        .send(Channel::Control, "interrupt_request", json!({}))
+        .await;
     let r = c.reply(Channel::Control, &id).await;
     assert_eq!(r.content, json!({"status": "ok"}));
     // An interrupt with nothing running does not spoil the next run.
@@ -625,11 +805,19 @@ async fn sigint_does_not_kill_the_kernel() {
     let mut kernel = Kernel::start(Transport::Tcp, "k");
     let mut c = kernel.connect().await;
     let pid = kernel.child.id().to_string();
-    let ok = Command::new("kill").args(["-INT", &pid]).status().expect("kill runs");
+    let ok = Command::new("kill")
+        .args(["-INT", &pid])
+        .status()
+        .expect("kill runs");
     assert!(ok.success());
     tokio::time::sleep(Duration::from_millis(200)).await;
-    assert!(kernel.wait_exit(Duration::from_millis(10)).is_none(), "still running");
-    let id = c.send(Channel::Shell, "kernel_info_request", json!({})).await;
+    assert!(
+        kernel.wait_exit(Duration::from_millis(10)).is_none(),
+        "still running"
+    );
+    let id = c
+        .send(Channel::Shell, "kernel_info_request", json!({}))
+        .await;
     let _ = c.reply(Channel::Shell, &id).await;
     shut_down(&mut kernel, &mut c).await;
 }
@@ -644,20 +832,36 @@ const LONG_CELL: &str = "given a = 1 V ± 1 %\nsweep a over 1 V .. 2 V steps 100
 async fn an_error_aborts_the_queued_executes() {
     let mut kernel = Kernel::start(Transport::Tcp, "k");
     let mut c = kernel.connect().await;
-    let content = |code: &str| json!({"code": code, "silent": false, "store_history": true,
-                                       "user_expressions": {}, "allow_stdin": false, "stop_on_error": true});
+    let content = |code: &str| {
+        json!({"code": code, "silent": false, "store_history": true,
+                                       "user_expressions": {}, "allow_stdin": false, "stop_on_error": true})
+    };
     // Queue three at once, as "run all" does; the first one fails.
-    let a = c.send(Channel::Shell, "execute_request", content("x = 12 V + 3 A")).await;
-    let b = c.send(Channel::Shell, "execute_request", content("y = 1 V")).await;
-    let k = c.send(Channel::Shell, "kernel_info_request", json!({})).await;
-    let d = c.send(Channel::Shell, "execute_request", content("z = 2 V")).await;
+    let a = c
+        .send(Channel::Shell, "execute_request", content("x = 12 V + 3 A"))
+        .await;
+    let b = c
+        .send(Channel::Shell, "execute_request", content("y = 1 V"))
+        .await;
+    let k = c
+        .send(Channel::Shell, "kernel_info_request", json!({}))
+        .await;
+    let d = c
+        .send(Channel::Shell, "execute_request", content("z = 2 V"))
+        .await;
     let ra = c.reply(Channel::Shell, &a).await;
     assert_eq!(ra.content["status"], "error");
     assert_eq!(ra.content["ename"], "DimensionMismatch");
-    assert_eq!(c.reply(Channel::Shell, &b).await.content, json!({"status": "aborted"}));
+    assert_eq!(
+        c.reply(Channel::Shell, &b).await.content,
+        json!({"status": "aborted"})
+    );
     // Requests other than execute are answered as usual, in order.
     assert_eq!(c.reply(Channel::Shell, &k).await.content["status"], "ok");
-    assert_eq!(c.reply(Channel::Shell, &d).await.content, json!({"status": "aborted"}));
+    assert_eq!(
+        c.reply(Channel::Shell, &d).await.content,
+        json!({"status": "aborted"})
+    );
 
     // The error output carries the caret excerpt; it is the only output.
     let out = c.outputs(&a).await;
@@ -674,7 +878,9 @@ async fn an_error_aborts_the_queued_executes() {
     let mut no_stop = content("x = 12 V + 3 A");
     no_stop["stop_on_error"] = json!(false);
     let a = c.send(Channel::Shell, "execute_request", no_stop).await;
-    let b = c.send(Channel::Shell, "execute_request", content("y = 1 V")).await;
+    let b = c
+        .send(Channel::Shell, "execute_request", content("y = 1 V"))
+        .await;
     assert_eq!(c.reply(Channel::Shell, &a).await.content["status"], "error");
     assert_eq!(c.reply(Channel::Shell, &b).await.content["status"], "ok");
     shut_down(&mut kernel, &mut c).await;
@@ -688,25 +894,42 @@ async fn interrupt_stops_a_long_run_and_control_stays_responsive() {
     assert_eq!(r.content["status"], "ok");
     let started = Instant::now();
     let id = c
-        .send(Channel::Shell, "execute_request", json!({"code": LONG_CELL, "silent": false, "store_history": true}))
+        .send(
+            Channel::Shell,
+            "execute_request",
+            json!({"code": LONG_CELL, "silent": false, "store_history": true}),
+        )
         .await;
     tokio::time::sleep(Duration::from_millis(300)).await;
     // Control answers while the cell runs.
-    let k = c.send(Channel::Control, "kernel_info_request", json!({})).await;
+    let k = c
+        .send(Channel::Control, "kernel_info_request", json!({}))
+        .await;
     let _ = c.reply(Channel::Control, &k).await;
-    let i = c.send(Channel::Control, "interrupt_request", json!({})).await;
+    let i = c
+        .send(Channel::Control, "interrupt_request", json!({}))
+        .await;
     let _ = c.reply(Channel::Control, &i).await;
     let interrupted_at = Instant::now();
     let r = c.reply(Channel::Shell, &id).await;
     let latency = interrupted_at.elapsed();
-    println!("interrupt latency: {latency:?} (run had gone {:?})", interrupted_at - started);
+    println!(
+        "interrupt latency: {latency:?} (run had gone {:?})",
+        interrupted_at - started
+    );
     assert_eq!(r.content["status"], "error");
     assert_eq!(r.content["ename"], "Interrupted");
-    assert!(latency < Duration::from_secs(3), "stopped promptly: {latency:?}");
+    assert!(
+        latency < Duration::from_secs(3),
+        "stopped promptly: {latency:?}"
+    );
     // The kernel lives on, with the worksheet as it was.
     let (r, out) = c.execute("b * 2", json!({})).await;
     assert_eq!(r.content["status"], "ok");
-    let result = out.iter().find(|m| m.msg_type() == "execute_result").expect("a result");
+    let result = out
+        .iter()
+        .find(|m| m.msg_type() == "execute_result")
+        .expect("a result");
     let text = result.content["data"]["text/plain"].as_str().unwrap_or("");
     assert!(text.contains('4') && text.contains('V'), "{text}");
     shut_down(&mut kernel, &mut c).await;
@@ -716,17 +939,33 @@ async fn interrupt_stops_a_long_run_and_control_stays_responsive() {
 async fn result_blocks_have_display_ids_and_dependents_update() {
     let mut kernel = Kernel::start(Transport::Tcp, "k");
     let mut c = kernel.connect().await;
-    let (r, out) = c.execute_meta("given a = 2 V", json!({}), json!({"cellId": "cell-a"})).await;
+    let (r, out) = c
+        .execute_meta("given a = 2 V", json!({}), json!({"cellId": "cell-a"}))
+        .await;
     assert_eq!(r.content["status"], "ok");
-    let block = out.iter().find(|m| m.msg_type() == "display_data").expect("a result block");
+    let block = out
+        .iter()
+        .find(|m| m.msg_type() == "display_data")
+        .expect("a result block");
     assert_eq!(block.content["transient"]["display_id"], "headroom-cell-a");
-    for mime in ["text/plain", "text/html", "application/vnd.headroom.results+json"] {
-        assert!(block.content["data"].get(mime).is_some(), "{mime} in the block");
+    for mime in [
+        "text/plain",
+        "text/html",
+        "application/vnd.headroom.results+json",
+    ] {
+        assert!(
+            block.content["data"].get(mime).is_some(),
+            "{mime} in the block"
+        );
     }
-    let (_, out) = c.execute_meta("b = a * 3", json!({}), json!({"cellId": "cell-b"})).await;
+    let (_, out) = c
+        .execute_meta("b = a * 3", json!({}), json!({"cellId": "cell-b"}))
+        .await;
     assert!(out.iter().any(|m| m.msg_type() == "display_data"));
     // Changing the given updates the other cell's block in place.
-    let (_, out) = c.execute_meta("given a = 4 V", json!({}), json!({"cellId": "cell-a"})).await;
+    let (_, out) = c
+        .execute_meta("given a = 4 V", json!({}), json!({"cellId": "cell-a"}))
+        .await;
     let update = out
         .iter()
         .find(|m| m.msg_type() == "update_display_data")
@@ -744,7 +983,10 @@ async fn a_bare_expression_is_the_execute_result() {
     let mut c = kernel.connect().await;
     let (r, out) = c.execute("2 V * 3", json!({})).await;
     assert_eq!(r.content["status"], "ok");
-    let result = out.iter().find(|m| m.msg_type() == "execute_result").expect("a result");
+    let result = out
+        .iter()
+        .find(|m| m.msg_type() == "execute_result")
+        .expect("a result");
     assert_eq!(result.content["execution_count"], 1);
     // 2 V × 3 = 6 V.
     let text = result.content["data"]["text/plain"].as_str().unwrap_or("");

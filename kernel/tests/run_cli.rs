@@ -51,7 +51,8 @@ fn value<'a>(data: &'a Value, name: &str) -> &'a Value {
 }
 
 fn close(a: &Value, b: f64) -> bool {
-    a.as_f64().is_some_and(|a| (a - b).abs() <= 1e-9 * b.abs().max(1.0))
+    a.as_f64()
+        .is_some_and(|a| (a - b).abs() <= 1e-9 * b.abs().max(1.0))
 }
 
 const POWER: &str = "given v = 12 V\ngiven i = 2 A\np = v * i\n";
@@ -88,7 +89,8 @@ fn notebooks_are_not_supported_yet() {
     let r = run_file(&path, &[]);
     assert_eq!(r.code, 2);
     assert!(
-        r.stderr.contains("notebooks (.ipynb) are not supported yet"),
+        r.stderr
+            .contains("notebooks (.ipynb) are not supported yet"),
         "{}",
         r.stderr
     );
@@ -224,7 +226,9 @@ fn evaluated_hot_results_carry_the_caution() {
     let r = run_file(&path, &[]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     assert!(r.stdout.contains("80.0 °C"), "{}", r.stdout);
-    assert!(r.stdout.contains("surfaces above about 60 °C burn on touch"));
+    assert!(r
+        .stdout
+        .contains("surfaces above about 60 °C burn on touch"));
 
     let j = run_file(&path, &["--json"]);
     let data = json_of(&j);
@@ -268,5 +272,5 @@ fn evaluated_bare_expression_is_shown() {
     let r = run_file(&path, &[]);
     assert_eq!(r.code, 0, "{}", r.stderr);
     // 12 V / 2 = 6 V.
-    assert!(r.stdout.contains("Shown\n  6.00 V"), "{}", r.stdout);
+    assert!(r.stdout.contains("Shown\n  v / 2  6.00 V"), "{}", r.stdout);
 }

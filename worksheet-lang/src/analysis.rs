@@ -70,13 +70,22 @@ impl<'e, E: Evaluate> Passes<'e, E> {
 
     /// The value of scalar `s` under `a`.
     pub fn at(&mut self, a: &[Interval], s: usize) -> Option<Num> {
-        let k = Self::key(a);
+        self.at_seeded(a, None, s)
+    }
+
+    /// The value of scalar `s` under `a`, with the derivative of input `seed` carried.
+    pub fn at_seeded(&mut self, a: &[Interval], seed: Option<usize>, s: usize) -> Option<Num> {
+        let mut k = Self::key(a);
+        k.push(seed.map_or(u64::MAX, |x| x as u64));
         if !self.memo.contains_key(&k) {
             if self.interrupted {
                 return None;
             }
             self.count += 1;
-            match self.eval.pass(Mode::Assign(a.to_vec())) {
+            match self.eval.pass(Mode::Assign {
+                values: a.to_vec(),
+                seed,
+            }) {
                 Some(p) => {
                     self.memo.insert(k.clone(), p);
                 }
@@ -166,8 +175,13 @@ pub fn analyse<E: Evaluate>(
         let mut min_at: Vec<Interval> = (0..n).map(|k| end(k, false)).collect();
         let mut max_at: Vec<Interval> = (0..n).map(|k| end(k, true)).collect();
         let (min, max, conservative) = if unknown.is_empty() {
-            let lo = passes.at(&min_at, s)?.x.value();
-            let hi = passes.at(&max_at, s)?.x.value();
+            let (lo, hi) = (passes.at(&min_at, s), passes.at(&max_at, s));
+            if passes.interrupted {
+                return None;
+            }
+            // A value that fails at a corner has its error reported by that pass.
+            let (Some(lo), Some(hi)) = (lo, hi) else { continue };
+            let (lo, hi) = (lo.x.value(), hi.x.value());
             (lo.min(nom.x.value()), hi.max(nom.x.value()), false)
         } else {
             let pieces = match unknown.len() {
@@ -176,11 +190,16 @@ pub fn analyse<E: Evaluate>(
                 3 => 2,
                 _ => 1,
             };
-            let (lo, lo_at) = enclose(reg, passes, s, &min_at, &unknown, pieces, false)?;
-            let (hi, hi_at) = enclose(reg, passes, s, &max_at, &unknown, pieces, true)?;
+            let lo = enclose(reg, passes, s, &min_at, &unknown, pieces, false);
+            let hi = enclose(reg, passes, s, &max_at, &unknown, pieces, true);
+            if passes.interrupted {
+                return None;
+            }
+            let (Some((lo, lo_at, lo_exact)), Some((hi, hi_at, hi_exact))) = (lo, hi) else { continue };
             min_at = lo_at;
             max_at = hi_at;
-            (lo.min(nom.x.value()), hi.max(nom.x.value()), true)
+            // Exact when every sub-range proved monotone, so its extreme is at its end.
+            (lo.min(nom.x.value()), hi.max(nom.x.value()), !(lo_exact && hi_exact))
         };
         let mut swings = Vec::with_capacity(depends.len());
         for &k in &depends {
@@ -211,7 +230,8 @@ pub fn analyse<E: Evaluate>(
 }
 
 /// A guaranteed bound by subdivision of the inputs whose effect is not monotone, with
-/// the others fixed at their deciding ends. Also returns the worst sampled point.
+/// the others fixed at their deciding ends. Also returns the worst sampled point, and
+/// whether every sub-range proved monotone (then the bound is exact).
 fn enclose<E: Evaluate>(
     reg: &Registry,
     passes: &mut Passes<'_, E>,
@@ -220,8 +240,9 @@ fn enclose<E: Evaluate>(
     unknown: &[usize],
     pieces: usize,
     want_max: bool,
-) -> Option<(f64, Vec<Interval>)> {
+) -> Option<(f64, Vec<Interval>, bool)> {
     let cells = pieces.pow(unknown.len() as u32);
+    let mut all_exact = true;
     let mut bound = if want_max { f64::NEG_INFINITY } else { f64::INFINITY };
     let mut best_point = base.to_vec();
     let mut best_val = if want_max { f64::NEG_INFINITY } else { f64::INFINITY };
@@ -234,7 +255,44 @@ fn enclose<E: Evaluate>(
             a[k] = sub_range(&reg.inputs[k], j, pieces);
         }
         let v = passes.at(&a, s)?;
-        bound = if want_max { bound.max(v.x.v.hi) } else { bound.min(v.x.v.lo) };
+        if !v.x.is_finite() {
+            return None;
+        }
+        // The sub-box's enclosure: the plain interval value, tightened by the mean-value
+        // form f(c) + Σ f'ₖ(X)·(Xₖ − cₖ) (Moore, Kearfott & Cloud 2009, the mean value
+        // extension), and exact where the derivatives keep their signs inside it.
+        let centre: Vec<Interval> = a.iter().map(|i| Interval::point(i.mid())).collect();
+        let fc = passes.at(&centre, s)?.x.value();
+        let mut mv = Interval::point(fc);
+        let mut corner = a.clone();
+        let mut exact = true;
+        for &k in unknown {
+            let d = passes.at_seeded(&a, Some(k), s)?.x.d;
+            let dx = Interval::new(a[k].lo - centre[k].lo, a[k].hi - centre[k].lo);
+            mv = mv + mul(d, dx);
+            corner[k] = if (d.lo >= 0.0) == want_max && (d.lo >= 0.0 || d.hi <= 0.0) {
+                Interval::point(a[k].hi)
+            } else if d.lo >= 0.0 || d.hi <= 0.0 {
+                Interval::point(a[k].lo)
+            } else {
+                exact = false;
+                a[k]
+            };
+        }
+        all_exact &= exact;
+        let sub = if exact {
+            let x = passes.at(&corner, s)?.x.value();
+            if (want_max && x > best_val) || (!want_max && x < best_val) {
+                best_val = x;
+                best_point = corner.clone();
+            }
+            x
+        } else if want_max {
+            v.x.v.hi.min(mv.hi)
+        } else {
+            v.x.v.lo.max(mv.lo)
+        };
+        bound = if want_max { bound.max(sub) } else { bound.min(sub) };
         // Sample the sub-box's ends for a point that attains a near-worst value.
         for end in [false, true] {
             let p: Vec<Interval> = a
@@ -250,10 +308,18 @@ fn enclose<E: Evaluate>(
             }
         }
     }
-    if passes.interrupted {
+    if passes.interrupted || !bound.is_finite() {
         return None;
     }
-    Some((bound, best_point))
+    Some((bound, best_point, all_exact))
+}
+
+fn mul(a: Interval, b: Interval) -> Interval {
+    let p = [a.lo * b.lo, a.lo * b.hi, a.hi * b.lo, a.hi * b.hi];
+    Interval::new(
+        p.iter().copied().fold(f64::INFINITY, f64::min),
+        p.iter().copied().fold(f64::NEG_INFINITY, f64::max),
+    )
 }
 
 fn sub_range(i: &InputInfo, j: usize, pieces: usize) -> Interval {

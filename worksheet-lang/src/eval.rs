@@ -109,8 +109,9 @@ pub enum Mode {
     Nominal,
     /// Every input over its range; the derivative of input `seed` is carried (if any).
     Box { seed: Option<usize> },
-    /// Each input at the given interval (points for corners).
-    Assign(Vec<Interval>),
+    /// Each input at the given interval (points for corners); the derivative of input
+    /// `seed` is carried (if any).
+    Assign { values: Vec<Interval>, seed: Option<usize> },
 }
 
 /// The values of one pass.
@@ -230,7 +231,10 @@ impl<'a> Evaluator<'a> {
         Ok(match &self.pass.mode {
             Mode::Nominal => Dual::constant(info.nominal),
             Mode::Box { seed } => Dual::input(Interval::new(info.lo, info.hi), *seed == Some(id)),
-            Mode::Assign(a) => Dual::input(a.get(id).copied().unwrap_or(Interval::point(info.nominal)), false),
+            Mode::Assign { values, seed } => Dual::input(
+                values.get(id).copied().unwrap_or(Interval::point(info.nominal)),
+                *seed == Some(id),
+            ),
         })
     }
 
@@ -303,7 +307,13 @@ impl<'a> Evaluator<'a> {
             ExprKind::Binary { op, lhs, rhs } => {
                 let a = self.num(lhs)?;
                 let b = self.num(rhs)?;
-                binary(*op, a, b, &e.span, &rhs.span).map(Value::Num)
+                let r = binary(*op, a, b, &e.span, &rhs.span)?;
+                // An expression divided by itself is exactly one. Interval arithmetic alone
+                // cannot see that (the dependency problem), so say it here.
+                if *op == BinOp::Div && same_function(lhs, rhs) {
+                    return Ok(Value::Num(Num::constant(1.0, r.dim)));
+                }
+                Ok(Value::Num(r))
             }
             ExprKind::PlusMinus { base, spread } => self.plus_minus(base, spread, &e.span),
             ExprKind::Range { lo, hi } => self.range(lo, hi, &e.span),
@@ -802,6 +812,27 @@ impl<'a> Evaluator<'a> {
             self.input_site(span, 0.0, l, h, |d| Ok(Num { x: b.x + d, ..b }))?
         };
         Ok(Value::Num(n))
+    }
+}
+
+/// True when two expressions compute the same function of the same inputs: equal apart
+/// from their spans, and free of tolerance sites and calls (each site is an input of its
+/// own, so `(1 V ± 1 %) / (1 V ± 1 %)` is not one).
+fn same_function(a: &Expr, b: &Expr) -> bool {
+    match (&a.kind, &b.kind) {
+        (ExprKind::Number { value: x, unit: u }, ExprKind::Number { value: y, unit: v }) => {
+            x == y && u.as_ref().map(|u| &u.text) == v.as_ref().map(|v| &v.text)
+        }
+        (ExprKind::Code { value: x, .. }, ExprKind::Code { value: y, .. }) => x == y,
+        (ExprKind::Name(x), ExprKind::Name(y)) => x == y,
+        (ExprKind::Neg(x), ExprKind::Neg(y)) => same_function(x, y),
+        (ExprKind::Binary { op: o, lhs: a1, rhs: b1 }, ExprKind::Binary { op: p, lhs: a2, rhs: b2 }) => {
+            o == p && same_function(a1, a2) && same_function(b1, b2)
+        }
+        (ExprKind::Field { base: x, field: f }, ExprKind::Field { base: y, field: g }) => {
+            f.name == g.name && same_function(x, y)
+        }
+        _ => false,
     }
 }
 

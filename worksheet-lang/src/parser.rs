@@ -1,11 +1,71 @@
-//! STUB: the parser contract. `parse` never fails; `is_complete` drives Jupyter's
+//! The parser: tokens to a [`Program`]. `parse` never fails; `is_complete` drives Jupyter's
 //! is_complete_request.
-use crate::ast::Program;
+//!
+//! One statement per line. A statement continues on the next line while a `(` or `[` is
+//! open, or when the line ends with a token that needs a right-hand side (a binary operator,
+//! `=`, `:`, a comparison, a comma). Expressions are read by precedence climbing; every
+//! recursion and every level of the built tree is counted, so no input can overflow the
+//! stack (here or in whatever walks the tree later).
+//!
+//! After an error the parser skips to the end of the statement and goes on. A statement
+//! still yields what could be read: a definition whose value is broken keeps its name (the
+//! value is `ExprKind::Error`), so later statements see a failed definition rather than an
+//! unknown name. Every error has a diagnostic; its span lies inside the statement's span.
+
+use crate::ast::{
+    Arg, BinOp, CmpOp, Definition, Expr, ExprKind, Ident, Note, Program, Span, Stmt, StmtKind,
+    SweepStep, SweepVar, UnitExpr,
+};
+use crate::diagnostic::{DiagKind, Diagnostic};
+use crate::lexer::{self, Keyword, Token, TokenKind};
+use crate::units;
+
+/// Deepest nesting of the syntax tree, and of the parser's own recursion.
+pub const MAX_DEPTH: u32 = 256;
 
 /// Parses one cell.
 pub fn parse(source: &str) -> Program {
-    let _ = source;
-    Program::default()
+    let lexed = lexer::lex(source);
+    let matches = match_brackets(&lexed.tokens).0;
+    let mut p = Parser {
+        src: source,
+        ftext: lexed.folded.text(),
+        folded: &lexed.folded,
+        toks: &lexed.tokens,
+        matches,
+        pos: 0,
+        diags: Vec::new(),
+        quiet: Vec::new(),
+        brackets: Vec::new(),
+        nest: 0,
+        err_at: 0,
+        head: None,
+    };
+    let mut stmts = Vec::new();
+    loop {
+        while p.toks[p.pos].kind == TokenKind::Newline {
+            p.pos += 1;
+        }
+        if p.toks[p.pos].kind == TokenKind::Eof {
+            break;
+        }
+        stmts.push(p.statement());
+    }
+    let quiet = std::mem::take(&mut p.quiet);
+    let mut diagnostics: Vec<Diagnostic> = lexed
+        .diagnostics
+        .iter()
+        .filter(|d| {
+            !(d.kind == DiagKind::InvalidCharacter
+                && quiet
+                    .iter()
+                    .any(|q| q.start <= d.span.start && d.span.end <= q.end))
+        })
+        .cloned()
+        .collect();
+    diagnostics.append(&mut p.diags);
+    diagnostics.sort_by_key(|d| d.span.start);
+    Program { stmts, diagnostics }
 }
 
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -17,7 +77,1301 @@ pub enum Completeness {
     Invalid,
 }
 
+/// Whether a cell is ready to run: `Invalid` for an unterminated string or a closing bracket
+/// without its opening one, `Incomplete` while a bracket is open or the last line ends with
+/// a token that continues the statement, `Complete` otherwise.
 pub fn is_complete(source: &str) -> Completeness {
-    let _ = source;
+    let lexed = lexer::lex(source);
+    if lexed
+        .diagnostics
+        .iter()
+        .any(|d| d.kind == DiagKind::UnterminatedString)
+    {
+        return Completeness::Invalid;
+    }
+    let (_, stray_closer, open_at_end) = match_brackets(&lexed.tokens);
+    if stray_closer {
+        return Completeness::Invalid;
+    }
+    let last = lexed
+        .tokens
+        .iter()
+        .rev()
+        .find(|t| !matches!(t.kind, TokenKind::Newline | TokenKind::Eof));
+    if open_at_end || last.is_some_and(|t| t.kind.continues_line()) {
+        return Completeness::Incomplete {
+            indent: "    ".to_string(),
+        };
+    }
     Completeness::Complete
+}
+
+/// Pairs every bracket with its partner: `(` with `)`, `[` with `]`. A closer that does not
+/// fit the innermost opener closes the nearest fitting one (the openers in between stay
+/// unmatched) or, without one, is stray. Returns the partner of every token (brackets
+/// only), whether a stray or mismatched closer exists, and whether an opener is left open.
+fn match_brackets(toks: &[Token]) -> (Vec<Option<usize>>, bool, bool) {
+    let mut partner = vec![None; toks.len()];
+    let mut stack: Vec<usize> = Vec::new();
+    let mut bad = false;
+    for (i, t) in toks.iter().enumerate() {
+        let opener = match t.kind {
+            TokenKind::LParen | TokenKind::LBracket => {
+                stack.push(i);
+                continue;
+            }
+            TokenKind::RParen => TokenKind::LParen,
+            TokenKind::RBracket => TokenKind::LBracket,
+            _ => continue,
+        };
+        match stack.iter().rposition(|&o| toks[o].kind == opener) {
+            Some(at) => {
+                if at + 1 != stack.len() {
+                    bad = true;
+                }
+                let o = stack[at];
+                stack.truncate(at);
+                partner[o] = Some(i);
+                partner[i] = Some(o);
+            }
+            None => bad = true,
+        }
+    }
+    let open = !stack.is_empty();
+    (partner, bad, open)
+}
+
+/// A parse that stopped; its diagnostic is already recorded (or was the lexer's).
+struct Stop;
+
+type PResult<T> = Result<T, Stop>;
+
+/// An expression with the depth of its tree.
+struct Node {
+    e: Expr,
+    d: u32,
+}
+
+/// What was read of a statement before its value, so a broken value still yields a
+/// definition of the name.
+enum Head {
+    Given(Ident, Option<UnitExpr>),
+    Define(Ident, Option<UnitExpr>),
+    Function(Ident, Vec<Ident>, Option<UnitExpr>),
+}
+
+struct Parser<'a> {
+    src: &'a str,
+    ftext: &'a str,
+    folded: &'a crate::fold::Folded,
+    toks: &'a [Token],
+    matches: Vec<Option<usize>>,
+    pos: usize,
+    diags: Vec<Diagnostic>,
+    /// Original ranges read as unit text, where the lexer's invalid-character errors do not
+    /// apply (the unit parser reports on the whole text).
+    quiet: Vec<Span>,
+    /// Open brackets the parser is inside (token indices), innermost last.
+    brackets: Vec<usize>,
+    /// Current recursion depth of the expression parser.
+    nest: u32,
+    /// The token at which the last error was detected.
+    err_at: usize,
+    head: Option<(Head, usize)>,
+}
+
+fn comparison(kind: &TokenKind) -> Option<CmpOp> {
+    Some(match kind {
+        TokenKind::Lt => CmpOp::Lt,
+        TokenKind::Le => CmpOp::Le,
+        TokenKind::Gt => CmpOp::Gt,
+        TokenKind::Ge => CmpOp::Ge,
+        _ => return None,
+    })
+}
+
+fn starts_operand(kind: &TokenKind) -> bool {
+    matches!(
+        kind,
+        TokenKind::Number { .. }
+            | TokenKind::Code { .. }
+            | TokenKind::Name(_)
+            | TokenKind::Str(_)
+            | TokenKind::LParen
+            | TokenKind::LBracket
+            | TokenKind::BadValue
+    )
+}
+
+impl<'a> Parser<'a> {
+    // ---- tokens -------------------------------------------------------------------------
+
+    /// The previous token that is not a line break.
+    fn prev_token(&self, i: usize) -> Option<&'a Token> {
+        self.toks[..i]
+            .iter()
+            .rev()
+            .find(|t| t.kind != TokenKind::Newline)
+    }
+
+    /// Moves over line breaks that do not end the statement.
+    fn skip_joined_lines(&mut self) {
+        if self.toks[self.pos].kind != TokenKind::Newline {
+            return;
+        }
+        let joined = !self.brackets.is_empty()
+            || self
+                .prev_token(self.pos)
+                .is_some_and(|t| t.kind.continues_line());
+        if joined {
+            while self.toks[self.pos].kind == TokenKind::Newline {
+                self.pos += 1;
+            }
+        }
+    }
+
+    fn peek(&mut self) -> &'a TokenKind {
+        self.skip_joined_lines();
+        &self.toks[self.pos].kind
+    }
+
+    fn tok(&mut self) -> &'a Token {
+        self.skip_joined_lines();
+        &self.toks[self.pos]
+    }
+
+    /// The kind of the token `n` places after the current one, line breaks skipped.
+    fn peek_after(&mut self, n: usize) -> &'a TokenKind {
+        self.skip_joined_lines();
+        let mut i = self.pos;
+        let mut left = n;
+        while left > 0 && i + 1 < self.toks.len() {
+            i += 1;
+            if self.toks[i].kind != TokenKind::Newline {
+                left -= 1;
+            }
+        }
+        &self.toks[i].kind
+    }
+
+    fn at_end(&mut self) -> bool {
+        matches!(self.peek(), TokenKind::Newline | TokenKind::Eof)
+    }
+
+    /// Consumes the current token, keeping track of brackets.
+    fn bump(&mut self) -> usize {
+        self.skip_joined_lines();
+        let i = self.pos;
+        match self.toks[i].kind {
+            TokenKind::LParen | TokenKind::LBracket => self.brackets.push(i),
+            TokenKind::RParen | TokenKind::RBracket => {
+                self.brackets.pop();
+            }
+            TokenKind::Eof => return i,
+            _ => {}
+        }
+        self.pos += 1;
+        i
+    }
+
+    fn text(&self, span: &Span) -> &'a str {
+        self.src.get(span.clone()).unwrap_or("")
+    }
+
+    /// How a token is named in "found …".
+    fn describe(&self, t: &Token) -> String {
+        match &t.kind {
+            TokenKind::Newline => "end of line".to_string(),
+            TokenKind::Eof => "end of input".to_string(),
+            TokenKind::Keyword(k) => format!("the keyword `{}`", k.as_str()),
+            TokenKind::Name(_) => format!("the name `{}`", self.text(&t.span)),
+            TokenKind::Number { .. } | TokenKind::Code { .. } => {
+                format!("the number `{}`", self.text(&t.span))
+            }
+            TokenKind::Str(_) => "a string".to_string(),
+            _ => format!("`{}`", self.text(&t.span)),
+        }
+    }
+
+    /// Where a diagnostic about the current token points: the token, or just after the
+    /// previous token at the end of a line.
+    fn here(&mut self) -> Span {
+        let t = self.tok();
+        match t.kind {
+            TokenKind::Newline | TokenKind::Eof => {
+                let at = self.prev_token(self.pos).map_or(t.span.start, |p| p.span.end);
+                at..at
+            }
+            _ => t.span.clone(),
+        }
+    }
+
+    // ---- errors -------------------------------------------------------------------------
+
+    /// Records an error about the current token ("expected …, found …"). Inside a bracket
+    /// that is never closed, an error at the end of input or on a later line is reported
+    /// as the unclosed bracket instead.
+    fn fail(&mut self, expected: &str, hint: Option<String>) -> Stop {
+        let t = self.tok();
+        if let Some(stop) = self.unclosed(t) {
+            return stop;
+        }
+        if t.kind == TokenKind::Invalid {
+            // The lexer has reported this character.
+            self.err_at = self.pos;
+            return Stop;
+        }
+        let found = self.describe(t);
+        let mut d = Diagnostic::error(
+            DiagKind::UnexpectedToken,
+            self.here(),
+            format!("expected {expected}, found {found}"),
+        )
+        .expected(expected, found);
+        if let Some(h) = hint {
+            d = d.hint(h);
+        }
+        self.report(d)
+    }
+
+    fn unclosed(&mut self, t: &Token) -> Option<Stop> {
+        let &b = self.brackets.last()?;
+        if self.matches[b].is_some() {
+            return None;
+        }
+        let open = &self.toks[b];
+        if t.kind != TokenKind::Eof && t.line == open.line {
+            return None;
+        }
+        let (c, close) = match open.kind {
+            TokenKind::LBracket => ("[", "]"),
+            _ => ("(", ")"),
+        };
+        let found = self.describe(t);
+        let d = Diagnostic::error(
+            DiagKind::UnclosedDelimiter,
+            open.span.clone(),
+            format!("this `{c}` is never closed"),
+        )
+        .expected(format!("`{close}`"), found)
+        .hint(format!("close the `{c}` opened here"));
+        Some(self.report(d))
+    }
+
+    fn report(&mut self, d: Diagnostic) -> Stop {
+        self.diags.push(d);
+        self.err_at = self.pos;
+        Stop
+    }
+
+    /// An error for a token that follows a complete expression where something else was
+    /// expected, with a hint for the usual slips (`2 x`, `(a + b) V`, `x²`).
+    fn fail_after(&mut self, prev: &Expr, expected: &str) -> Stop {
+        let t = self.tok();
+        let prev = rightmost(prev);
+        let prev_text = self.text(&prev.span);
+        let hint = match &t.kind {
+            TokenKind::Name(n) if units::parse_unit(n).is_ok() => match &prev.kind {
+                ExprKind::Number { unit: None, .. } => Some(format!(
+                    "write the unit after the number with at most one space: `{prev_text} {n}`"
+                )),
+                _ => Some(format!("write the unit after a number: `1 {n}`")),
+            },
+            k if starts_operand(k) && expected.contains("`,`") => {
+                Some("separate the items with `,`".to_string())
+            }
+            k if starts_operand(k) => {
+                let next_text = self.text(&t.span);
+                Some(format!("write `{prev_text} * {next_text}`"))
+            }
+            TokenKind::UnitSymbol(c) => Some(symbol_hint(*c)),
+            TokenKind::Eq => Some(
+                "`=` defines a value (`name = …`); a check compares with `<`, `<=`, `>` or `>=`"
+                    .to_string(),
+            ),
+            TokenKind::Keyword(Keyword::As) => {
+                Some("`as UNIT` may only end a statement that shows a value".to_string())
+            }
+            TokenKind::PlusMinus | TokenKind::DotDot => Some(
+                "tolerances do not chain; put one in parentheses: `(a ± b) ± c`".to_string(),
+            ),
+            TokenKind::RParen | TokenKind::RBracket
+                if self.matches[self.pos].is_none() && self.brackets.is_empty() =>
+            {
+                Some("this closing bracket has no opening one".to_string())
+            }
+            TokenKind::RParen | TokenKind::RBracket => Some(format!(
+                "the bracket open here is closed with `{}`",
+                match self.brackets.last().map(|&b| &self.toks[b].kind) {
+                    Some(TokenKind::LBracket) => "]",
+                    _ => ")",
+                }
+            )),
+            _ => None,
+        };
+        self.fail(expected, hint)
+    }
+
+    fn too_deep(&mut self) -> Stop {
+        let d = Diagnostic::error(
+            DiagKind::TooDeep,
+            self.here(),
+            format!("the expression is nested too deeply (more than {MAX_DEPTH} levels)"),
+        )
+        .hint("split it into named intermediate values");
+        self.report(d)
+    }
+
+    // ---- statements ---------------------------------------------------------------------
+
+    fn statement(&mut self) -> Stmt {
+        let start = self.pos;
+        self.brackets.clear();
+        self.nest = 0;
+        self.head = None;
+        let outcome = match self.statement_kind() {
+            Ok(kind) => {
+                if self.at_end() {
+                    Ok(kind)
+                } else {
+                    // Only reached for forms that end in a note or a unit.
+                    let _ = self.fail("the end of the statement", None);
+                    Err(Stop)
+                }
+            }
+            Err(stop) => Err(stop),
+        };
+        let kind = match outcome {
+            Ok(kind) => kind,
+            Err(Stop) => {
+                let resume = self.recover(start).max(start + 1);
+                self.pos = resume;
+                let end = self.last_end(start, resume);
+                self.broken(end)
+            }
+        };
+        let end = self.last_end(start, self.pos);
+        Stmt {
+            kind,
+            span: self.toks[start].span.start..end,
+        }
+    }
+
+    /// The end of the last token before `pos` (not before `start`).
+    fn last_end(&self, start: usize, pos: usize) -> usize {
+        self.toks[start..pos.min(self.toks.len())]
+            .iter()
+            .rev()
+            .find(|t| !matches!(t.kind, TokenKind::Newline | TokenKind::Eof))
+            .map_or(self.toks[start].span.end, |t| t.span.end)
+    }
+
+    /// What a statement that stopped with an error becomes.
+    fn broken(&mut self, end: usize) -> StmtKind {
+        let Some((head, value_tok)) = self.head.take() else {
+            return StmtKind::Error;
+        };
+        let at = self.toks[value_tok].span.start.min(end);
+        let value = Expr {
+            kind: ExprKind::Error,
+            span: at..end,
+        };
+        match head {
+            Head::Given(name, unit) => StmtKind::Given(Definition {
+                name,
+                unit,
+                value,
+                note: None,
+            }),
+            Head::Define(name, unit) => StmtKind::Define(Definition {
+                name,
+                unit,
+                value,
+                note: None,
+            }),
+            Head::Function(name, params, unit) => StmtKind::Function {
+                name,
+                params,
+                unit,
+                body: value,
+            },
+        }
+    }
+
+    fn statement_kind(&mut self) -> PResult<StmtKind> {
+        match self.peek() {
+            TokenKind::Keyword(Keyword::Given) => {
+                self.bump();
+                let name = self.name("the name of the input after `given`")?;
+                let (unit, value, note) = self.definition_tail(&name, true)?;
+                Ok(StmtKind::Given(Definition {
+                    name,
+                    unit,
+                    value,
+                    note,
+                }))
+            }
+            TokenKind::Keyword(Keyword::Check) => self.check(),
+            TokenKind::Keyword(Keyword::Sweep) => self.sweep(),
+            TokenKind::Name(_) => match &self.toks[self.pos + 1].kind {
+                TokenKind::Eq | TokenKind::LBracket => {
+                    let name = self.name("a name")?;
+                    let (unit, value, note) = self.definition_tail(&name, false)?;
+                    Ok(StmtKind::Define(Definition {
+                        name,
+                        unit,
+                        value,
+                        note,
+                    }))
+                }
+                TokenKind::LParen if self.is_function_definition() => self.function(),
+                _ => self.show(),
+            },
+            _ => self.show(),
+        }
+    }
+
+    /// `NAME(…) =` or `NAME(…) [`: the head of a user function.
+    fn is_function_definition(&mut self) -> bool {
+        let open = self.pos + 1;
+        if self.toks.get(open).map(|t| &t.kind) != Some(&TokenKind::LParen) {
+            return false;
+        }
+        match self.matches[open] {
+            Some(close) => matches!(
+                self.toks.get(close + 1).map(|t| &t.kind),
+                Some(TokenKind::Eq | TokenKind::LBracket)
+            ),
+            None => false,
+        }
+    }
+
+    fn name(&mut self, expected: &str) -> PResult<Ident> {
+        let t = self.tok();
+        match &t.kind {
+            TokenKind::Name(n) => {
+                self.bump();
+                Ok(Ident {
+                    name: n.clone(),
+                    span: t.span.clone(),
+                })
+            }
+            TokenKind::Keyword(k) => {
+                let hint = format!("`{}` is a keyword and cannot be a name", k.as_str());
+                Err(self.fail(expected, Some(hint)))
+            }
+            _ => Err(self.fail(expected, None)),
+        }
+    }
+
+    /// `[UNIT]? = EXPR "note"?` after the name of a definition.
+    fn definition_tail(
+        &mut self,
+        name: &Ident,
+        given: bool,
+    ) -> PResult<(Option<UnitExpr>, Expr, Option<Note>)> {
+        let unit = if self.peek() == &TokenKind::LBracket {
+            Some(self.unit_in_brackets()?)
+        } else {
+            None
+        };
+        if self.peek() != &TokenKind::Eq {
+            let hint = match self.peek() {
+                TokenKind::LParen if given => {
+                    Some("an input is a value; define a function without `given`".to_string())
+                }
+                _ => Some(format!("a definition reads `{} = …`", name.name)),
+            };
+            return Err(self.fail("`=`", hint));
+        }
+        self.bump();
+        let head = if given {
+            Head::Given(name.clone(), unit.clone())
+        } else {
+            Head::Define(name.clone(), unit.clone())
+        };
+        self.skip_joined_lines();
+        self.head = Some((head, self.pos));
+        let value = self.expr()?.e;
+        let note = self.note();
+        if !self.at_end() {
+            let hint = match self.peek() {
+                TokenKind::Keyword(Keyword::As) => Some(format!(
+                    "`as` only ends a statement that shows a value; to fix the unit of `{0}` \
+                     write `{0} [UNIT] = …`",
+                    name.name
+                )),
+                _ if note.is_some() => Some("a note ends the statement".to_string()),
+                _ => None,
+            };
+            return Err(match hint {
+                Some(h) => self.fail("the end of the statement", Some(h)),
+                None => self.fail_after(&value, "an operator or the end of the statement"),
+            });
+        }
+        Ok((unit, value, note))
+    }
+
+    fn note(&mut self) -> Option<Note> {
+        let t = self.tok();
+        match &t.kind {
+            TokenKind::Str(s) => {
+                self.bump();
+                Some(Note {
+                    text: s.clone(),
+                    span: t.span.clone(),
+                })
+            }
+            _ => None,
+        }
+    }
+
+    /// `[UNIT]`: the text between the brackets, as written, checked by the unit parser.
+    fn unit_in_brackets(&mut self) -> PResult<UnitExpr> {
+        let open = self.pos;
+        let Some(close) = self.matches[open] else {
+            self.bump();
+            let t = self.tok();
+            return Err(self
+                .unclosed(t)
+                .unwrap_or_else(|| self.fail("`]` after the unit", None)));
+        };
+        let from = self.toks[open].folded.end;
+        let to = self.toks[close].folded.start;
+        self.pos = close + 1;
+        let unit = self.unit_text(from, to);
+        if unit.text.is_empty() {
+            let span = self.toks[open].span.start..self.toks[close].span.end;
+            let d = Diagnostic::error(DiagKind::UnexpectedToken, span, "no unit between `[` and `]`")
+                .expected("a unit", "`[]`")
+                .hint("write the unit the value must have, e.g. `[mW]`, or drop the brackets");
+            return Err(self.report(d));
+        }
+        Ok(unit)
+    }
+
+    /// The unit written in the folded range, trimmed, with an error if it is no unit.
+    fn unit_text(&mut self, from: usize, to: usize) -> UnitExpr {
+        let raw = self.ftext.get(from..to).unwrap_or("");
+        let lead = raw.len() - raw.trim_start().len();
+        let text = raw.trim();
+        let span = self.folded.span(from + lead..from + lead + text.len());
+        self.quiet.push(span.clone());
+        if !text.is_empty() {
+            if let Err(e) = units::parse_unit(text) {
+                let mut d = Diagnostic::error(DiagKind::UnknownUnit, span.clone(), e.message);
+                if let Some(h) = e.hint {
+                    d = d.hint(h);
+                }
+                self.diags.push(d);
+            }
+        }
+        UnitExpr {
+            text: text.to_string(),
+            span,
+        }
+    }
+
+    fn function(&mut self) -> PResult<StmtKind> {
+        let name = self.name("the function name")?;
+        self.bump(); // `(`
+        let mut params = Vec::new();
+        if self.peek() != &TokenKind::RParen {
+            loop {
+                params.push(self.name("a parameter name")?);
+                match self.peek() {
+                    TokenKind::Comma => {
+                        self.bump();
+                    }
+                    TokenKind::RParen => break,
+                    _ => {
+                        return Err(self.fail(
+                            "`,` or `)`",
+                            Some("a function's parameters are names: `f(a, b) = …`".into()),
+                        ))
+                    }
+                }
+            }
+        }
+        self.bump(); // `)`
+        let unit = if self.peek() == &TokenKind::LBracket {
+            Some(self.unit_in_brackets()?)
+        } else {
+            None
+        };
+        if self.peek() != &TokenKind::Eq {
+            return Err(self.fail("`=`", None));
+        }
+        self.bump();
+        self.skip_joined_lines();
+        self.head = Some((
+            Head::Function(name.clone(), params.clone(), unit.clone()),
+            self.pos,
+        ));
+        let body = self.expr()?.e;
+        if !self.at_end() {
+            let hint = match self.peek() {
+                TokenKind::Str(_) => Some("a function takes no note; write a comment: `# …`"),
+                _ => None,
+            };
+            return Err(match hint {
+                Some(h) => self.fail("the end of the statement", Some(h.to_string())),
+                None => self.fail_after(&body, "an operator or the end of the statement"),
+            });
+        }
+        Ok(StmtKind::Function {
+            name,
+            params,
+            unit,
+            body,
+        })
+    }
+
+    fn check(&mut self) -> PResult<StmtKind> {
+        self.bump();
+        let lhs = self.expr()?.e;
+        let Some(op) = comparison(self.peek()) else {
+            return Err(self.fail_after(&lhs, "a comparison `<`, `<=`, `>` or `>=`"));
+        };
+        self.bump();
+        let rhs = self.expr()?.e;
+        let note = self.note();
+        if !self.at_end() {
+            if comparison(self.peek()).is_some() {
+                let hint = "a check has one comparison; write one check per condition";
+                return Err(self.fail("the end of the check", Some(hint.to_string())));
+            }
+            return Err(self.fail_after(&rhs, "an operator, a note or the end of the check"));
+        }
+        Ok(StmtKind::Check { lhs, op, rhs, note })
+    }
+
+    fn sweep(&mut self) -> PResult<StmtKind> {
+        self.bump();
+        let mut vars = Vec::new();
+        loop {
+            let name = self.name("the name to sweep")?;
+            if self.peek() != &TokenKind::Keyword(Keyword::Over) {
+                let hint = format!("a sweep reads `sweep {} over A .. B: …`", name.name);
+                return Err(self.fail("`over`", Some(hint)));
+            }
+            self.bump();
+            let range = self.expr()?.e;
+            let (from, to) = match range.kind {
+                ExprKind::Range { lo, hi } => (*lo, *hi),
+                ExprKind::Error => return Err(Stop),
+                _ => {
+                    let d = Diagnostic::error(
+                        DiagKind::UnexpectedToken,
+                        range.span.clone(),
+                        "a sweep runs over a range",
+                    )
+                    .expected("a range `A .. B`", format!("`{}`", self.text(&range.span)))
+                    .hint("write both ends: `over 50 mA .. 300 mA`");
+                    return Err(self.report(d));
+                }
+            };
+            let step = match self.peek() {
+                TokenKind::Keyword(Keyword::Steps) => {
+                    self.bump();
+                    Some(SweepStep::Steps(self.expr()?.e))
+                }
+                TokenKind::Keyword(Keyword::By) => {
+                    self.bump();
+                    Some(SweepStep::By(self.expr()?.e))
+                }
+                _ => None,
+            };
+            vars.push(SweepVar {
+                name,
+                from,
+                to,
+                step,
+            });
+            match self.peek() {
+                TokenKind::Comma => {
+                    self.bump();
+                }
+                TokenKind::Colon => {
+                    self.bump();
+                    break;
+                }
+                _ => {
+                    let hint = "list what to show after a colon: `sweep x over 1 .. 2: y, z`";
+                    return Err(self.fail(
+                        "`steps`, `by`, `,` or `:`",
+                        Some(hint.to_string()),
+                    ));
+                }
+            }
+        }
+        let mut exprs = Vec::new();
+        loop {
+            let e = self.expr()?.e;
+            match self.peek() {
+                TokenKind::Comma => {
+                    self.bump();
+                    exprs.push(e);
+                }
+                TokenKind::Newline | TokenKind::Eof => {
+                    exprs.push(e);
+                    break;
+                }
+                _ => return Err(self.fail_after(&e, "`,` or the end of the sweep")),
+            }
+        }
+        Ok(StmtKind::Sweep { vars, exprs })
+    }
+
+    fn show(&mut self) -> PResult<StmtKind> {
+        let expr = self.expr()?.e;
+        let as_unit = if self.peek() == &TokenKind::Keyword(Keyword::As) {
+            self.bump();
+            Some(self.unit_after_as()?)
+        } else {
+            None
+        };
+        if !self.at_end() {
+            return Err(match self.peek() {
+                TokenKind::Str(_) if as_unit.is_none() => self.fail(
+                    "an operator or the end of the statement",
+                    Some("only definitions and checks take a note; write a comment: `# …`".into()),
+                ),
+                _ => self.fail_after(&expr, "an operator or the end of the statement"),
+            });
+        }
+        Ok(StmtKind::Show { expr, as_unit })
+    }
+
+    /// The unit after `as`: the rest of the line, as written.
+    fn unit_after_as(&mut self) -> PResult<UnitExpr> {
+        let first = self.pos;
+        let mut last = None;
+        let mut i = first;
+        while !matches!(self.toks[i].kind, TokenKind::Newline | TokenKind::Eof) {
+            last = Some(i);
+            i += 1;
+        }
+        let Some(last) = last else {
+            return Err(self.fail("a unit after `as`", Some("for example `x as mW`".into())));
+        };
+        self.pos = i;
+        Ok(self.unit_text(self.toks[first].folded.start, self.toks[last].folded.end))
+    }
+
+    // ---- recovery -----------------------------------------------------------------------
+
+    /// Where to go on after an error in the statement that began at `start`.
+    fn recover(&mut self, start: usize) -> usize {
+        let e = self.err_at.max(start);
+        let line = self.line_start(start, e);
+        let mut unclosed = self.brackets.iter().any(|&b| self.matches[b].is_none());
+        let mut end = None;
+        if !unclosed {
+            let mut p = e;
+            if let Some(close) = self.brackets.first().and_then(|&b| self.matches[b]) {
+                p = p.max(close + 1);
+            }
+            while end.is_none() {
+                match &self.toks[p].kind {
+                    TokenKind::Eof => end = Some(p),
+                    TokenKind::Newline => {
+                        if self.prev_token(p).is_some_and(|t| t.kind.continues_line()) {
+                            while self.toks[p].kind == TokenKind::Newline {
+                                p += 1;
+                            }
+                        } else {
+                            end = Some(p);
+                        }
+                    }
+                    TokenKind::LParen | TokenKind::LBracket => match self.matches[p] {
+                        Some(close) if close > p => p = close + 1,
+                        _ => {
+                            unclosed = true;
+                            break;
+                        }
+                    },
+                    _ => p += 1,
+                }
+            }
+        }
+        // The error is on a line that was read as a continuation but begins a statement of
+        // its own: the line before ended with an operator, or left a bracket open.
+        let joined_at_top = self.brackets.iter().all(|&b| b >= line);
+        if line > start && self.begins_statement(line) && (unclosed || joined_at_top) {
+            if joined_at_top && !unclosed {
+                if let Some(prev) = self.prev_token(line) {
+                    let t = self.text(&prev.span).to_string();
+                    if let Some(d) = self.diags.last_mut() {
+                        d.hint = Some(format!(
+                            "the line before ends with `{t}`, so this line was read as its \
+                             continuation"
+                        ));
+                    }
+                }
+            }
+            return line;
+        }
+        match end {
+            Some(end) if !unclosed => end,
+            _ => self.next_line(e),
+        }
+    }
+
+    /// The first token of the line holding token `e` (not before `start`).
+    fn line_start(&self, start: usize, e: usize) -> usize {
+        let mut i = e.min(self.toks.len() - 1);
+        while i > start && self.toks[i - 1].kind != TokenKind::Newline {
+            i -= 1;
+        }
+        i
+    }
+
+    /// The first token after the line holding token `e`.
+    fn next_line(&self, e: usize) -> usize {
+        let mut i = e;
+        while !matches!(self.toks[i].kind, TokenKind::Newline | TokenKind::Eof) {
+            i += 1;
+        }
+        while self.toks[i].kind == TokenKind::Newline {
+            i += 1;
+        }
+        i
+    }
+
+    /// Whether the tokens at `i` read like the start of a statement of their own.
+    fn begins_statement(&self, i: usize) -> bool {
+        match &self.toks[i].kind {
+            TokenKind::Keyword(Keyword::Given | Keyword::Check | Keyword::Sweep) => true,
+            TokenKind::Name(_) => matches!(
+                self.toks.get(i + 1).map(|t| &t.kind),
+                Some(TokenKind::Eq | TokenKind::LBracket)
+            ),
+            _ => false,
+        }
+    }
+
+    // ---- expressions --------------------------------------------------------------------
+
+    fn expr(&mut self) -> PResult<Node> {
+        self.binary(0)
+    }
+
+    /// Binary operators by precedence climbing. Levels, loosest first: 0 `+ -`, 1 `||`,
+    /// 2 `* /`; tighter levels are read by `tolerance`.
+    fn binary(&mut self, min: u8) -> PResult<Node> {
+        let mut lhs = self.tolerance()?;
+        loop {
+            let (op, level) = match self.peek() {
+                TokenKind::Plus => (BinOp::Add, 0),
+                TokenKind::Minus => (BinOp::Sub, 0),
+                TokenKind::Parallel => (BinOp::Parallel, 1),
+                TokenKind::Star => (BinOp::Mul, 2),
+                TokenKind::Slash => (BinOp::Div, 2),
+                _ => return Ok(lhs),
+            };
+            if level < min {
+                return Ok(lhs);
+            }
+            let op_tok = self.bump();
+            if op == BinOp::Mul && self.peek() == &TokenKind::Star {
+                let hint = "write a power with `^`: `x^2`".to_string();
+                return Err(self.fail("an expression", Some(hint)));
+            }
+            let rhs = self.binary(level + 1)?;
+            lhs = self.join(op_tok, lhs, rhs, |l, r| ExprKind::Binary {
+                op,
+                lhs: Box::new(l),
+                rhs: Box::new(r),
+            })?;
+        }
+    }
+
+    /// Builds a node over two children, checking the tree depth.
+    fn join(
+        &mut self,
+        op_tok: usize,
+        lhs: Node,
+        rhs: Node,
+        make: impl FnOnce(Expr, Expr) -> ExprKind,
+    ) -> PResult<Node> {
+        let d = lhs.d.max(rhs.d) + 1;
+        if d > MAX_DEPTH {
+            self.pos = op_tok;
+            return Err(self.too_deep());
+        }
+        let span = lhs.e.span.start..rhs.e.span.end;
+        Ok(Node {
+            e: Expr {
+                kind: make(lhs.e, rhs.e),
+                span,
+            },
+            d,
+        })
+    }
+
+    /// `a ± b`, `a +/- b`, `a .. b`: one tolerance operator, no chains.
+    fn tolerance(&mut self) -> PResult<Node> {
+        let lhs = self.unary()?;
+        let range = match self.peek() {
+            TokenKind::PlusMinus => false,
+            TokenKind::DotDot => true,
+            _ => return Ok(lhs),
+        };
+        let op_tok = self.bump();
+        let rhs = self.unary()?;
+        if range {
+            self.check_range_units(&lhs.e, &rhs.e);
+        }
+        let node = self.join(op_tok, lhs, rhs, |l, r| {
+            if range {
+                ExprKind::Range {
+                    lo: Box::new(l),
+                    hi: Box::new(r),
+                }
+            } else {
+                ExprKind::PlusMinus {
+                    base: Box::new(l),
+                    spread: Box::new(r),
+                }
+            }
+        })?;
+        if matches!(self.peek(), TokenKind::PlusMinus | TokenKind::DotDot) {
+            let text = self.text(&node.e.span).to_string();
+            let d = Diagnostic::error(
+                DiagKind::UnexpectedToken,
+                self.here(),
+                "tolerance operators do not chain",
+            )
+            .expected("an operator or the end of the expression", self.describe(self.toks_at()))
+            .hint(format!(
+                "give one tolerance, or group the first in parentheses: `({text}) …`"
+            ));
+            return Err(self.report(d));
+        }
+        Ok(node)
+    }
+
+    fn toks_at(&self) -> &'a Token {
+        &self.toks[self.pos]
+    }
+
+    /// `10.8 .. 13.2 V`: each end of a range carries its own unit.
+    fn check_range_units(&mut self, lo: &Expr, hi: &Expr) {
+        fn literal(e: &Expr) -> Option<(&Expr, Option<&UnitExpr>)> {
+            match &e.kind {
+                ExprKind::Number { unit, .. } => Some((e, unit.as_ref())),
+                ExprKind::Neg(inner) => literal(inner),
+                _ => None,
+            }
+        }
+        let (Some((lo_n, lo_u)), Some((hi_n, hi_u))) = (literal(lo), literal(hi)) else {
+            return;
+        };
+        let unit = match (lo_u, hi_u) {
+            (None, Some(u)) | (Some(u), None) => u.text.clone(),
+            _ => return,
+        };
+        let bare = |e: &Expr, n: &Expr, u: Option<&UnitExpr>| match u {
+            Some(_) => self.text(&e.span).to_string(),
+            None => format!("{} {unit}", self.text(&(e.span.start..n.span.end))),
+        };
+        let fixed = format!("{} .. {}", bare(lo, lo_n, lo_u), bare(hi, hi_n, hi_u));
+        let d = Diagnostic::error(
+            DiagKind::RangeNeedsUnits,
+            lo.span.start..hi.span.end,
+            "each end of a range carries its own unit",
+        )
+        .hint(format!("write `{fixed}`"));
+        self.diags.push(d);
+    }
+
+    /// Unary `-` and `+`, then a power.
+    fn unary(&mut self) -> PResult<Node> {
+        self.nest += 1;
+        let r = if self.nest > MAX_DEPTH {
+            Err(self.too_deep())
+        } else {
+            self.unary_inner()
+        };
+        self.nest -= 1;
+        r
+    }
+
+    fn unary_inner(&mut self) -> PResult<Node> {
+        let mut signs = Vec::new();
+        while let TokenKind::Minus | TokenKind::Plus = self.peek() {
+            if signs.len() as u32 >= MAX_DEPTH {
+                return Err(self.too_deep());
+            }
+            signs.push(self.bump());
+        }
+        let mut node = self.power()?;
+        for &s in signs.iter().rev() {
+            let span = self.toks[s].span.start..node.e.span.end;
+            if self.toks[s].kind == TokenKind::Plus {
+                node.e.span = span;
+                continue;
+            }
+            node.d += 1;
+            if node.d > MAX_DEPTH {
+                self.pos = s;
+                return Err(self.too_deep());
+            }
+            node.e = Expr {
+                kind: ExprKind::Neg(Box::new(node.e)),
+                span,
+            };
+        }
+        Ok(node)
+    }
+
+    /// `base ^ exponent`, right-associative; the exponent may carry a sign (`x^-1`).
+    fn power(&mut self) -> PResult<Node> {
+        let base = self.postfix()?;
+        if self.peek() != &TokenKind::Caret {
+            return Ok(base);
+        }
+        let op_tok = self.bump();
+        let exponent = self.unary()?;
+        self.join(op_tok, base, exponent, |l, r| ExprKind::Binary {
+            op: BinOp::Pow,
+            lhs: Box::new(l),
+            rhs: Box::new(r),
+        })
+    }
+
+    /// A primary followed by calls and field accesses.
+    fn postfix(&mut self) -> PResult<Node> {
+        let mut node = self.primary()?;
+        loop {
+            match self.peek() {
+                TokenKind::Dot => {
+                    let dot = self.bump();
+                    let field = self.name("a field name after `.`")?;
+                    node.d += 1;
+                    if node.d > MAX_DEPTH {
+                        self.pos = dot;
+                        return Err(self.too_deep());
+                    }
+                    let span = node.e.span.start..field.span.end;
+                    node.e = Expr {
+                        kind: ExprKind::Field {
+                            base: Box::new(node.e),
+                            field,
+                        },
+                        span,
+                    };
+                }
+                TokenKind::LParen if node.e.path().is_some() => node = self.call(node)?,
+                _ => return Ok(node),
+            }
+        }
+    }
+
+    fn call(&mut self, callee: Node) -> PResult<Node> {
+        self.bump(); // `(`
+        let mut d = callee.d;
+        let mut args: Vec<Arg> = Vec::new();
+        let mut first_named: Option<Ident> = None;
+        let close = loop {
+            if self.peek() == &TokenKind::RParen {
+                break self.bump();
+            }
+            let named = matches!(self.peek(), TokenKind::Name(_))
+                && self.peek_after(1) == &TokenKind::Colon;
+            let arg = if named {
+                let name = self.name("an argument name")?;
+                self.bump(); // `:`
+                let value = self.expr()?;
+                d = d.max(value.d);
+                if first_named.is_none() {
+                    first_named = Some(name.clone());
+                }
+                Arg {
+                    name: Some(name),
+                    value: value.e,
+                }
+            } else {
+                let value = self.expr()?;
+                d = d.max(value.d);
+                if let Some(first) = &first_named {
+                    let d = Diagnostic::error(
+                        DiagKind::UnexpectedToken,
+                        value.e.span.clone(),
+                        "a positional argument after a named one",
+                    )
+                    .expected("a named argument (`name: value`)", "a positional one")
+                    .hint(format!(
+                        "name this argument, or move it before `{}:`",
+                        first.name
+                    ));
+                    self.diags.push(d);
+                }
+                Arg {
+                    name: None,
+                    value: value.e,
+                }
+            };
+            args.push(arg);
+            match self.peek() {
+                TokenKind::Comma => {
+                    self.bump();
+                }
+                TokenKind::RParen => break self.bump(),
+                _ => {
+                    let last = &args[args.len() - 1].value;
+                    return Err(self.fail_after(last, "`,` or `)`"));
+                }
+            }
+        };
+        let d = d + 1;
+        if d > MAX_DEPTH {
+            self.pos = close;
+            return Err(self.too_deep());
+        }
+        let span = callee.e.span.start..self.toks[close].span.end;
+        Ok(Node {
+            e: Expr {
+                kind: ExprKind::Call {
+                    callee: Box::new(callee.e),
+                    args,
+                },
+                span,
+            },
+            d,
+        })
+    }
+
+    fn primary(&mut self) -> PResult<Node> {
+        let t = self.tok();
+        let leaf = |kind| {
+            Ok(Node {
+                e: Expr {
+                    kind,
+                    span: t.span.clone(),
+                },
+                d: 1,
+            })
+        };
+        match &t.kind {
+            TokenKind::Number { value, unit } => {
+                self.bump();
+                leaf(ExprKind::Number {
+                    value: *value,
+                    unit: unit.clone(),
+                })
+            }
+            TokenKind::Code { value, kind, text } => {
+                self.bump();
+                leaf(ExprKind::Code {
+                    value: *value,
+                    kind: *kind,
+                    text: text.clone(),
+                })
+            }
+            TokenKind::Str(s) => {
+                self.bump();
+                leaf(ExprKind::Str(s.clone()))
+            }
+            TokenKind::Name(n) => {
+                self.bump();
+                leaf(ExprKind::Name(n.clone()))
+            }
+            TokenKind::BadValue => {
+                self.bump();
+                leaf(ExprKind::Error)
+            }
+            TokenKind::LParen => {
+                let open = self.bump();
+                let mut inner = self.expr()?;
+                if self.peek() != &TokenKind::RParen {
+                    return Err(self.fail_after(&inner.e, "`)`"));
+                }
+                let close = self.bump();
+                inner.e.span = self.toks[open].span.start..self.toks[close].span.end;
+                Ok(inner)
+            }
+            TokenKind::LBracket => self.list(),
+            _ => {
+                let hint = match &t.kind {
+                    TokenKind::Dot
+                        if matches!(self.peek_after(1), TokenKind::Number { .. }) =>
+                    {
+                        Some("write a leading zero: `0.5`".to_string())
+                    }
+                    TokenKind::UnitSymbol(c) => Some(symbol_hint(*c)),
+                    TokenKind::Star | TokenKind::Slash | TokenKind::Caret => {
+                        Some("an operator needs a value on each side".to_string())
+                    }
+                    TokenKind::Keyword(k) => {
+                        Some(format!("`{}` is a keyword and cannot be a name", k.as_str()))
+                    }
+                    TokenKind::RParen | TokenKind::RBracket
+                        if self.matches[self.pos].is_none() =>
+                    {
+                        Some("this closing bracket has no opening one".to_string())
+                    }
+                    _ => None,
+                };
+                Err(self.fail("an expression", hint))
+            }
+        }
+    }
+
+    fn list(&mut self) -> PResult<Node> {
+        let open = self.bump();
+        let mut items = Vec::new();
+        let mut d = 0;
+        let close = loop {
+            if self.peek() == &TokenKind::RBracket {
+                break self.bump();
+            }
+            let item = self.expr()?;
+            d = d.max(item.d);
+            items.push(item.e);
+            match self.peek() {
+                TokenKind::Comma => {
+                    self.bump();
+                }
+                TokenKind::RBracket => break self.bump(),
+                _ => {
+                    let last = &items[items.len() - 1];
+                    return Err(self.fail_after(last, "`,` or `]`"));
+                }
+            }
+        };
+        let d = d + 1;
+        if d > MAX_DEPTH {
+            self.pos = close;
+            return Err(self.too_deep());
+        }
+        Ok(Node {
+            e: Expr {
+                kind: ExprKind::List(items),
+                span: self.toks[open].span.start..self.toks[close].span.end,
+            },
+            d,
+        })
+    }
+}
+
+fn symbol_hint(c: char) -> String {
+    match c {
+        '°' => "write the unit after a number: `25 °C`".to_string(),
+        '%' => "write the unit after a number: `10 %`".to_string(),
+        _ => "write a power with `^`: `x^2`".to_string(),
+    }
+}
+
+/// The last operand of an expression (`3` in `1 + 2 * 3`): what a following token touches.
+fn rightmost(mut e: &Expr) -> &Expr {
+    loop {
+        e = match &e.kind {
+            ExprKind::Binary { rhs, .. } => rhs,
+            ExprKind::PlusMinus { spread, .. } => spread,
+            ExprKind::Range { hi, .. } => hi,
+            _ => return e,
+        };
+    }
 }

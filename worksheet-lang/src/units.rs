@@ -4,9 +4,9 @@
 //! maps to SI (`factor`, and for a lone `°C`/`°F` an offset); [`Dim`] carries the exponents
 //! of the seven base dimensions so every operation can be checked.
 //!
-//! Compound units follow NIST SP 811 (2008) §6.1.6 (section number from memory): a solidus is not followed by another
-//! solidus or a product sign unless parentheses make the meaning plain, so `W/(m·K)` is
-//! accepted and `W/m·K` is an error with a hint.
+//! Compound units follow NIST SP 811 (2008) §6.1.6 (section number from memory): a solidus
+//! is not followed by another solidus or a product sign unless parentheses make the meaning
+//! plain, so `W/(m·K)` is accepted and `W/m·K` is an error with a hint.
 
 use std::sync::OnceLock;
 
@@ -501,7 +501,8 @@ struct Symbol {
     temperature: Option<TempScale>,
 }
 
-/// SI prefixes (SI Brochure, 9th ed., Table 7; table number from memory); `c` is offered on the metre only (cm²).
+/// SI prefixes (SI Brochure, 9th ed., Table 7; table number from memory); `c` is offered on
+/// the metre only (cm²).
 const PREFIXES: &[(char, i32)] = &[
     ('p', -12),
     ('n', -9),
@@ -1088,7 +1089,8 @@ impl Parser<'_> {
             return error(
                 format!("a space inside the unit `{}`", self.src),
                 Some(format!(
-                    "write a compound unit without spaces (`{joined}`); with spaces it is arithmetic"
+                    "write a compound unit without spaces (`{joined}`); \
+                     with spaces it is arithmetic"
                 )),
             );
         }

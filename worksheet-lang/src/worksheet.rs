@@ -371,6 +371,8 @@ struct DefEntry {
     unit: Option<Unit>,
     note: String,
     given: bool,
+    /// The expression as written in the cell, when an override replaced it.
+    original: Option<Expr>,
     overridden: bool,
     static_error: Option<EvalError>,
 }
@@ -510,6 +512,7 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                         unit,
                         note: d.note.as_ref().map(|n| n.text.clone()).unwrap_or_default(),
                         given,
+                        original: ov.map(|_| d.value.clone()),
                         overridden: ov.is_some(),
                         static_error,
                     });
@@ -784,7 +787,10 @@ impl Runner<'_> {
                 if nominal {
                     self.notes.extend(notes.into_iter().map(|n| (def.cell, n)));
                 }
-                r
+                match (r, &def.original) {
+                    (Ok(v), Some(orig)) if nominal => same_kind(&scope, orig, &v, def).map(|()| v),
+                    (r, _) => r,
+                }
             };
             match result {
                 Ok(v) => {
@@ -910,6 +916,37 @@ impl Runner<'_> {
             self.nominal_values = values;
         }
         Some(pass)
+    }
+}
+
+/// An override must have the dimension of the value it replaces.
+fn same_kind(scope: &Scope<'_>, original: &Expr, new: &Value, def: &DefEntry) -> Result<(), EvalError> {
+    let mut pass = Pass::new(Mode::Nominal, 0);
+    let mut scratch = Registry::default();
+    let mut ev = Evaluator {
+        names: scope,
+        reg: &mut scratch,
+        pass: &mut pass,
+        stmt_key: "override".into(),
+        stmt_label: def.name.clone(),
+        given: true,
+        locals: Vec::new(),
+        depth: 0,
+        notes: Vec::new(),
+    };
+    let Ok(old) = ev.eval(original) else { return Ok(()) };
+    match (&old, new) {
+        (Value::Num(a), Value::Num(b)) if a.dim != b.dim || a.abs != b.abs => Err(EvalError::new(
+            DiagKind::DimensionMismatch,
+            &def.value_span,
+            format!(
+                "`{}` is {} in the worksheet, but the value set from outside is {}",
+                def.name,
+                units::describe_quantity(a.dim, a.abs),
+                units::describe_quantity(b.dim, b.abs)
+            ),
+        )),
+        _ => Ok(()),
     }
 }
 

@@ -161,7 +161,8 @@ fn factors_match_nist_sp811() {
     assert_close!(factor("Ah"), 3.6e3); // ampere hour = 3.6 E+03 C
     assert_close!(factor("min"), 60.0); // minute = 6.0 E+01 s
     assert_close!(factor("h"), 3.6e3); // hour = 3.6 E+03 s
-                                       // NIST SP 811 (2008), B.8: degree Fahrenheit (interval) = 5.555556 E-01 K (exactly 5/9).
+
+    // NIST SP 811 (2008), B.8: degree Fahrenheit (interval) = 5.555556 E-01 K (exactly 5/9).
     assert!((factor("°F/W") - 0.5555556).abs() < 1e-7);
     assert!((factor("degF") - 0.5555556).abs() < 1e-7);
     // Inside a compound unit a degree Celsius is a difference, equal to one kelvin
@@ -556,7 +557,8 @@ proptest! {
                     continue;
                 }
                 let back = u.from_si(u.to_si(x, absolute), absolute);
-                prop_assert!((back - x).abs() <= 1e-9 * x.abs().max(1000.0), "{}: {} -> {}", text, x, back);
+                let tol = 1e-9 * x.abs().max(1000.0);
+                prop_assert!((back - x).abs() <= tol, "{}: {} -> {}", text, x, back);
             }
         }
         // Compound factors are products and quotients of the parts.
@@ -573,7 +575,14 @@ proptest! {
 
     #[test]
     fn displayed_value_reads_back(e in -11.0f64..8.0, m in 1.0f64..10.0, k in 0usize..6) {
-        let dims = [Dim::VOLTAGE, Dim::CURRENT, Dim::RESISTANCE, Dim::POWER, Dim::FREQUENCY, Dim::TIME];
+        let dims = [
+            Dim::VOLTAGE,
+            Dim::CURRENT,
+            Dim::RESISTANCE,
+            Dim::POWER,
+            Dim::FREQUENCY,
+            Dim::TIME,
+        ];
         let si = m * 10f64.powf(e);
         let text = format_si(si, dims[k], false, 3);
         let (num, unit_text) = text.split_once(' ').unwrap_or((text.as_str(), ""));

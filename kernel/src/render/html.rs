@@ -67,17 +67,27 @@ fn value_row(out: &mut String, v: &ValueRow) {
                 esc(u)
             );
             let range = v.range_text.as_deref().unwrap_or("");
-            let conservative = if bounds.as_ref().is_some_and(|b| b.conservative) && !range.is_empty() {
+            let conservative = if bounds.as_ref().is_some_and(|b| b.conservative)
+                && !range.is_empty()
+            {
                 format!(
                     r#" <span style="{SOFT}" title="guaranteed to enclose the worst case, perhaps wider">(conservative)</span>"#
                 )
             } else {
                 String::new()
             };
-            let _ = write!(out, r#"<td style="{RANGE}">{}{conservative}</td>"#, esc(range));
+            let _ = write!(
+                out,
+                r#"<td style="{RANGE}">{}{conservative}</td>"#,
+                esc(range)
+            );
         }
         Shown::Text(_) | Shown::Other(_) => {
-            let _ = write!(out, r#"<td colspan="3" style="{PLAIN}">{}</td>"#, esc(&v.text));
+            let _ = write!(
+                out,
+                r#"<td colspan="3" style="{PLAIN}">{}</td>"#,
+                esc(&v.text)
+            );
         }
     }
     let _ = write!(out, r#"<td style="{NOTE}">{}</td>"#, esc(&v.note));
@@ -101,7 +111,11 @@ fn check_row(out: &mut String, c: &CheckRow) {
         esc(n),
         esc(u)
     );
-    let conservative = if c.conservative { " (conservative)" } else { "" };
+    let conservative = if c.conservative {
+        " (conservative)"
+    } else {
+        ""
+    };
     let _ = write!(
         out,
         r#"<td style="{RANGE}"><span style="{SOFT}">worst</span> {} <span style="{SOFT}">limit</span> {}{conservative}</td>"#,

@@ -87,7 +87,8 @@ fn check(c: &CheckRow) -> Value {
 
 fn sweep(s: &SweepTable) -> Value {
     let keep = decimate(s);
-    let pick = |xs: &[f64]| -> Vec<f64> { keep.iter().filter_map(|&i| xs.get(i).copied()).collect() };
+    let pick =
+        |xs: &[f64]| -> Vec<f64> { keep.iter().filter_map(|&i| xs.get(i).copied()).collect() };
     let series: Vec<Value> = s
         .series
         .iter()
@@ -153,89 +154,7 @@ pub(super) fn decimate(s: &SweepTable) -> Vec<usize> {
     keep.into_iter().collect()
 }
 
-/// The coherent SI unit of a dimension as written in the data: "V", "K/W", "1" for a pure
-/// number. Named units first, then a quotient or product of two named units ("V/K"), else
-/// the SI base units ("kg·m^2/(s^3·A)").
-pub(super) fn unit_symbol(dim: Dim) -> String {
-    const NAMED: &[(Dim, &str)] = &[
-        (Dim::NONE, "1"),
-        (Dim::VOLTAGE, "V"),
-        (Dim::CURRENT, "A"),
-        (Dim::POWER, "W"),
-        (Dim::RESISTANCE, "Ω"),
-        (Dim::TEMPERATURE, "K"),
-        (Dim::THERMAL_RESISTANCE, "K/W"),
-        (Dim::CAPACITANCE, "F"),
-        (Dim::CHARGE, "C"),
-        (Dim::ENERGY, "J"),
-        (Dim::TIME, "s"),
-        (Dim::LENGTH, "m"),
-        (Dim([2, 1, -2, -2, 0, 0, 0]), "H"),
-        (Dim([0, 0, -1, 0, 0, 0, 0]), "Hz"),
-        (Dim([-2, -1, 3, 2, 0, 0, 0]), "S"),
-        (Dim([0, 1, 0, 0, 0, 0, 0]), "kg"),
-    ];
-    let named = |d: Dim| NAMED.iter().find(|(nd, _)| *nd == d).map(|(_, s)| *s);
-    if let Some(s) = named(dim) {
-        return s.to_string();
-    }
-    // Pairs from the named units that are themselves single symbols (not "1" or "K/W").
-    let simple = || NAMED.iter().filter(|(d, s)| !d.is_none() && !s.contains('/'));
-    for (a, sa) in simple() {
-        for (b, sb) in simple() {
-            if a.div(*b) == dim {
-                return format!("{sa}/{sb}");
-            }
-        }
-    }
-    for (a, sa) in simple() {
-        // A square is written with its exponent by the base-unit form ("m^2").
-        for (b, sb) in simple().filter(|(b, _)| b != a) {
-            if a.mul(*b) == dim {
-                return format!("{sa}·{sb}");
-            }
-        }
-    }
-    base_units(dim)
-}
-
-fn base_units(dim: Dim) -> String {
-    // Index into Dim's L, M, T, I, Θ, N, J, written mass first as is usual.
-    const ORDER: [(usize, &str); 7] = [
-        (1, "kg"),
-        (0, "m"),
-        (2, "s"),
-        (3, "A"),
-        (4, "K"),
-        (5, "mol"),
-        (6, "cd"),
-    ];
-    let power = |sym: &str, e: i8| {
-        let e = i16::from(e).abs();
-        if e == 1 {
-            sym.to_string()
-        } else {
-            format!("{sym}^{e}")
-        }
-    };
-    let num: Vec<String> = ORDER
-        .iter()
-        .filter(|(i, _)| dim.0[*i] > 0)
-        .map(|(i, s)| power(s, dim.0[*i]))
-        .collect();
-    let den: Vec<String> = ORDER
-        .iter()
-        .filter(|(i, _)| dim.0[*i] < 0)
-        .map(|(i, s)| power(s, dim.0[*i]))
-        .collect();
-    let top = if num.is_empty() {
-        "1".to_string()
-    } else {
-        num.join("·")
-    };
-    match den.len() {
-        0 => top,
-        1 => format!("{top}/{}", den[0]),
-        _ => format!("{top}/({})", den.join("·")),
-    }
+/// The coherent SI unit of a dimension as written in the data: "V", "K/W", "1".
+fn unit_symbol(dim: Dim) -> String {
+    dim.symbol_text()
 }

@@ -26,7 +26,6 @@ confirm with the part's datasheet and by measurement.";
 const HOT_SURFACE_K: f64 = 273.15 + 60.0;
 
 /// The display bundle of a cell's result block: `text/plain`, `text/html` and the results JSON.
-#[allow(dead_code)] // called by the kernel's execute handler
 pub fn bundle(report: &CellReport) -> Map<String, Value> {
     let mut m = Map::new();
     m.insert("text/plain".into(), Value::String(text(report)));
@@ -37,13 +36,18 @@ pub fn bundle(report: &CellReport) -> Map<String, Value> {
 
 /// The bundle of the bare-expression values of a cell (its `execute_result`), or `None` when
 /// the cell has none. With one value, `text/plain` is just its text and worst-case range.
-#[allow(dead_code)] // called by the kernel's execute handler
 pub fn shown_bundle(report: &CellReport) -> Option<Map<String, Value>> {
     let plain = shown_text(report)?;
     let mut m = Map::new();
     m.insert("text/plain".into(), Value::String(plain));
-    m.insert("text/html".into(), Value::String(html::shown(&report.shown)));
-    m.insert(RESULTS_MIME.into(), json::results_of(&report.shown, &[], &[], &[]));
+    m.insert(
+        "text/html".into(),
+        Value::String(html::shown(&report.shown)),
+    );
+    m.insert(
+        RESULTS_MIME.into(),
+        json::results_of(&report.shown, &[], &[], &[]),
+    );
     Some(m)
 }
 
@@ -52,10 +56,15 @@ pub fn shown_text(report: &CellReport) -> Option<String> {
     text::shown(&report.shown)
 }
 
+/// The bare-expression values as an aligned table with their expressions, for a listing of
+/// a whole worksheet (`headroom run`), where a value alone would not say what it is.
+pub fn shown_listing(report: &CellReport) -> Option<String> {
+    text::shown_table(&report.shown)
+}
+
 /// `(ename, evalue, traceback)` for the kernel's error reply, from the cell's error
 /// diagnostics; `None` when the cell has no error. `ename` is the first error's stable code;
 /// the traceback carries every error with its caret excerpt, the header line in red.
-#[allow(dead_code)] // called by the kernel's execute handler
 pub fn error_traceback(report: &CellReport) -> Option<(String, String, Vec<String>)> {
     let errors: Vec<_> = report.diagnostics.iter().filter(|d| d.is_error()).collect();
     let first = errors.first()?;
@@ -134,7 +143,9 @@ fn is_hot(r: &CellReport) -> bool {
 /// columns can align numbers right and units left. Texts without a space stay whole.
 fn split_number_unit(text: &str) -> (&str, &str) {
     match text.split_once(' ') {
-        Some((num, unit)) if num.starts_with(|c: char| c.is_ascii_digit() || "+-−.".contains(c)) => {
+        Some((num, unit))
+            if num.starts_with(|c: char| c.is_ascii_digit() || "+-−.".contains(c)) =>
+        {
             (num, unit)
         }
         _ => (text, ""),

@@ -1,7 +1,7 @@
 //! Rendering of hand-built reports. Expected texts and numbers are worked out by hand from the
 //! inputs below, not taken from the renderer's output.
 
-use super::json::{decimate, unit_symbol, MAX_SWEEP_POINTS};
+use super::json::{decimate, MAX_SWEEP_POINTS};
 use super::*;
 use serde_json::Value;
 use worksheet_lang::diagnostic::{DiagKind, Diagnostic};
@@ -228,7 +228,10 @@ fn json_top_level_shape_and_several_cells() {
         vec![],
     );
     let data = results_json(&[&a, &b]);
-    assert_eq!(keys(&data), ["version", "values", "checks", "warnings", "sweeps"]);
+    assert_eq!(
+        keys(&data),
+        ["version", "values", "checks", "warnings", "sweeps"]
+    );
     assert_eq!(data["version"], 1);
     assert_eq!(data["values"].as_array().map(Vec::len), Some(2));
     assert_eq!(data["values"][1]["name"], "vin");
@@ -251,21 +254,21 @@ fn json_refuses_non_finite_numbers() {
 }
 
 #[test]
-fn unit_symbols() {
-    assert_eq!(unit_symbol(Dim::NONE), "1");
-    assert_eq!(unit_symbol(Dim::VOLTAGE), "V");
-    assert_eq!(unit_symbol(Dim::THERMAL_RESISTANCE), "K/W");
-    assert_eq!(unit_symbol(Dim::RESISTANCE), "Ω");
-    // A temperature coefficient of voltage: V/K = kg·m²·s⁻³·A⁻¹·K⁻¹.
-    assert_eq!(unit_symbol(Dim([2, 1, -3, -1, -1, 0, 0])), "V/K");
-    // Ampere-hours are a charge: coulombs in SI.
-    assert_eq!(unit_symbol(Dim::CURRENT.mul(Dim::TIME)), "C");
-    // A slew rate.
-    assert_eq!(unit_symbol(Dim::VOLTAGE.div(Dim::TIME)), "V/s");
-    // Thermal conductivity W/(m·K) = kg·m·s⁻³·K⁻¹: no named pair, so base units.
-    assert_eq!(unit_symbol(Dim([1, 1, -3, 0, -1, 0, 0])), "kg·m/(s^3·K)");
-    // Copper area.
-    assert_eq!(unit_symbol(Dim([2, 0, 0, 0, 0, 0, 0])), "m^2");
+fn json_units_are_coherent_si() {
+    let rows = vec![
+        number("vin", true, 12.0, Dim::VOLTAGE, false, "12.0 V"),
+        number("θ", false, 6.4, Dim::THERMAL_RESISTANCE, false, "6.40 K/W"),
+        number("η", false, 0.85, Dim::NONE, false, "85.0 %"),
+        number("iload", true, 0.18, Dim::CURRENT, false, "180 mA"),
+    ];
+    let data = results_json(&[&report(rows, vec![])]);
+    let units: Vec<&str> = (0..4)
+        .map(|i| data["values"][i]["unit"].as_str().unwrap_or_default())
+        .collect();
+    // 85 % is the pure number 0.85: unit "1"; 180 mA is 0.18 A.
+    assert_eq!(units, ["V", "K/W", "1", "A"]);
+    assert_eq!(data["values"][2]["si"].as_f64(), Some(0.85));
+    assert_eq!(data["values"][3]["si"].as_f64(), Some(0.18));
 }
 
 fn sweep_of(n: usize) -> SweepTable {
@@ -301,7 +304,10 @@ fn sweep_decimation_keeps_ends_and_extremes() {
     for i in [0, 2499, 1234, 777] {
         assert!(keep.contains(&i), "index {i} dropped");
     }
-    assert!(keep.windows(2).all(|w| w[0] < w[1]), "indices sorted, distinct");
+    assert!(
+        keep.windows(2).all(|w| w[0] < w[1]),
+        "indices sorted, distinct"
+    );
 
     let mut r = report(vec![], vec![]);
     r.sweeps.push(s);
@@ -399,8 +405,12 @@ fn text_conservative_and_warning_diagnostics() {
     let mut rep = report(vec![r], vec![]);
     rep.source = "C = 1u\nx = 2 C\n".into();
     rep.diagnostics.push(
-        Diagnostic::warning(DiagKind::UnitShadowsName, 11..14, "`2 C` is read as coulombs")
-            .hint("write `2 * C` for the product"),
+        Diagnostic::warning(
+            DiagKind::UnitShadowsName,
+            11..14,
+            "`2 C` is read as coulombs",
+        )
+        .hint("write `2 * C` for the product"),
     );
     let t = text(&rep);
     assert!(t.contains("900 Ω … 1.10 kΩ (conservative)"), "{t}");
@@ -516,7 +526,10 @@ fn html_escapes_user_text() {
 fn html_has_no_style_or_script_elements() {
     let h = html::report(&full_report());
     let lower = h.to_lowercase();
-    assert!(!lower.contains("<style") && !lower.contains("<script"), "{h}");
+    assert!(
+        !lower.contains("<style") && !lower.contains("<script"),
+        "{h}"
+    );
     let s = shown_bundle(&CellReport {
         shown: vec![tj()],
         ..CellReport::default()
@@ -554,14 +567,20 @@ fn html_styles_survive_the_sanitizer() {
             .split(';')
             .map(str::trim)
             .filter(|d| !d.is_empty())
-            .map(|d| d.split_once(':').map(|(p, v)| (p.trim(), v.trim())).expect(d))
+            .map(|d| {
+                d.split_once(':')
+                    .map(|(p, v)| (p.trim(), v.trim()))
+                    .expect(d)
+            })
             .collect();
         for (i, (prop, value)) in decls.iter().enumerate() {
             assert!(ALLOWED.contains(prop), "{prop} in {style}");
             // The sanitizer drops `var(…)` values; each must follow a plain twin it keeps.
             if value.contains("var(") {
                 assert!(
-                    decls[..i].iter().any(|(p, v)| p == prop && !v.contains("var(")),
+                    decls[..i]
+                        .iter()
+                        .any(|(p, v)| p == prop && !v.contains("var(")),
                     "{prop}: {value} has no sanitizer-safe fallback in {style}"
                 );
             }

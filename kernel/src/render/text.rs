@@ -202,18 +202,24 @@ pub(super) fn shown(rows: &[ValueRow]) -> Option<String> {
             }
             _ => v.text.clone(),
         }),
-        _ => {
-            let grid = Grid {
-                align: VALUE_ALIGN,
-                gaps: VALUE_GAPS,
-                rows: rows.iter().map(value_cells).collect(),
-            };
-            let lines: Vec<String> = grid
-                .lines()
-                .into_iter()
-                .map(|l| l.strip_prefix(INDENT).unwrap_or(&l).to_string())
-                .collect();
-            Some(lines.join("\n"))
-        }
+        _ => shown_table(rows),
     }
+}
+
+/// The bare-expression values with their expressions, one aligned row each.
+pub(super) fn shown_table(rows: &[ValueRow]) -> Option<String> {
+    if rows.is_empty() {
+        return None;
+    }
+    let grid = Grid {
+        align: VALUE_ALIGN,
+        gaps: VALUE_GAPS,
+        rows: rows.iter().map(value_cells).collect(),
+    };
+    let lines: Vec<String> = grid
+        .lines()
+        .into_iter()
+        .map(|l| l.strip_prefix(INDENT).unwrap_or(&l).to_string())
+        .collect();
+    Some(lines.join("\n"))
 }

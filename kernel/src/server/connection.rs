@@ -32,7 +32,8 @@ impl Connection {
                 info.signature_scheme
             );
         }
-        let key = (!info.key.is_empty()).then(|| hmac::Key::new(hmac::HMAC_SHA256, info.key.as_bytes()));
+        let key =
+            (!info.key.is_empty()).then(|| hmac::Key::new(hmac::HMAC_SHA256, info.key.as_bytes()));
         Ok(Connection { info, key })
     }
 
@@ -70,7 +71,13 @@ pub(crate) struct Endpoints {
 
 impl Endpoints {
     fn all(&self) -> [&String; 5] {
-        [&self.shell, &self.iopub, &self.stdin, &self.control, &self.heartbeat]
+        [
+            &self.shell,
+            &self.iopub,
+            &self.stdin,
+            &self.control,
+            &self.heartbeat,
+        ]
     }
 }
 
@@ -106,9 +113,14 @@ mod tests {
 
     #[test]
     fn an_unknown_signature_scheme_is_refused_by_name() {
-        let err = Connection::parse(&file("hmac-md5", "k", "tcp")).err().map(|e| e.to_string());
+        let err = Connection::parse(&file("hmac-md5", "k", "tcp"))
+            .err()
+            .map(|e| e.to_string());
         let err = err.unwrap_or_default();
-        assert!(err.contains("hmac-md5") && err.contains("signature_scheme"), "{err}");
+        assert!(
+            err.contains("hmac-md5") && err.contains("signature_scheme"),
+            "{err}"
+        );
     }
 
     #[test]

@@ -161,12 +161,20 @@ mod tests {
                 display_id, stderr, ..
             } => {
                 assert_eq!(display_id, "headroom-c7");
-                assert_eq!(stderr.as_deref(), Some("warning: u1: in dropout at vin = 5 V\n"));
+                assert_eq!(
+                    stderr.as_deref(),
+                    Some("warning: u1: in dropout at vin = 5 V\n")
+                );
             }
             other => panic!("expected success, got {other:?}"),
         }
         match Outcome::of(&execution(CellReport::default())) {
-            Outcome::Done { block, shown, stderr, .. } => {
+            Outcome::Done {
+                block,
+                shown,
+                stderr,
+                ..
+            } => {
                 assert!(block.is_none() && shown.is_none() && stderr.is_none());
             }
             other => panic!("expected success, got {other:?}"),

@@ -3,16 +3,16 @@
 //! The shell channel is served in order by one task; evaluation runs on a blocking thread so
 //! that the control channel (interrupt, shutdown) stays responsive meanwhile.
 
+use super::cursor;
 use super::execute::Outcome;
 use super::history::{self, History};
 use super::wire::{self, Incoming, Session, PROTOCOL_VERSION};
-use super::cursor;
 use bytes::Bytes;
 use jupyter_protocol::{
     CommInfoReply, CompleteReply, CompleteRequest, ErrorOutput, ExecuteInput, ExecuteReply,
-    ExecuteRequest, ExecutionCount, ExpressionResult, InspectReply, InspectRequest,
-    InterruptReply, IsCompleteReply, IsCompleteRequest, KernelInfoReply, LanguageInfo, Media,
-    MediaType, ReplyError, ReplyStatus, ShutdownReply, ShutdownRequest, Status, StreamContent,
+    ExecuteRequest, ExecutionCount, ExpressionResult, InspectReply, InspectRequest, InterruptReply,
+    IsCompleteReply, IsCompleteRequest, KernelInfoReply, LanguageInfo, Media, MediaType,
+    ReplyError, ReplyStatus, ShutdownReply, ShutdownRequest, Status, StreamContent,
 };
 use ring::hmac;
 use serde_json::{json, Map, Value};
@@ -178,9 +178,11 @@ pub(crate) async fn serve_control(
 
 async fn shutdown(shared: &Shared, replier: &mut Replier, req: &Incoming) {
     shared.status(req, true);
-    let request: ShutdownRequest =
-        serde_json::from_value(with_defaults(req.content.clone(), &[("restart", json!(false))]))
-            .unwrap_or_default();
+    let request: ShutdownRequest = serde_json::from_value(with_defaults(
+        req.content.clone(),
+        &[("restart", json!(false))],
+    ))
+    .unwrap_or_default();
     let reply = ShutdownReply {
         restart: request.restart,
         status: ReplyStatus::Ok,
@@ -329,7 +331,8 @@ impl Shell {
         let store_history = request.store_history && !silent;
         if store_history {
             self.execution_count += 1;
-            self.history.record(self.execution_count as u64, &request.code);
+            self.history
+                .record(self.execution_count as u64, &request.code);
         }
         let count = ExecutionCount::new(self.execution_count);
         if !silent {
@@ -455,7 +458,9 @@ impl Shell {
     }
 
     async fn complete(&mut self, req: &Incoming) -> Value {
-        let cps = req.content["code"].as_str().map_or(0, |c| c.chars().count());
+        let cps = req.content["code"]
+            .as_str()
+            .map_or(0, |c| c.chars().count());
         let content = with_defaults(req.content.clone(), &[("cursor_pos", json!(cps))]);
         let request: CompleteRequest = match serde_json::from_value(content) {
             Ok(r) => r,
@@ -464,9 +469,10 @@ impl Shell {
         let byte = cursor::byte_of(&request.code, request.cursor_pos);
         let worksheet = self.worksheet.clone();
         let code = request.code.clone();
-        let completion = tokio::task::spawn_blocking(move || lock(&worksheet).complete(&code, byte))
-            .await
-            .unwrap_or_default();
+        let completion =
+            tokio::task::spawn_blocking(move || lock(&worksheet).complete(&code, byte))
+                .await
+                .unwrap_or_default();
         let (start, end) = if completion.matches.is_empty() {
             (request.cursor_pos, request.cursor_pos)
         } else {
@@ -486,7 +492,9 @@ impl Shell {
     }
 
     async fn inspect(&mut self, req: &Incoming) -> Value {
-        let cps = req.content["code"].as_str().map_or(0, |c| c.chars().count());
+        let cps = req.content["code"]
+            .as_str()
+            .map_or(0, |c| c.chars().count());
         let content = with_defaults(req.content.clone(), &[("cursor_pos", json!(cps))]);
         let request: InspectRequest = match serde_json::from_value(content) {
             Ok(r) => r,
@@ -504,7 +512,10 @@ impl Shell {
                 found: true,
                 // The text is Markdown-flavoured: front ends that render Markdown show it
                 // formatted, consoles show it as it is.
-                data: Media::new(vec![MediaType::Plain(i.text.clone()), MediaType::Markdown(i.text)]),
+                data: Media::new(vec![
+                    MediaType::Plain(i.text.clone()),
+                    MediaType::Markdown(i.text),
+                ]),
                 ..InspectReply::default()
             },
             None => InspectReply::default(),
@@ -543,7 +554,9 @@ fn is_complete(req: &Incoming) -> Value {
 /// `stop_on_error` defaults to true; a silent request never aborts the queue.
 fn stops_on_error(req: &Incoming) -> bool {
     let c = &req.content;
-    c.get("stop_on_error").and_then(Value::as_bool).unwrap_or(true)
+    c.get("stop_on_error")
+        .and_then(Value::as_bool)
+        .unwrap_or(true)
         && !c.get("silent").and_then(Value::as_bool).unwrap_or(false)
 }
 
@@ -558,7 +571,10 @@ fn cell_key(metadata: &Value) -> Option<String> {
 }
 
 fn plain_text(bundle: &Map<String, Value>) -> Option<String> {
-    bundle.get("text/plain").and_then(Value::as_str).map(str::to_string)
+    bundle
+        .get("text/plain")
+        .and_then(Value::as_str)
+        .map(str::to_string)
 }
 
 /// Results for the `user_expressions` of a request: the language has no side-effect-free

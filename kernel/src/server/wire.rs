@@ -36,12 +36,6 @@ pub(crate) struct Incoming {
     pub content: Value,
 }
 
-impl Incoming {
-    pub fn msg_id(&self) -> &str {
-        self.header.get("msg_id").and_then(Value::as_str).unwrap_or("")
-    }
-}
-
 #[derive(Debug, thiserror::Error)]
 pub(crate) enum WireError {
     #[error("bad framing or signature: {0}")]
@@ -230,7 +224,12 @@ mod tests {
         let s = Session::new(key.clone());
         let parent = json!({"msg_id": "p1", "msg_type": "kernel_info_request"});
         let id = [Bytes::from_static(b"peer")];
-        let frames = s.encode(&id, "kernel_info_reply", Some(&parent), &json!({"status": "ok"}));
+        let frames = s.encode(
+            &id,
+            "kernel_info_reply",
+            Some(&parent),
+            &json!({"status": "ok"}),
+        );
         let m = decode(frames.clone(), &key).expect("our own message verifies");
         assert_eq!(m.msg_type, "kernel_info_reply");
         assert_eq!(m.identities, id.to_vec());

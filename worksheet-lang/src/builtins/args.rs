@@ -32,10 +32,6 @@ pub fn show(si: f64, dim: Dim) -> String {
     format_si(si, dim, false, 3)
 }
 
-/// An absolute temperature (kelvin, SI) for messages.
-pub fn show_temperature(kelvin: f64) -> String {
-    format_si(kelvin, Dim::TEMPERATURE, true, 3)
-}
 
 impl<'a> Args<'a> {
     pub fn new(params: &'static [Param], vals: &'a [Option<Value>]) -> Self {

@@ -175,22 +175,24 @@ impl Builtin {
     }
 }
 
+static ALL: [&Builtin; 12] = [
+    &reg::LINEAR,
+    &reg::SWITCHING,
+    &heat::JUNCTION,
+    &heat::SINK_FOR,
+    &heat::MAX_POWER,
+    &heat::MAX_AMBIENT,
+    &heat::PULSE,
+    &res::PICK,
+    &res::LED,
+    &res::DIVIDER,
+    &res::DERATE,
+    &power::BATTERY_HOURS,
+];
+
 /// Every built-in, for lookup and completion.
 pub fn all() -> &'static [&'static Builtin] {
-    &[
-        &reg::LINEAR,
-        &reg::SWITCHING,
-        &heat::JUNCTION,
-        &heat::SINK_FOR,
-        &heat::MAX_POWER,
-        &heat::MAX_AMBIENT,
-        &heat::PULSE,
-        &res::PICK,
-        &res::LED,
-        &res::DIVIDER,
-        &res::DERATE,
-        &power::BATTERY_HOURS,
-    ]
+    &ALL
 }
 
 /// The built-in at `path` ("reg.linear"), if any.

@@ -1,0 +1,275 @@
+//! The worksheet end to end: values, temperature rules, checks, the dependency graph and
+//! the diagnostics of evaluation. Expected numbers are derived by hand beside each test.
+
+use worksheet_lang::results::{CellReport, Shown};
+use worksheet_lang::{DiagKind, Interrupt, Worksheet};
+
+fn run(src: &str) -> CellReport {
+    let mut ws = Worksheet::new();
+    ws.execute(Some("c1"), src, &Interrupt::new()).report
+}
+
+fn si(r: &CellReport, name: &str) -> f64 {
+    let row = r
+        .values
+        .iter()
+        .chain(r.shown.iter())
+        .find(|v| v.name == name)
+        .unwrap_or_else(|| panic!("no row {name}: {:?}", r.diagnostics));
+    match &row.shown {
+        Shown::Number { value, .. } => value.si,
+        other => panic!("{other:?}"),
+    }
+}
+
+fn text<'a>(r: &'a CellReport, name: &str) -> &'a str {
+    &r.values.iter().chain(r.shown.iter()).find(|v| v.name == name).expect("row").text
+}
+
+fn close(a: f64, b: f64) -> bool {
+    (a - b).abs() <= 1e-9 * a.abs().max(b.abs()).max(1e-12)
+}
+
+fn only_error(src: &str) -> worksheet_lang::Diagnostic {
+    let r = run(src);
+    let errors: Vec<_> = r.diagnostics.iter().filter(|d| d.is_error()).cloned().collect();
+    assert_eq!(errors.len(), 1, "{src}: {errors:?}");
+    errors.into_iter().next().unwrap_or_else(|| unreachable!())
+}
+
+#[test]
+fn temperature_rules() {
+    // Absolute ± difference → absolute; absolute − absolute → difference.
+    let r = run("a = 25 °C + 10 K\nb = 50 °C - 20 °C\nc = 77 °F\n");
+    assert!(close(si(&r, "a"), 308.15), "25 °C + 10 K = 35 °C = 308.15 K");
+    assert_eq!(text(&r, "a"), "35.0 °C");
+    assert!(close(si(&r, "b"), 30.0));
+    assert_eq!(text(&r, "b"), "30.0 K");
+    // 77 °F = (77 + 459.67)·5/9 K = 298.15 K = 25 °C (NIST SP 811, Appendix B.8 relation).
+    assert!(close(si(&r, "c"), 298.15));
+    assert_eq!(text(&r, "c"), "25.0 °C");
+    let e = only_error("d = 25 °C + 25 °C\n");
+    assert_eq!(e.kind, DiagKind::Temperature);
+    assert!(e.hint.as_deref().unwrap_or("").contains("kelvin("), "{e:?}");
+    let e = only_error("d = 2 * 25 °C\n");
+    assert_eq!(e.kind, DiagKind::Temperature);
+    // Inside a compound unit °C is a difference: 2 °C/W ≡ 2 K/W.
+    let r = run("t = 1 W * 2 °C/W\n");
+    assert!(close(si(&r, "t"), 2.0));
+    assert_eq!(text(&r, "t"), "2.00 K");
+    // kelvin(t) gives the thermodynamic value for formulas.
+    let r = run("k = kelvin(25 °C) / 1 K\n");
+    assert!(close(si(&r, "k"), 298.15));
+}
+
+#[test]
+fn the_reference_rail_without_built_ins() {
+    // The 5 V rail's numbers written out by hand: loss = (vin − 5 V)·i + vin·4 mA,
+    // θ = 6 + 0.4 + 22·60/82 = 22.4976 K/W, tj = 50 °C + loss·θ.
+    // Nominal: (7·0.18 + 12·0.004) = 1.308 W → tj = 79.427 °C.
+    // Corners: (10.8 V, 144 mA): 0.8784 W → 69.762 °C; (13.2 V, 216 mA): 1.824 W → 91.035 °C.
+    let src = "given vin = 10.8 V .. 13.2 V\ngiven iload = 180 mA ± 20 %\ngiven ta = 50 °C\n\
+               loss = (vin - 5 V) * iload + vin * 4 mA\n\
+               θ = 6 K/W + 0.4 K/W + (22 K/W || 60 K/W)\n\
+               tj [°C] = ta + loss * θ\ncheck tj <= 125 °C\n";
+    let r = run(src);
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let theta = 6.4 + 22.0 * 60.0 / 82.0;
+    assert!(close(si(&r, "tj"), 323.15 + 1.308 * theta));
+    let row = r.values.iter().find(|v| v.name == "tj").expect("tj");
+    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!("tj uncertain") };
+    assert!(close(b.min, 323.15 + 0.8784 * theta));
+    assert!(close(b.max, 323.15 + 1.824 * theta));
+    assert!(!b.conservative);
+    assert_eq!(row.text, "79.4 °C");
+    assert_eq!(row.range_text.as_deref(), Some("69.8 °C … 91.0 °C"));
+    let c = &r.checks[0];
+    assert!(c.passed);
+    assert!(close(c.margin, 125.0 - (50.0 + 1.824 * theta)));
+    assert!(close(c.worst, 323.15 + 1.824 * theta));
+    assert!(close(c.limit, 398.15));
+    assert_eq!(c.margin_text, "+34.0 K");
+    // Shares: the load's swing is 0.072 A·8.2 V-ish; both inputs contribute.
+    assert_eq!(b.shares.len(), 2);
+    let total: f64 = b.shares.iter().map(|s| s.fraction).sum();
+    assert!(close(total, 1.0));
+}
+
+#[test]
+fn a_check_is_judged_on_its_difference_at_the_worst_corner() {
+    // vin − 2 V ≥ vin − 3 V holds at every vin: the same vin on both sides.
+    let r = run("given vin = 4 V .. 6 V\ncheck vin - 2 V >= vin - 3 V\n");
+    assert!(r.checks[0].passed);
+    assert!(close(r.checks[0].margin, 1.0));
+    // A failing check is a warning-like result, not an error: vin reaches 6 V > 5.5 V.
+    let r = run("given vin = 4 V .. 6 V\ncheck vin <= 5.5 V\n");
+    assert!(!r.has_errors());
+    assert!(!r.checks[0].passed);
+    assert!(close(r.checks[0].margin, -0.5));
+    assert!(close(r.checks[0].worst, 6.0));
+}
+
+#[test]
+fn tolerance_forms() {
+    // 85 % ± 5 % is relative: 80.75 % … 89.25 %.
+    let r = run("e = 85 % ± 5 %\nv = 1.25 V ± 20 mV\nc = tol(10 uF, -20 %, +80 %)\n");
+    let row = r.values.iter().find(|v| v.name == "e").expect("e");
+    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!() };
+    assert!(close(b.min, 0.8075) && close(b.max, 0.8925));
+    let row = r.values.iter().find(|v| v.name == "v").expect("v");
+    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!() };
+    assert!(close(b.min, 1.23) && close(b.max, 1.27));
+    let row = r.values.iter().find(|v| v.name == "c").expect("c");
+    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!() };
+    assert!(close(b.min, 8e-6) && close(b.max, 18e-6));
+    let e = only_error("t = 50 °C ± 5 %\n");
+    assert_eq!(e.kind, DiagKind::Temperature);
+    let r = run("t = 50 °C ± 2 °C\n");
+    let row = r.values.iter().find(|v| v.name == "t").expect("t");
+    assert_eq!(row.range_text.as_deref(), Some("48.0 °C … 52.0 °C"));
+}
+
+#[test]
+fn redefinition_recomputes_dependents_in_other_cells() {
+    let mut ws = Worksheet::new();
+    let i = Interrupt::new();
+    ws.execute(Some("a"), "given iload = 180 mA\n", &i);
+    ws.execute(Some("b"), "p = iload * 5 V\n", &i);
+    ws.execute(Some("c"), "check p <= 1 W\n", &i);
+    let ex = ws.execute(Some("a"), "given iload = 250 mA\n", &i);
+    assert!(!ex.report.has_errors());
+    let cells: Vec<&str> = ex.updated.iter().map(|u| u.report.cell.as_str()).collect();
+    assert_eq!(cells, ["b", "c"]);
+    let b = &ex.updated[0].report;
+    assert!(close(si(b, "p"), 1.25));
+    let c = &ex.updated[1].report;
+    assert!(!c.checks[0].passed, "1.25 W > 1 W must fail now");
+    let ch = &ex.updated[0].changed_by[0];
+    assert_eq!((ch.name.as_str(), ch.old.as_str(), ch.new.as_str()), ("iload", "180 mA", "250 mA"));
+    // A run that does not change anything updates nothing.
+    let ex = ws.execute(Some("a"), "given iload = 250 mA\n", &i);
+    assert!(ex.updated.is_empty());
+}
+
+#[test]
+fn a_failed_run_leaves_the_worksheet_as_it_was() {
+    let mut ws = Worksheet::new();
+    let i = Interrupt::new();
+    ws.execute(Some("a"), "given x = 2 V\n", &i);
+    ws.execute(Some("b"), "y = x * 2\n", &i);
+    let ex = ws.execute(Some("a"), "given x = 2 V + 1 A\n", &i);
+    assert!(ex.report.has_errors());
+    assert!(ex.updated.is_empty());
+    let b = ws.reports().iter().find(|r| r.cell == "b").expect("b");
+    assert!(close(si(b, "y"), 4.0));
+}
+
+#[test]
+fn cells_without_ids_are_known_by_their_names() {
+    let mut ws = Worksheet::new();
+    let i = Interrupt::new();
+    let first = ws.execute(None, "given v = 1 V\n", &i).report.cell;
+    let again = ws.execute(None, "given v = 2 V\n", &i).report.cell;
+    assert_eq!(first, again);
+    let other = ws.execute(None, "w = v * 3\n", &i).report.cell;
+    assert_ne!(first, other);
+}
+
+#[test]
+fn cycles_are_named() {
+    let r = run("a = b + 1 V\nb = a * 2\n");
+    let errs: Vec<_> = r.diagnostics.iter().filter(|d| d.kind == DiagKind::Cycle).collect();
+    assert_eq!(errs.len(), 2);
+    assert!(errs[0].message.contains("a → b → a") || errs[0].message.contains("b → a → b"), "{}", errs[0].message);
+}
+
+#[test]
+fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
+    // Unknown name with a near miss.
+    let src = "iload = 1 A\np = iloda * 2 V\n";
+    let e = only_error(src);
+    assert_eq!(e.kind, DiagKind::UnknownName);
+    assert_eq!(&src[e.span.clone()], "iloda");
+    assert_eq!(e.hint.as_deref(), Some("did you mean `iload`?"));
+    // A bare unit symbol.
+    let e = only_error("x = V\n");
+    assert_eq!(e.kind, DiagKind::UnknownName);
+    assert!(e.hint.as_deref().unwrap_or("").contains("`1 V`"), "{e:?}");
+    // A value code written backwards.
+    let e = only_error("r = R47\n");
+    assert_eq!(e.hint.as_deref(), Some("did you mean `0R47`?"));
+    // Dimensions named in words.
+    let src = "x = 12 V + 3 A\n";
+    let e = only_error(src);
+    assert_eq!(e.kind, DiagKind::DimensionMismatch);
+    assert!(e.message.contains("voltage plus a current"), "{}", e.message);
+    assert_eq!(&src[e.span.clone()], "12 V + 3 A");
+    // Declared unit.
+    let e = only_error("p [mW] = 2 V\n");
+    assert_eq!(e.kind, DiagKind::DimensionMismatch);
+    assert!(e.message.contains("power") && e.message.contains("voltage"), "{}", e.message);
+    // A divisor whose range spans zero.
+    let e = only_error("given v = -1 V .. 2 V\nr = 1 V / v\n");
+    assert_eq!(e.kind, DiagKind::DivisorSpansZero);
+    // Domain.
+    let e = only_error("x = sqrt(-4 V^2)\n");
+    assert_eq!(e.kind, DiagKind::DomainError);
+    // Unknown function with a near miss.
+    let e = only_error("x = sqr(4)\n");
+    assert_eq!(e.kind, DiagKind::UnknownFunction);
+    assert_eq!(e.hint.as_deref(), Some("did you mean `sqrt`?"));
+    // Recursion is bounded.
+    let e = only_error("f(x) = f(x) + 1\ny = f(1)\n");
+    assert_eq!(e.kind, DiagKind::Limit);
+    // Twice in one cell.
+    let e = only_error("a = 1 V\na = 2 V\n");
+    assert_eq!(e.kind, DiagKind::Redefinition);
+    // A dependent of a failed definition says why.
+    let r = run("a = 1 V + 1 A\nb = a * 2\n");
+    assert!(r.diagnostics.iter().any(|d| d.kind == DiagKind::DependencyFailed));
+    // A unit read as a unit although a name exists: a warning with the product spelled out.
+    let r = run("C = 2 uF\nq = 2 C\n");
+    let w = r.diagnostics.iter().find(|d| d.kind == DiagKind::UnitShadowsName).expect("warning");
+    assert!(!w.is_error());
+    assert!(w.hint.as_deref().unwrap_or("").contains("2 * C"));
+}
+
+#[test]
+fn user_functions_records_and_lists() {
+    let r = run("p(v, i) [mW] = v * i\nx = p(2 V, 3 mA)\nl = [1 V, 2 V]\n");
+    assert!(close(si(&r, "x"), 0.006));
+    assert_eq!(text(&r, "x"), "6.00 mW");
+    let r = run("x = 1500 mV\nx as V\n");
+    assert_eq!(r.shown[0].text, "1.50 V");
+}
+
+#[test]
+fn overrides_replace_a_given_whole() {
+    let mut ws = Worksheet::new();
+    ws.set_override("iload", "250 mA ± 20 %").expect("literal");
+    let r = ws.execute(Some("m"), "given iload = 180 mA\np = iload * 2 V\n", &Interrupt::new()).report;
+    assert!(close(si(&r, "p"), 0.5));
+    let row = r.values.iter().find(|v| v.name == "p").expect("p");
+    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!() };
+    assert!(close(b.min, 0.4) && close(b.max, 0.6));
+    let mut ws = Worksheet::new();
+    ws.set_override("nope", "1 A").expect("literal");
+    let r = ws.execute(Some("m"), "given iload = 180 mA\n", &Interrupt::new()).report;
+    assert!(r.diagnostics.iter().any(|d| d.kind == DiagKind::UnknownName && d.is_error()));
+    let mut ws = Worksheet::new();
+    ws.set_override("iload", "2 V").expect("literal");
+    let r = ws.execute(Some("m"), "given iload [mA] = 180 mA\n", &Interrupt::new()).report;
+    assert!(r.diagnostics.iter().any(|d| d.kind == DiagKind::DimensionMismatch), "{:?}", r.diagnostics);
+}
+
+#[test]
+fn sweeps_follow_the_closed_form() {
+    // p = (12 V − 5 V)·i for i from 0.1 A to 0.3 A in 3 points: 0.7, 1.4, 2.1 W.
+    let r = run("given i = 100 mA\np = 7 V * i\nsweep i over 0.1 A .. 0.3 A steps 3: p\n");
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let s = &r.sweeps[0];
+    assert_eq!(s.points.len(), 3);
+    for (x, y) in s.points.iter().zip(&s.series[0].nominal) {
+        assert!(close(*y, 7.0 * x));
+    }
+}
