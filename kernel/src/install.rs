@@ -62,6 +62,13 @@ pub fn install(args: &InstallArgs) -> anyhow::Result<()> {
         println!("{}", dir.display());
     } else {
         println!("Installed the Headroom kernel in {}", dir.display());
+        if args.prefix.is_some() {
+            println!(
+                "Jupyter finds it when {} is on JUPYTER_PATH, or when that prefix is the \
+                 sys.prefix of the Python running Jupyter.",
+                data_dir.display()
+            );
+        }
         println!("Start it with `jupyter console --kernel {KERNEL_NAME}` or pick \"Headroom\" in JupyterLab.");
     }
     Ok(())

@@ -1,6 +1,7 @@
 //! `headroom`: the Jupyter kernel and the command line of the Headroom worksheet language.
 
 mod install;
+mod notebook;
 mod render;
 mod run;
 mod server;
@@ -10,7 +11,11 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 #[derive(Parser)]
-#[command(name = "headroom", version, about = "Power-design worksheets: a Jupyter kernel and command line")]
+#[command(
+    name = "headroom",
+    version,
+    about = "Power-design worksheets: a Jupyter kernel and command line"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -28,6 +33,10 @@ enum Command {
     Install(install::InstallArgs),
     /// Run a worksheet (.hrw) or a notebook (.ipynb) and print its results.
     Run(run::RunArgs),
+    /// Record a review of a notebook: reviewer, time, engine version and digests.
+    Seal(notebook::SealArgs),
+    /// Rerun notebooks and check that every stored result and the seal still hold.
+    Verify(notebook::VerifyArgs),
 }
 
 fn main() -> ExitCode {
@@ -37,6 +46,8 @@ fn main() -> ExitCode {
         Command::Kernel { connection_file } => server::serve(&connection_file).map(|()| 0),
         Command::Install(args) => install::install(&args).map(|()| 0),
         Command::Run(args) => run::run(&args),
+        Command::Seal(args) => notebook::seal(&args),
+        Command::Verify(args) => notebook::verify(&args),
     };
     match result {
         Ok(code) => ExitCode::from(code),

@@ -654,6 +654,9 @@ async fn messages_failing_verification_are_dropped_and_logged() {
         Some("zz-not-hex"),
     );
     c.send_frames(Channel::Shell, frames).await;
+    // Not a Jupyter message at all.
+    c.send_frames(Channel::Shell, ZmqMessage::from("garbage"))
+        .await;
 
     assert!(
         c.recv(Channel::Shell, SILENCE).await.is_none(),
@@ -677,7 +680,7 @@ async fn messages_failing_verification_are_dropped_and_logged() {
     assert_eq!(r.content["execution_count"], 1);
     let log = kernel.stderr();
     assert!(
-        log.matches("dropped a message").count() >= 4,
+        log.matches("dropped a message").count() >= 5,
         "each drop is logged: {log}"
     );
     shut_down(&mut kernel, &mut c).await;

@@ -9,6 +9,7 @@ import time
 
 import zmq
 from jupyter_client.kernelspec import KernelSpecManager
+from jupyter_client.manager import KernelManager
 from jupyter_client.session import Session
 from jupyter_kernel_test.msgspec_v5 import msg_structure_validator, validate_message
 
@@ -148,3 +149,21 @@ def test_restart_and_shutdown(kernel):
             kc.get_iopub_msg(timeout=0.2)
     except queue.Empty:
         pass
+
+
+def test_ipc_transport(tmp_path):
+    km = KernelManager(kernel_name=KERNEL_NAME, transport="ipc", ip=str(tmp_path / "k-ipc"))
+    km.start_kernel()
+    kc = km.client()
+    kc.start_channels()
+    try:
+        kc.wait_for_ready(timeout=TIMEOUT)
+        msg_id = kc.execute("2 V * 3")
+        reply = kc.get_shell_msg(timeout=TIMEOUT)
+        validate_message(reply, "execute_reply", msg_id)
+        results = [m for m in collect_outputs(kc, msg_id) if m["msg_type"] == "execute_result"]
+        # 2 V × 3 = 6 V, three significant digits.
+        assert results[0]["content"]["data"]["text/plain"] == "6.00 V"
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=False)

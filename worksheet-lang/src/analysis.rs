@@ -65,7 +65,9 @@ impl<'e, E: Evaluate> Passes<'e, E> {
     }
 
     fn key(a: &[Interval]) -> Vec<u64> {
-        a.iter().flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()]).collect()
+        a.iter()
+            .flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()])
+            .collect()
     }
 
     /// The value of scalar `s` under `a`.
@@ -95,7 +97,9 @@ impl<'e, E: Evaluate> Passes<'e, E> {
                 }
             }
         }
-        self.memo.get(&k).and_then(|p| p.scalars.get(s).copied().flatten())
+        self.memo
+            .get(&k)
+            .and_then(|p| p.scalars.get(s).copied().flatten())
     }
 
     pub fn box_pass(&mut self, seed: Option<usize>) -> Option<Pass> {
@@ -148,9 +152,15 @@ pub fn analyse<E: Evaluate>(
             d[k] = p.scalars.get(s).copied().flatten().map(|x| x.x.d);
         }
     }
-    let nominal_point: Vec<Interval> = reg.inputs.iter().map(|i| Interval::point(i.nominal)).collect();
+    let nominal_point: Vec<Interval> = reg
+        .inputs
+        .iter()
+        .map(|i| Interval::point(i.nominal))
+        .collect();
     for s in 0..m {
-        let Some(nom) = nominal.scalars[s] else { continue };
+        let Some(nom) = nominal.scalars[s] else {
+            continue;
+        };
         let signs: Vec<Sign> = derivs[s]
             .iter()
             .map(|d| match d {
@@ -171,7 +181,11 @@ pub fn analyse<E: Evaluate>(
                 _ => Interval::point(i.nominal),
             }
         };
-        let unknown: Vec<usize> = depends.iter().copied().filter(|&k| signs[k] == Sign::Unknown).collect();
+        let unknown: Vec<usize> = depends
+            .iter()
+            .copied()
+            .filter(|&k| signs[k] == Sign::Unknown)
+            .collect();
         let mut min_at: Vec<Interval> = (0..n).map(|k| end(k, false)).collect();
         let mut max_at: Vec<Interval> = (0..n).map(|k| end(k, true)).collect();
         let (min, max, conservative) = if unknown.is_empty() {
@@ -180,7 +194,9 @@ pub fn analyse<E: Evaluate>(
                 return None;
             }
             // A value that fails at a corner has its error reported by that pass.
-            let (Some(lo), Some(hi)) = (lo, hi) else { continue };
+            let (Some(lo), Some(hi)) = (lo, hi) else {
+                continue;
+            };
             let (lo, hi) = (lo.x.value(), hi.x.value());
             (lo.min(nom.x.value()), hi.max(nom.x.value()), false)
         } else {
@@ -195,11 +211,17 @@ pub fn analyse<E: Evaluate>(
             if passes.interrupted {
                 return None;
             }
-            let (Some((lo, lo_at, lo_exact)), Some((hi, hi_at, hi_exact))) = (lo, hi) else { continue };
+            let (Some((lo, lo_at, lo_exact)), Some((hi, hi_at, hi_exact))) = (lo, hi) else {
+                continue;
+            };
             min_at = lo_at;
             max_at = hi_at;
             // Exact when every sub-range proved monotone, so its extreme is at its end.
-            (lo.min(nom.x.value()), hi.max(nom.x.value()), !(lo_exact && hi_exact))
+            (
+                lo.min(nom.x.value()),
+                hi.max(nom.x.value()),
+                !(lo_exact && hi_exact),
+            )
         };
         let mut swings = Vec::with_capacity(depends.len());
         for &k in &depends {
@@ -243,9 +265,17 @@ fn enclose<E: Evaluate>(
 ) -> Option<(f64, Vec<Interval>, bool)> {
     let cells = pieces.pow(unknown.len() as u32);
     let mut all_exact = true;
-    let mut bound = if want_max { f64::NEG_INFINITY } else { f64::INFINITY };
+    let mut bound = if want_max {
+        f64::NEG_INFINITY
+    } else {
+        f64::INFINITY
+    };
     let mut best_point = base.to_vec();
-    let mut best_val = if want_max { f64::NEG_INFINITY } else { f64::INFINITY };
+    let mut best_val = if want_max {
+        f64::NEG_INFINITY
+    } else {
+        f64::INFINITY
+    };
     for c in 0..cells {
         let mut a = base.to_vec();
         let mut idx = c;
@@ -292,7 +322,11 @@ fn enclose<E: Evaluate>(
         } else {
             v.x.v.lo.max(mv.lo)
         };
-        bound = if want_max { bound.max(sub) } else { bound.min(sub) };
+        bound = if want_max {
+            bound.max(sub)
+        } else {
+            bound.min(sub)
+        };
         // Sample the sub-box's ends for a point that attains a near-worst value.
         for end in [false, true] {
             let p: Vec<Interval> = a

@@ -42,7 +42,10 @@ pub enum StmtKind {
         note: Option<Note>,
     },
     /// `sweep NAME over A .. B (steps N | by STEP)?[, NAME over …]: EXPR, …`
-    Sweep { vars: Vec<SweepVar>, exprs: Vec<Expr> },
+    Sweep {
+        vars: Vec<SweepVar>,
+        exprs: Vec<Expr>,
+    },
     /// `EXPR` or `EXPR as UNIT`
     Show {
         expr: Expr,
@@ -141,9 +144,16 @@ pub enum CodeKind {
 #[derive(Debug, Clone, PartialEq)]
 pub enum ExprKind {
     /// A number with an optional unit written directly after it (`12 V`, `0.5 K/W`, `12`).
-    Number { value: f64, unit: Option<UnitExpr> },
+    Number {
+        value: f64,
+        unit: Option<UnitExpr>,
+    },
     /// An IEC 60062 component-value code; `value` is already in ohms or farads.
-    Code { value: f64, kind: CodeKind, text: String },
+    Code {
+        value: f64,
+        kind: CodeKind,
+        text: String,
+    },
     Str(String),
     Name(String),
     Neg(Box<Expr>),
@@ -153,13 +163,25 @@ pub enum ExprKind {
         rhs: Box<Expr>,
     },
     /// `base ± spread` or `base +/- spread`.
-    PlusMinus { base: Box<Expr>, spread: Box<Expr> },
+    PlusMinus {
+        base: Box<Expr>,
+        spread: Box<Expr>,
+    },
     /// `lo .. hi`.
-    Range { lo: Box<Expr>, hi: Box<Expr> },
+    Range {
+        lo: Box<Expr>,
+        hi: Box<Expr>,
+    },
     /// `callee(args)`; the callee is a `Name` or a `Field` path such as `reg.linear`.
-    Call { callee: Box<Expr>, args: Vec<Arg> },
+    Call {
+        callee: Box<Expr>,
+        args: Vec<Arg>,
+    },
     /// `base.field`
-    Field { base: Box<Expr>, field: Ident },
+    Field {
+        base: Box<Expr>,
+        field: Ident,
+    },
     /// `[a, b, …]`
     List(Vec<Expr>),
     /// An expression that did not parse.

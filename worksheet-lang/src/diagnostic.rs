@@ -147,7 +147,9 @@ pub fn excerpt(source: &str, span: &Span) -> String {
     let end = floor_char_boundary(source, span.end.min(source.len())).max(start);
     let (line, col) = line_col(source, start);
     let line_start = source[..start].rfind('\n').map_or(0, |i| i + 1);
-    let line_end = source[start..].find('\n').map_or(source.len(), |i| start + i);
+    let line_end = source[start..]
+        .find('\n')
+        .map_or(source.len(), |i| start + i);
     let text = &source[line_start..line_end];
     let caret_len = source[start..end.min(line_end)].chars().count().max(1);
     let gutter = line.to_string().len();

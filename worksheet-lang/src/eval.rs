@@ -111,7 +111,10 @@ pub enum Mode {
     Box { seed: Option<usize> },
     /// Each input at the given interval (points for corners); the derivative of input
     /// `seed` is carried (if any).
-    Assign { values: Vec<Interval>, seed: Option<usize> },
+    Assign {
+        values: Vec<Interval>,
+        seed: Option<usize>,
+    },
 }
 
 /// The values of one pass.
@@ -232,13 +235,23 @@ impl<'a> Evaluator<'a> {
             Mode::Nominal => Dual::constant(info.nominal),
             Mode::Box { seed } => Dual::input(Interval::new(info.lo, info.hi), *seed == Some(id)),
             Mode::Assign { values, seed } => Dual::input(
-                values.get(id).copied().unwrap_or(Interval::point(info.nominal)),
+                values
+                    .get(id)
+                    .copied()
+                    .unwrap_or(Interval::point(info.nominal)),
                 *seed == Some(id),
             ),
         })
     }
 
-    fn input_site(&mut self, span: &Span, nominal: f64, lo: f64, hi: f64, site_value: impl Fn(Dual) -> R<Num>) -> R<Num> {
+    fn input_site(
+        &mut self,
+        span: &Span,
+        nominal: f64,
+        lo: f64,
+        hi: f64,
+        site_value: impl Fn(Dual) -> R<Num>,
+    ) -> R<Num> {
         let key = format!("{}@{}", self.stmt_key, span.start);
         let label = if self.given {
             self.stmt_label.clone()
@@ -324,7 +337,10 @@ impl<'a> Evaluator<'a> {
                         return Err(EvalError::new(
                             DiagKind::TypeMismatch,
                             &e.span,
-                            format!("`{}` is a built-in function; call it with arguments", b.path),
+                            format!(
+                                "`{}` is a built-in function; call it with arguments",
+                                b.path
+                            ),
                         )
                         .hint(format!("write `{}`", b.doc.signature)));
                     }
@@ -333,14 +349,18 @@ impl<'a> Evaluator<'a> {
                     Value::Record(r) => match r.get(&field.name) {
                         Some(f) => Ok(f.value.clone()),
                         None => {
-                            let names: Vec<String> = r.fields.iter().map(|f| f.name.to_string()).collect();
+                            let names: Vec<String> =
+                                r.fields.iter().map(|f| f.name.to_string()).collect();
                             let mut err = EvalError::new(
                                 DiagKind::UnknownName,
                                 &field.span,
                                 format!("a `{}` result has no field `{}`", r.kind, field.name),
                             );
                             err = match nearest(&field.name, &names) {
-                                Some(n) => err.hint(format!("did you mean `{n}`? fields: {}", names.join(", "))),
+                                Some(n) => err.hint(format!(
+                                    "did you mean `{n}`? fields: {}",
+                                    names.join(", ")
+                                )),
                                 None => err.hint(format!("its fields are {}", names.join(", "))),
                             };
                             Err(err)
@@ -373,7 +393,13 @@ impl<'a> Evaluator<'a> {
     }
 
     /// A number literal; `difference` reads a lone °C/°F as a temperature difference.
-    fn number(&mut self, value: f64, unit: Option<&crate::ast::UnitExpr>, span: &Span, difference: bool) -> R<Value> {
+    fn number(
+        &mut self,
+        value: f64,
+        unit: Option<&crate::ast::UnitExpr>,
+        span: &Span,
+        difference: bool,
+    ) -> R<Value> {
         let Some(u) = unit else {
             return Ok(Value::Num(Num::constant(value, Dim::NONE)));
         };
@@ -387,9 +413,15 @@ impl<'a> Evaluator<'a> {
                 Diagnostic::warning(
                     DiagKind::UnitShadowsName,
                     span.clone(),
-                    format!("`{}` after a number is read as the unit {}, not as your `{}`", u.text, parsed.text, u.text),
+                    format!(
+                        "`{}` after a number is read as the unit {}, not as your `{}`",
+                        u.text, parsed.text, u.text
+                    ),
                 )
-                .hint(format!("to multiply by the name, write `{value} * {}`", u.text)),
+                .hint(format!(
+                    "to multiply by the name, write `{value} * {}`",
+                    u.text
+                )),
             );
         }
         let absolute = parsed.is_absolute_temperature() && !difference;
@@ -425,7 +457,9 @@ impl<'a> Evaluator<'a> {
     fn unknown_name(&self, n: &str, span: &Span) -> EvalError {
         let mut err = EvalError::new(DiagKind::UnknownName, span, format!("unknown name `{n}`"));
         if units::parse_unit(n).is_ok() {
-            return err.hint(format!("`{n}` is a unit; a unit follows a number: write `1 {n}`"));
+            return err.hint(format!(
+                "`{n}` is a unit; a unit follows a number: write `1 {n}`"
+            ));
         }
         if let Some(code) = reversed_code(n) {
             return err.hint(format!("did you mean `{code}`?"));
@@ -443,10 +477,12 @@ impl<'a> Evaluator<'a> {
         let b = self.num(base)?;
         let relative = is_relative_literal(spread);
         let s = match &spread.kind {
-            ExprKind::Number { value, unit } => match self.number(*value, unit.as_ref(), &spread.span, true)? {
-                Value::Num(n) => n,
-                _ => unreachable_num(&spread.span)?,
-            },
+            ExprKind::Number { value, unit } => {
+                match self.number(*value, unit.as_ref(), &spread.span, true)? {
+                    Value::Num(n) => n,
+                    _ => unreachable_num(&spread.span)?,
+                }
+            }
             _ => self.num(spread)?,
         };
         if s.abs {
@@ -461,8 +497,12 @@ impl<'a> Evaluator<'a> {
             ));
         }
         if sv < 0.0 {
-            return Err(EvalError::new(DiagKind::DomainError, &spread.span, "a tolerance cannot be negative")
-                .hint("write the size of the tolerance: `± 5 %`"));
+            return Err(EvalError::new(
+                DiagKind::DomainError,
+                &spread.span,
+                "a tolerance cannot be negative",
+            )
+            .hint("write the size of the tolerance: `± 5 %`"));
         }
         if relative {
             if b.abs {
@@ -473,16 +513,27 @@ impl<'a> Evaluator<'a> {
                 )
                 .hint("give the tolerance as a temperature difference: `50 °C ± 2 K`"));
             }
-            let n = self.input_site(span, 0.0, -sv, sv, |eps| Ok(Num { x: b.x * (Dual::constant(1.0) + eps), ..b }))?;
+            let n = self.input_site(span, 0.0, -sv, sv, |eps| {
+                Ok(Num {
+                    x: b.x * (Dual::constant(1.0) + eps),
+                    ..b
+                })
+            })?;
             return Ok(Value::Num(n));
         }
         if s.dim != b.dim {
             return Err(EvalError::new(
                 DiagKind::DimensionMismatch,
                 &spread.span,
-                format!("the tolerance is {} but the value is {}", s.dim.describe(), b.dim.describe()),
+                format!(
+                    "the tolerance is {} but the value is {}",
+                    s.dim.describe(),
+                    b.dim.describe()
+                ),
             )
-            .hint("give an absolute tolerance in the value's unit, or a relative one in % or ppm"));
+            .hint(
+                "give an absolute tolerance in the value's unit, or a relative one in % or ppm",
+            ));
         }
         let n = self.input_site(span, 0.0, -sv, sv, |d| Ok(Num { x: b.x + d, ..b }))?;
         Ok(Value::Num(n))
@@ -515,8 +566,10 @@ impl<'a> Evaluator<'a> {
         }
         let (l, h) = (a.x.value(), b.x.value());
         if l > h {
-            return Err(EvalError::new(DiagKind::DomainError, span, "this range runs downward")
-                .hint("write the smaller end first"));
+            return Err(
+                EvalError::new(DiagKind::DomainError, span, "this range runs downward")
+                    .hint("write the smaller end first"),
+            );
         }
         let mid = 0.5 * (l + h);
         let half = 0.5 * (h - l);
@@ -547,7 +600,11 @@ impl<'a> Evaluator<'a> {
         if let Some(v) = self.math(&path, args, span)? {
             return Ok(v);
         }
-        let mut err = EvalError::new(DiagKind::UnknownFunction, &callee.span, format!("unknown function `{path}`"));
+        let mut err = EvalError::new(
+            DiagKind::UnknownFunction,
+            &callee.span,
+            format!("unknown function `{path}`"),
+        );
         let mut known: Vec<String> = builtins::all().iter().map(|b| b.path.to_string()).collect();
         known.extend(MATH.iter().map(|s| s.to_string()));
         if let Some(best) = nearest(&path, &known) {
@@ -575,11 +632,18 @@ impl<'a> Evaluator<'a> {
             return Err(EvalError::new(
                 DiagKind::Argument,
                 span,
-                format!("`{name}` takes {} argument(s), {} given", f.params.len(), args.len()),
+                format!(
+                    "`{name}` takes {} argument(s), {} given",
+                    f.params.len(),
+                    args.len()
+                ),
             )
             .hint(format!("{name}({})", f.params.join(", "))));
         }
-        let vals = args.iter().map(|a| self.eval(&a.value)).collect::<R<Vec<_>>>()?;
+        let vals = args
+            .iter()
+            .map(|a| self.eval(&a.value))
+            .collect::<R<Vec<_>>>()?;
         let saved = std::mem::take(&mut self.locals);
         self.locals = f.params.iter().cloned().zip(vals).collect();
         self.depth += 1;
@@ -593,7 +657,12 @@ impl<'a> Evaluator<'a> {
         Ok(v)
     }
 
-    fn builtin_call(&mut self, b: &'static builtins::Builtin, args: &[Arg], span: &Span) -> R<Value> {
+    fn builtin_call(
+        &mut self,
+        b: &'static builtins::Builtin,
+        args: &[Arg],
+        span: &Span,
+    ) -> R<Value> {
         let mut slots: Vec<Option<Value>> = vec![None; b.params.len()];
         let mut spans: Vec<Span> = vec![span.clone(); b.params.len()];
         let mut positional = 0;
@@ -614,14 +683,17 @@ impl<'a> Evaluator<'a> {
                 Some(n) => match b.params.iter().position(|p| p.name == n.name) {
                     Some(i) => i,
                     None => {
-                        let names: Vec<String> = b.params.iter().map(|p| p.name.to_string()).collect();
+                        let names: Vec<String> =
+                            b.params.iter().map(|p| p.name.to_string()).collect();
                         let mut err = EvalError::new(
                             DiagKind::Argument,
                             &n.span,
                             format!("`{}` has no parameter `{}`", b.path, n.name),
                         );
                         err = match nearest(&n.name, &names) {
-                            Some(best) => err.hint(format!("did you mean `{best}`? ({})", b.doc.signature)),
+                            Some(best) => {
+                                err.hint(format!("did you mean `{best}`? ({})", b.doc.signature))
+                            }
                             None => err.hint(b.doc.signature),
                         };
                         return Err(err);
@@ -638,7 +710,12 @@ impl<'a> Evaluator<'a> {
             slots[idx] = Some(self.eval(&a.value)?);
             spans[idx] = a.value.span.clone();
         }
-        if let Some((i, p)) = b.params.iter().enumerate().find(|(i, p)| p.required && slots[*i].is_none()) {
+        if let Some((i, p)) = b
+            .params
+            .iter()
+            .enumerate()
+            .find(|(i, p)| p.required && slots[*i].is_none())
+        {
             let _ = i;
             return Err(EvalError::new(
                 DiagKind::Argument,
@@ -653,8 +730,15 @@ impl<'a> Evaluator<'a> {
         };
         let mut ctx = CallCtx { host: &mut host };
         (b.call)(&mut ctx, &slots).map_err(|e: CallError| {
-            let at = e.param.and_then(|i| spans.get(i).cloned()).unwrap_or(span.clone());
-            let mut err = EvalError::new(DiagKind::Argument, &at, format!("{}: {}", b.path, e.message));
+            let at = e
+                .param
+                .and_then(|i| spans.get(i).cloned())
+                .unwrap_or(span.clone());
+            let mut err = EvalError::new(
+                DiagKind::Argument,
+                &at,
+                format!("{}: {}", b.path, e.message),
+            );
             err.hint = e.hint;
             err
         })
@@ -690,14 +774,20 @@ impl<'a> Evaluator<'a> {
         if path == "tol" {
             return self.tol(args, span).map(Some);
         }
-        let vals = args.iter().map(|a| self.num(&a.value)).collect::<R<Vec<_>>>()?;
+        let vals = args
+            .iter()
+            .map(|a| self.num(&a.value))
+            .collect::<R<Vec<_>>>()?;
         let a = vals[0];
         let dimensionless = |what: &str| -> R<()> {
             if !a.dim.is_none() || a.abs {
                 Err(EvalError::new(
                     DiagKind::DimensionMismatch,
                     &args[0].value.span,
-                    format!("`{what}` needs a dimensionless number, not {}", units::describe_quantity(a.dim, a.abs)),
+                    format!(
+                        "`{what}` needs a dimensionless number, not {}",
+                        units::describe_quantity(a.dim, a.abs)
+                    ),
                 )
                 .hint("divide by a reference value to make it dimensionless"))
             } else {
@@ -717,7 +807,11 @@ impl<'a> Evaluator<'a> {
                     ));
                 };
                 if a.x.v.lo < 0.0 {
-                    return Err(domain(&args[0].value.span, "the square root of a negative value", a));
+                    return Err(domain(
+                        &args[0].value.span,
+                        "the square root of a negative value",
+                        a,
+                    ));
                 }
                 Num::new(a.x.sqrt(), dim)
             }
@@ -728,7 +822,11 @@ impl<'a> Evaluator<'a> {
             "ln" | "log10" => {
                 dimensionless(path)?;
                 if a.x.v.lo <= 0.0 {
-                    return Err(domain(&args[0].value.span, "the logarithm of a value that is not positive", a));
+                    return Err(domain(
+                        &args[0].value.span,
+                        "the logarithm of a value that is not positive",
+                        a,
+                    ));
                 }
                 Num::new(if path == "ln" { a.x.ln() } else { a.x.log10() }, Dim::NONE)
             }
@@ -743,7 +841,10 @@ impl<'a> Evaluator<'a> {
                     return Err(EvalError::new(
                         DiagKind::Temperature,
                         &args[0].value.span,
-                        format!("`kelvin` takes an absolute temperature, not {}", units::describe_quantity(a.dim, a.abs)),
+                        format!(
+                            "`kelvin` takes an absolute temperature, not {}",
+                            units::describe_quantity(a.dim, a.abs)
+                        ),
                     ));
                 }
                 Num { abs: false, ..a }
@@ -763,7 +864,11 @@ impl<'a> Evaluator<'a> {
                             ),
                         ));
                     }
-                    acc.x = if path == "min" { acc.x.min(b.x) } else { acc.x.max(b.x) };
+                    acc.x = if path == "min" {
+                        acc.x.min(b.x)
+                    } else {
+                        acc.x.max(b.x)
+                    };
                 }
                 acc
             }
@@ -779,13 +884,21 @@ impl<'a> Evaluator<'a> {
         let hi = self.num(&args[2].value)?;
         for (n, a) in [(lo, &args[1]), (hi, &args[2])] {
             if !n.x.v.is_point() {
-                return Err(EvalError::new(DiagKind::TypeMismatch, &a.value.span, "a tolerance must be a known number"));
+                return Err(EvalError::new(
+                    DiagKind::TypeMismatch,
+                    &a.value.span,
+                    "a tolerance must be a known number",
+                ));
             }
             if !relative && (n.dim != b.dim || n.abs) {
                 return Err(EvalError::new(
                     DiagKind::DimensionMismatch,
                     &a.value.span,
-                    format!("the tolerance is {} but the value is {}", n.dim.describe(), b.dim.describe()),
+                    format!(
+                        "the tolerance is {} but the value is {}",
+                        n.dim.describe(),
+                        b.dim.describe()
+                    ),
                 )
                 .hint("give both ends in % (`tol(x, -20 %, +80 %)`) or in the value's unit"));
             }
@@ -807,7 +920,12 @@ impl<'a> Evaluator<'a> {
             ));
         }
         let n = if relative {
-            self.input_site(span, 0.0, l, h, |e| Ok(Num { x: b.x * (Dual::constant(1.0) + e), ..b }))?
+            self.input_site(span, 0.0, l, h, |e| {
+                Ok(Num {
+                    x: b.x * (Dual::constant(1.0) + e),
+                    ..b
+                })
+            })?
         } else {
             self.input_site(span, 0.0, l, h, |d| Ok(Num { x: b.x + d, ..b }))?
         };
@@ -826,9 +944,18 @@ fn same_function(a: &Expr, b: &Expr) -> bool {
         (ExprKind::Code { value: x, .. }, ExprKind::Code { value: y, .. }) => x == y,
         (ExprKind::Name(x), ExprKind::Name(y)) => x == y,
         (ExprKind::Neg(x), ExprKind::Neg(y)) => same_function(x, y),
-        (ExprKind::Binary { op: o, lhs: a1, rhs: b1 }, ExprKind::Binary { op: p, lhs: a2, rhs: b2 }) => {
-            o == p && same_function(a1, a2) && same_function(b1, b2)
-        }
+        (
+            ExprKind::Binary {
+                op: o,
+                lhs: a1,
+                rhs: b1,
+            },
+            ExprKind::Binary {
+                op: p,
+                lhs: a2,
+                rhs: b2,
+            },
+        ) => o == p && same_function(a1, a2) && same_function(b1, b2),
         (ExprKind::Field { base: x, field: f }, ExprKind::Field { base: y, field: g }) => {
             f.name == g.name && same_function(x, y)
         }
@@ -837,7 +964,9 @@ fn same_function(a: &Expr, b: &Expr) -> bool {
 }
 
 /// The math functions of the language.
-pub const MATH: &[&str] = &["sqrt", "exp", "ln", "log10", "abs", "min", "max", "kelvin", "tol"];
+pub const MATH: &[&str] = &[
+    "sqrt", "exp", "ln", "log10", "abs", "min", "max", "kelvin", "tol",
+];
 
 /// The evaluator as the built-ins' host.
 struct Host<'e, 'a> {
@@ -849,19 +978,33 @@ impl CallHost for Host<'_, '_> {
     fn is_nominal(&self) -> bool {
         self.ev.nominal()
     }
-    fn choose(&mut self, key: &str, pick: &mut dyn FnMut() -> Result<f64, CallError>) -> Result<f64, CallError> {
+    fn choose(
+        &mut self,
+        key: &str,
+        pick: &mut dyn FnMut() -> Result<f64, CallError>,
+    ) -> Result<f64, CallError> {
         let k = format!("{}#{}:{}", self.ev.stmt_key, self.call_key, key);
         if let Some(&v) = self.ev.reg.choices.get(&k) {
             return Ok(v);
         }
         if !self.ev.nominal() {
-            return Err(CallError::new("internal: a choice was not made in the nominal pass"));
+            return Err(CallError::new(
+                "internal: a choice was not made in the nominal pass",
+            ));
         }
         let v = pick()?;
         self.ev.reg.choices.insert(k, v);
         Ok(v)
     }
-    fn part_input(&mut self, key: &str, label: String, nominal: f64, lo: f64, hi: f64, dim: Dim) -> Dual {
+    fn part_input(
+        &mut self,
+        key: &str,
+        label: String,
+        nominal: f64,
+        lo: f64,
+        hi: f64,
+        dim: Dim,
+    ) -> Dual {
         let k = format!("{}#{}:{}", self.ev.stmt_key, self.call_key, key);
         let label = format!("{label} in {}", self.ev.stmt_label);
         match self.ev.input(&k, label, nominal, lo, hi) {
@@ -886,7 +1029,13 @@ impl CallHost for Host<'_, '_> {
         let k = format!("probe:{}#{}:{}", self.ev.stmt_key, self.call_key, key);
         if self.ev.nominal() {
             let scalar = self.ev.reg.scalar_id(&k);
-            if !self.ev.reg.probes.iter().any(|p| p.scalar == scalar && p.rule == rule) {
+            if !self
+                .ev
+                .reg
+                .probes
+                .iter()
+                .any(|p| p.scalar == scalar && p.rule == rule)
+            {
                 self.ev.reg.probes.push(ProbeInfo {
                     scalar,
                     source: self.ev.stmt_label.clone(),
@@ -900,14 +1049,24 @@ impl CallHost for Host<'_, '_> {
     fn warn(&mut self, text: String) {
         let src = self.ev.stmt_label.clone();
         let key = self.ev.stmt_key.clone();
-        if !self.ev.reg.warnings.iter().any(|(_, k, t)| *k == key && *t == text) {
+        if !self
+            .ev
+            .reg
+            .warnings
+            .iter()
+            .any(|(_, k, t)| *k == key && *t == text)
+        {
             self.ev.reg.warnings.push((src, key, text));
         }
     }
 }
 
 fn unreachable_num(span: &Span) -> R<Num> {
-    Err(EvalError::new(DiagKind::TypeMismatch, span, "expected a number"))
+    Err(EvalError::new(
+        DiagKind::TypeMismatch,
+        span,
+        "expected a number",
+    ))
 }
 
 /// True when the expression is a `%` or `ppm` literal (only those make a tolerance relative).
@@ -988,12 +1147,23 @@ pub fn binary(op: BinOp, a: Num, b: Num, span: &Span, rhs_span: &Span) -> R<Num>
                 (BinOp::Sub, x, _) => x,
                 _ => false,
             };
-            let x = if op == BinOp::Add { a.x + b.x } else { a.x - b.x };
+            let x = if op == BinOp::Add {
+                a.x + b.x
+            } else {
+                a.x - b.x
+            };
             Ok(Num { x, dim: a.dim, abs })
         }
         BinOp::Mul | BinOp::Div => {
             if a.abs || b.abs {
-                return Err(abs_error(span, if op == BinOp::Mul { "multiply" } else { "divide" }));
+                return Err(abs_error(
+                    span,
+                    if op == BinOp::Mul {
+                        "multiply"
+                    } else {
+                        "divide"
+                    },
+                ));
             }
             if op == BinOp::Mul {
                 return Ok(Num::new(a.x * b.x, a.dim.mul(b.dim)));
@@ -1038,7 +1208,11 @@ pub fn binary(op: BinOp, a: Num, b: Num, span: &Span, rhs_span: &Span) -> R<Num>
                     ));
                 }
                 if a.x.v.lo <= 0.0 {
-                    return Err(domain(span, "a power with an uncertain exponent needs a positive base", a));
+                    return Err(domain(
+                        span,
+                        "a power with an uncertain exponent needs a positive base",
+                        a,
+                    ));
                 }
                 return Ok(Num::new(a.x.powf(b.x), Dim::NONE));
             }
@@ -1046,7 +1220,11 @@ pub fn binary(op: BinOp, a: Num, b: Num, span: &Span, rhs_span: &Span) -> R<Num>
             if p.fract() == 0.0 && p.abs() <= 64.0 {
                 let n = p as i32;
                 let Some(dim) = a.dim.powi(n) else {
-                    return Err(EvalError::new(DiagKind::Limit, span, "the unit's exponent grows too large"));
+                    return Err(EvalError::new(
+                        DiagKind::Limit,
+                        span,
+                        "the unit's exponent grows too large",
+                    ));
                 };
                 if n < 0 {
                     divisor_check(a, span)?;
@@ -1084,7 +1262,11 @@ pub fn binary(op: BinOp, a: Num, b: Num, span: &Span, rhs_span: &Span) -> R<Num>
 fn divisor_check(b: Num, span: &Span) -> R<()> {
     if b.x.v.contains_zero() {
         if b.x.v.is_point() {
-            return Err(EvalError::new(DiagKind::DomainError, span, "division by zero"));
+            return Err(EvalError::new(
+                DiagKind::DomainError,
+                span,
+                "division by zero",
+            ));
         }
         return Err(EvalError::new(
             DiagKind::DivisorSpansZero,
@@ -1115,7 +1297,10 @@ pub fn check_declared(v: &Value, u: &units::Unit, span: &Span) -> R<()> {
             return Err(EvalError::new(
                 DiagKind::TypeMismatch,
                 span,
-                format!("a record cannot be shown in `{}`; declare the unit of one of its fields", u.text),
+                format!(
+                    "a record cannot be shown in `{}`; declare the unit of one of its fields",
+                    u.text
+                ),
             ));
         }
         return Err(EvalError::new(
@@ -1159,7 +1344,10 @@ fn reversed_code(n: &str) -> Option<String> {
     let mut chars = n.chars();
     let first = chars.next()?;
     let rest: String = chars.collect();
-    if matches!(first, 'R' | 'k' | 'M' | 'G' | 'n' | 'p' | 'u' | 'µ') && !rest.is_empty() && rest.chars().all(|c| c.is_ascii_digit()) {
+    if matches!(first, 'R' | 'k' | 'M' | 'G' | 'n' | 'p' | 'u' | 'µ')
+        && !rest.is_empty()
+        && rest.chars().all(|c| c.is_ascii_digit())
+    {
         return Some(format!("0{n}"));
     }
     None
@@ -1231,7 +1419,10 @@ pub fn free_names(e: &Expr, bound: &[String], out: &mut Vec<String>) {
                 }
             }
             ExprKind::List(items) => stack.extend(items.iter()),
-            ExprKind::Number { .. } | ExprKind::Code { .. } | ExprKind::Str(_) | ExprKind::Error => {}
+            ExprKind::Number { .. }
+            | ExprKind::Code { .. }
+            | ExprKind::Str(_)
+            | ExprKind::Error => {}
         }
     }
 }

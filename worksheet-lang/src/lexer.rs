@@ -198,13 +198,8 @@ pub fn is_name_continue(c: char) -> bool {
 pub fn is_unit_symbol(c: char) -> bool {
     matches!(
         c,
-        '°' | '%'
-            | '\u{00B2}'
-            | '\u{00B3}'
-            | '\u{00B9}'
-            | '\u{2070}'
-            | '\u{2074}'..='\u{2079}'
-            | '\u{207B}'
+        '°' | '%' | '\u{00B2}' | '\u{00B3}' | '\u{00B9}' | '\u{2070}' | '\u{2074}'
+            ..='\u{2079}' | '\u{207B}'
     )
 }
 
@@ -241,15 +236,19 @@ enum Exponent {
 
 /// Decides whether the folded text at `start` begins with a unit. The candidate is the
 /// longest run of unit characters (letters, `°`, `%`, superscripts, digits right after `^`
-/// or `^-`, the joiners `/ · * ^` and balanced parentheses); the unit is its longest prefix,
-/// cut before a joiner, that parses. So `V/s` is one unit while `V*x` is the unit `V`
-/// followed by `*x`.
+/// or `^-`, the joiners `/ · * ^` and balanced parentheses); the unit is the longest prefix
+/// of it that parses and ends at the end or before a `/` or `*` outside parentheses, with
+/// no `·` in the rest. So `V/s` is one unit, `V*x` is the unit `V` followed by `*x`, and
+/// `W/m·K` is an unknown unit (the unit parser says why).
 fn scan_unit(s: &str, start: usize) -> UnitScan {
     let rest = &s[start..];
     if !rest.chars().next().is_some_and(is_unit_start) {
         return UnitScan::NotUnit;
     }
-    let word = rest.split(|c: char| !is_name_continue(c)).next().unwrap_or("");
+    let word = rest
+        .split(|c: char| !is_name_continue(c))
+        .next()
+        .unwrap_or("");
     if Keyword::from_name(word).is_some() {
         return UnitScan::NotUnit;
     }
@@ -265,7 +264,7 @@ fn scan_unit(s: &str, start: usize) -> UnitScan {
         let at = start + off;
         let ok = match c {
             '/' | '*' | '^' | UNIT_DOT => {
-                if depth == 0 {
+                if depth == 0 && (c == '/' || c == '*') {
                     cuts.push(at);
                     if c == '*' && first_star.is_none() {
                         first_star = Some(at);
@@ -318,6 +317,10 @@ fn scan_unit(s: &str, start: usize) -> UnitScan {
     for &cut in cuts.iter().rev() {
         // `V1`, `mA_max`: a name, not a unit followed by more name.
         if cut == end && s[end..].chars().next().is_some_and(is_name_continue) {
+            continue;
+        }
+        // The unit dot only joins units: `W/m·K` is a malformed unit, not `W/m` times `K`.
+        if s[cut..end].contains(UNIT_DOT) {
             continue;
         }
         if units::parse_unit(&s[start..cut]).is_ok() {
@@ -424,7 +427,9 @@ impl Lexer<'_> {
                     continue;
                 }
                 '#' => {
-                    self.pos = self.s[start..].find('\n').map_or(self.s.len(), |i| start + i);
+                    self.pos = self.s[start..]
+                        .find('\n')
+                        .map_or(self.s.len(), |i| start + i);
                     continue;
                 }
                 c if c.is_whitespace() => {
@@ -483,9 +488,13 @@ impl Lexer<'_> {
         let end = start + c.len_utf8();
         let hint = match c {
             '|' => Some("`||` is the parallel combination: `R1 || R2`"),
-            '–' | '—' => Some("write `-` for a minus sign, or `..` for a range: `10 V .. 12 V`"),
+            '–' | '—' => {
+                Some("write `-` for a minus sign, or `..` for a range: `10 V .. 12 V`")
+            }
             '!' | '≠' => Some("a check compares with `<`, `<=`, `>` or `>=`"),
-            '\'' | '‘' | '’' | '“' | '”' => Some("write a note in straight double quotes: `\"…\"`"),
+            '\'' | '‘' | '’' | '“' | '”' => {
+                Some("write a note in straight double quotes: `\"…\"`")
+            }
             ';' => Some("write one statement per line"),
             '{' | '}' => Some("group with `(` and `)`"),
             '÷' => Some("write `/` for a division"),
@@ -605,7 +614,11 @@ impl Lexer<'_> {
             return;
         }
         let plain = plain && !raw.contains('_');
-        let value = raw.replace('_', "").parse::<f64>().ok().filter(|v| v.is_finite());
+        let value = raw
+            .replace('_', "")
+            .parse::<f64>()
+            .ok()
+            .filter(|v| v.is_finite());
         if value.is_none() {
             self.diag(
                 Diagnostic::error(

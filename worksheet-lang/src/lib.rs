@@ -9,11 +9,11 @@
 
 pub mod ast;
 pub mod builtins;
-pub mod num;
-pub mod value;
 pub mod diagnostic;
+pub mod num;
 pub mod parser;
 pub mod units;
+pub mod value;
 
 pub use ast::Span;
 pub use diagnostic::{DiagKind, Diagnostic, Severity};

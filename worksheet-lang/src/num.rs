@@ -63,7 +63,12 @@ impl Interval {
         if self.is_point() && o.is_point() {
             return Interval::point(self.lo * o.lo);
         }
-        let p = [self.lo * o.lo, self.lo * o.hi, self.hi * o.lo, self.hi * o.hi];
+        let p = [
+            self.lo * o.lo,
+            self.lo * o.hi,
+            self.hi * o.lo,
+            self.hi * o.hi,
+        ];
         Interval {
             lo: p.iter().copied().fold(f64::INFINITY, fmin),
             hi: p.iter().copied().fold(f64::NEG_INFINITY, fmax),

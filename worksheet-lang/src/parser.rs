@@ -3,9 +3,9 @@
 //!
 //! One statement per line. A statement continues on the next line while a `(` or `[` is
 //! open, or when the line ends with a token that needs a right-hand side (a binary operator,
-//! `=`, `:`, a comparison, a comma). Expressions are read by precedence climbing; every
-//! recursion and every level of the built tree is counted, so no input can overflow the
-//! stack (here or in whatever walks the tree later).
+//! `=`, `:`, a comparison, a comma). Expressions are read by operator precedence on
+//! explicit stacks, and the depth of the built tree is limited, so no input can overflow
+//! the stack, here or in whatever walks the tree later.
 //!
 //! After an error the parser skips to the end of the statement and goes on. A statement
 //! still yields what could be read: a definition whose value is broken keeps its name (the
@@ -20,7 +20,7 @@ use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::lexer::{self, Keyword, Token, TokenKind};
 use crate::units;
 
-/// Deepest nesting of the syntax tree, and of the parser's own recursion.
+/// Deepest nesting of the syntax tree, and most brackets and operators pending at once.
 pub const MAX_DEPTH: u32 = 256;
 
 /// Parses one cell.
@@ -37,7 +37,6 @@ pub fn parse(source: &str) -> Program {
         diags: Vec::new(),
         quiet: Vec::new(),
         brackets: Vec::new(),
-        nest: 0,
         err_at: 0,
         head: None,
     };
@@ -72,7 +71,9 @@ pub fn parse(source: &str) -> Program {
 pub enum Completeness {
     Complete,
     /// More lines are needed (an open bracket, a trailing operator or comma).
-    Incomplete { indent: String },
+    Incomplete {
+        indent: String,
+    },
     /// Cannot become valid by adding lines (e.g. an unmatched closing bracket).
     Invalid,
 }
@@ -150,6 +151,74 @@ type PResult<T> = Result<T, Stop>;
 struct Node {
     e: Expr,
     d: u32,
+    /// A tolerance or range not in parentheses (these do not chain).
+    tol: bool,
+}
+
+const PREC_SUM: u8 = 1;
+const PREC_PARALLEL: u8 = 2;
+const PREC_PRODUCT: u8 = 3;
+const PREC_TOL: u8 = 4;
+const PREC_PREFIX: u8 = 5;
+const PREC_POW: u8 = 6;
+
+/// An operator waiting for its right operand, or an open bracket.
+enum Op {
+    Bin { op: BinOp, prec: u8, tok: usize },
+    Tol { range: bool, tok: usize },
+    Prefix { neg: bool, tok: usize },
+    Pow { tok: usize },
+    Group(Group),
+}
+
+impl Op {
+    fn bin(op: BinOp, tok: usize) -> Op {
+        let prec = match op {
+            BinOp::Add | BinOp::Sub => PREC_SUM,
+            BinOp::Parallel => PREC_PARALLEL,
+            _ => PREC_PRODUCT,
+        };
+        Op::Bin { op, prec, tok }
+    }
+
+    /// Binding strength; `None` for a bracket, which operators never reduce across.
+    fn prec(&self) -> Option<u8> {
+        match self {
+            Op::Bin { prec, .. } => Some(*prec),
+            Op::Tol { .. } => Some(PREC_TOL),
+            Op::Prefix { .. } => Some(PREC_PREFIX),
+            Op::Pow { .. } => Some(PREC_POW),
+            Op::Group(_) => None,
+        }
+    }
+}
+
+/// An open bracket and what has been read inside it.
+enum Group {
+    Paren {
+        open: usize,
+    },
+    Call {
+        callee: Node,
+        args: Vec<Arg>,
+        d: u32,
+        /// The first named argument, for the error on a positional one after it.
+        first_named: Option<Ident>,
+        /// The name of the argument being read.
+        name: Option<Ident>,
+    },
+    List {
+        open: usize,
+        items: Vec<Expr>,
+        d: u32,
+    },
+}
+
+fn innermost_group(ops: &[Op]) -> Option<&Group> {
+    ops.iter().rev().find_map(|o| match o {
+        Op::Group(g) => Some(g),
+        _ => None,
+    })
 }
 
 /// What was read of a statement before its value, so a broken value still yields a
@@ -173,8 +242,6 @@ struct Parser<'a> {
     quiet: Vec<Span>,
     /// Open brackets the parser is inside (token indices), innermost last.
     brackets: Vec<usize>,
-    /// Current recursion depth of the expression parser.
-    nest: u32,
     /// The token at which the last error was detected.
     err_at: usize,
     head: Option<(Head, usize)>,
@@ -299,7 +366,9 @@ impl<'a> Parser<'a> {
         let t = self.tok();
         match t.kind {
             TokenKind::Newline | TokenKind::Eof => {
-                let at = self.prev_token(self.pos).map_or(t.span.start, |p| p.span.end);
+                let at = self
+                    .prev_token(self.pos)
+                    .map_or(t.span.start, |p| p.span.end);
                 at..at
             }
             _ => t.span.clone(),
@@ -392,9 +461,9 @@ impl<'a> Parser<'a> {
             TokenKind::Keyword(Keyword::As) => {
                 Some("`as UNIT` may only end a statement that shows a value".to_string())
             }
-            TokenKind::PlusMinus | TokenKind::DotDot => Some(
-                "tolerances do not chain; put one in parentheses: `(a ± b) ± c`".to_string(),
-            ),
+            TokenKind::PlusMinus | TokenKind::DotDot => {
+                Some("tolerances do not chain; put one in parentheses: `(a ± b) ± c`".to_string())
+            }
             TokenKind::RParen | TokenKind::RBracket
                 if self.matches[self.pos].is_none() && self.brackets.is_empty() =>
             {
@@ -427,7 +496,6 @@ impl<'a> Parser<'a> {
     fn statement(&mut self) -> Stmt {
         let start = self.pos;
         self.brackets.clear();
-        self.nest = 0;
         self.head = None;
         let outcome = match self.statement_kind() {
             Ok(kind) => {
@@ -642,9 +710,13 @@ impl<'a> Parser<'a> {
         let unit = self.unit_text(from, to);
         if unit.text.is_empty() {
             let span = self.toks[open].span.start..self.toks[close].span.end;
-            let d = Diagnostic::error(DiagKind::UnexpectedToken, span, "no unit between `[` and `]`")
-                .expected("a unit", "`[]`")
-                .hint("write the unit the value must have, e.g. `[mW]`, or drop the brackets");
+            let d = Diagnostic::error(
+                DiagKind::UnexpectedToken,
+                span,
+                "no unit between `[` and `]`",
+            )
+            .expected("a unit", "`[]`")
+            .hint("write the unit the value must have, e.g. `[mW]`, or drop the brackets");
             return Err(self.report(d));
         }
         Ok(unit)
@@ -798,10 +870,7 @@ impl<'a> Parser<'a> {
                 }
                 _ => {
                     let hint = "list what to show after a colon: `sweep x over 1 .. 2: y, z`";
-                    return Err(self.fail(
-                        "`steps`, `by`, `,` or `:`",
-                        Some(hint.to_string()),
-                    ));
+                    return Err(self.fail("`steps`, `by`, `,` or `:`", Some(hint.to_string())));
                 }
             }
         }
@@ -952,108 +1021,510 @@ impl<'a> Parser<'a> {
     }
 
     // ---- expressions --------------------------------------------------------------------
+    //
+    // Expressions are read by operator precedence with explicit stacks (operands, and
+    // operators interleaved with open brackets), so the parser's own stack use does not
+    // grow with the input. Binding strength, loosest first: `+ -` · `||` · `* /` ·
+    // tolerance (`±`, `+/-`, `..`) · unary `-` · `^` (right-associative) · calls and fields.
 
     fn expr(&mut self) -> PResult<Node> {
-        self.binary(0)
+        let mut vals: Vec<Node> = Vec::new();
+        let mut ops: Vec<Op> = Vec::new();
+        loop {
+            self.operand(&mut vals, &mut ops)?;
+            if !self.operator(&mut vals, &mut ops)? {
+                break;
+            }
+        }
+        while !ops.is_empty() {
+            self.reduce(&mut vals, &mut ops)?;
+        }
+        vals.pop().ok_or(Stop)
     }
 
-    /// Binary operators by precedence climbing. Levels, loosest first: 0 `+ -`, 1 `||`,
-    /// 2 `* /`; tighter levels are read by `tolerance`.
-    fn binary(&mut self, min: u8) -> PResult<Node> {
-        let mut lhs = self.tolerance()?;
+    /// Refuses to open one more level beyond the limit.
+    fn room(&mut self, ops: &[Op]) -> PResult<()> {
+        if ops.len() as u32 >= MAX_DEPTH {
+            return Err(self.too_deep());
+        }
+        Ok(())
+    }
+
+    /// Reads prefix signs and one primary (or opens a bracket and returns to read inside).
+    fn operand(&mut self, vals: &mut Vec<Node>, ops: &mut Vec<Op>) -> PResult<()> {
         loop {
-            let (op, level) = match self.peek() {
-                TokenKind::Plus => (BinOp::Add, 0),
-                TokenKind::Minus => (BinOp::Sub, 0),
-                TokenKind::Parallel => (BinOp::Parallel, 1),
-                TokenKind::Star => (BinOp::Mul, 2),
-                TokenKind::Slash => (BinOp::Div, 2),
-                _ => return Ok(lhs),
+            let t = self.tok();
+            let leaf = |kind| Node {
+                e: Expr {
+                    kind,
+                    span: t.span.clone(),
+                },
+                d: 1,
+                tol: false,
             };
-            if level < min {
-                return Ok(lhs);
+            let node = match &t.kind {
+                TokenKind::Minus | TokenKind::Plus => {
+                    self.room(ops)?;
+                    let neg = t.kind == TokenKind::Minus;
+                    ops.push(Op::Prefix {
+                        neg,
+                        tok: self.bump(),
+                    });
+                    continue;
+                }
+                TokenKind::LParen => {
+                    self.room(ops)?;
+                    ops.push(Op::Group(Group::Paren { open: self.bump() }));
+                    continue;
+                }
+                TokenKind::LBracket => {
+                    self.room(ops)?;
+                    let open = self.bump();
+                    if self.peek() == &TokenKind::RBracket {
+                        let close = self.bump();
+                        Node {
+                            e: Expr {
+                                kind: ExprKind::List(Vec::new()),
+                                span: t.span.start..self.toks[close].span.end,
+                            },
+                            d: 1,
+                            tol: false,
+                        }
+                    } else {
+                        ops.push(Op::Group(Group::List {
+                            open,
+                            items: Vec::new(),
+                            d: 0,
+                        }));
+                        continue;
+                    }
+                }
+                TokenKind::Number { value, unit } => leaf(ExprKind::Number {
+                    value: *value,
+                    unit: unit.clone(),
+                }),
+                TokenKind::Code { value, kind, text } => leaf(ExprKind::Code {
+                    value: *value,
+                    kind: *kind,
+                    text: text.clone(),
+                }),
+                TokenKind::Str(s) => leaf(ExprKind::Str(s.clone())),
+                TokenKind::Name(n) => leaf(ExprKind::Name(n.clone())),
+                // Already reported by the lexer.
+                TokenKind::BadValue => leaf(ExprKind::Error),
+                _ => return Err(self.operand_error()),
+            };
+            if matches!(
+                t.kind,
+                TokenKind::Number { .. }
+                    | TokenKind::Code { .. }
+                    | TokenKind::Str(_)
+                    | TokenKind::Name(_)
+                    | TokenKind::BadValue
+            ) {
+                self.bump();
             }
+            vals.push(node);
+            return Ok(());
+        }
+    }
+
+    #[cold]
+    fn operand_error(&mut self) -> Stop {
+        let t = self.tok();
+        let hint = match &t.kind {
+            TokenKind::Dot
+                if matches!(
+                    self.toks.get(self.pos + 1).map(|t| &t.kind),
+                    Some(TokenKind::Number { .. })
+                ) =>
+            {
+                Some("write a leading zero: `0.5`".to_string())
+            }
+            TokenKind::UnitSymbol(c) => Some(symbol_hint(*c)),
+            TokenKind::Star | TokenKind::Slash | TokenKind::Caret => {
+                Some("an operator needs a value on each side".to_string())
+            }
+            TokenKind::Keyword(k) => Some(format!(
+                "`{}` is a keyword and cannot be a name",
+                k.as_str()
+            )),
+            TokenKind::RParen | TokenKind::RBracket if self.matches[self.pos].is_none() => {
+                Some("this closing bracket has no opening one".to_string())
+            }
+            _ => None,
+        };
+        self.fail("an expression", hint)
+    }
+
+    /// After an operand: applies calls and fields, closes brackets, and pushes the next
+    /// operator. Returns false at the end of the expression.
+    fn operator(&mut self, vals: &mut Vec<Node>, ops: &mut Vec<Op>) -> PResult<bool> {
+        loop {
+            let kind = self.peek();
+            let (op, prec) = match kind {
+                TokenKind::Dot => {
+                    let dot = self.bump();
+                    let field = self.name("a field name after `.`")?;
+                    let Some(base) = vals.pop() else {
+                        return Err(Stop);
+                    };
+                    let d = base.d + 1;
+                    if d > MAX_DEPTH {
+                        self.pos = dot;
+                        return Err(self.too_deep());
+                    }
+                    let span = base.e.span.start..field.span.end;
+                    vals.push(Node {
+                        e: Expr {
+                            kind: ExprKind::Field {
+                                base: Box::new(base.e),
+                                field,
+                            },
+                            span,
+                        },
+                        d,
+                        tol: false,
+                    });
+                    continue;
+                }
+                TokenKind::LParen if vals.last().is_some_and(|v| v.e.path().is_some()) => {
+                    self.room(ops)?;
+                    self.bump();
+                    let Some(callee) = vals.pop() else {
+                        return Err(Stop);
+                    };
+                    if self.peek() == &TokenKind::RParen {
+                        let close = self.bump();
+                        let node = self.call_node(callee, Vec::new(), 0, close)?;
+                        vals.push(node);
+                        continue;
+                    }
+                    let name = self.argument_name()?;
+                    ops.push(Op::Group(Group::Call {
+                        callee,
+                        args: Vec::new(),
+                        d: 0,
+                        first_named: name.clone(),
+                        name,
+                    }));
+                    return Ok(true);
+                }
+                TokenKind::Comma => match innermost_group(ops) {
+                    Some(Group::Call { .. } | Group::List { .. }) => {
+                        self.finish_item(vals, ops)?;
+                        self.bump();
+                        let closer = match innermost_group(ops) {
+                            Some(Group::Call { .. }) => TokenKind::RParen,
+                            _ => TokenKind::RBracket,
+                        };
+                        if self.peek() == &closer {
+                            // A trailing comma.
+                            self.close_group(vals, ops)?;
+                            continue;
+                        }
+                        if let Some(Group::Call { .. }) = innermost_group(ops) {
+                            let name = self.argument_name()?;
+                            if let Some(Op::Group(Group::Call {
+                                name: slot,
+                                first_named,
+                                ..
+                            })) = ops.last_mut()
+                            {
+                                if first_named.is_none() {
+                                    first_named.clone_from(&name);
+                                }
+                                *slot = name;
+                            }
+                        }
+                        return Ok(true);
+                    }
+                    Some(Group::Paren { .. }) => return Err(self.group_error(vals, ops)),
+                    None => return Ok(false),
+                },
+                TokenKind::RParen | TokenKind::RBracket => {
+                    let fits = match innermost_group(ops) {
+                        Some(Group::Paren { .. } | Group::Call { .. }) => {
+                            kind == &TokenKind::RParen
+                        }
+                        Some(Group::List { .. }) => kind == &TokenKind::RBracket,
+                        None => return Ok(false),
+                    };
+                    if !fits {
+                        return Err(self.group_error(vals, ops));
+                    }
+                    self.finish_item(vals, ops)?;
+                    self.close_group(vals, ops)?;
+                    continue;
+                }
+                TokenKind::Caret => (Op::Pow { tok: self.pos }, PREC_POW),
+                TokenKind::PlusMinus | TokenKind::DotDot => (
+                    Op::Tol {
+                        range: kind == &TokenKind::DotDot,
+                        tok: self.pos,
+                    },
+                    PREC_TOL,
+                ),
+                TokenKind::Plus => (Op::bin(BinOp::Add, self.pos), PREC_SUM),
+                TokenKind::Minus => (Op::bin(BinOp::Sub, self.pos), PREC_SUM),
+                TokenKind::Parallel => (Op::bin(BinOp::Parallel, self.pos), PREC_PARALLEL),
+                TokenKind::Star => (Op::bin(BinOp::Mul, self.pos), PREC_PRODUCT),
+                TokenKind::Slash => (Op::bin(BinOp::Div, self.pos), PREC_PRODUCT),
+                _ if innermost_group(ops).is_some() => {
+                    return Err(self.group_error(vals, ops));
+                }
+                _ => return Ok(false),
+            };
+            // Left-associative operators first reduce what binds at least as tightly;
+            // `^` is right-associative and reduces nothing (nothing binds tighter).
+            if prec != PREC_POW {
+                while ops.last().and_then(Op::prec).is_some_and(|p| p >= prec) {
+                    self.reduce(vals, ops)?;
+                }
+            }
+            if prec == PREC_TOL && vals.last().is_some_and(|v| v.tol) {
+                return Err(self.chained_tolerance(vals));
+            }
+            self.room(ops)?;
             let op_tok = self.bump();
-            if op == BinOp::Mul && self.peek() == &TokenKind::Star {
+            if self.toks[op_tok].kind == TokenKind::Star && self.peek() == &TokenKind::Star {
                 let hint = "write a power with `^`: `x^2`".to_string();
                 return Err(self.fail("an expression", Some(hint)));
             }
-            let rhs = self.binary(level + 1)?;
-            lhs = self.join(op_tok, lhs, rhs, |l, r| ExprKind::Binary {
-                op,
-                lhs: Box::new(l),
-                rhs: Box::new(r),
-            })?;
+            ops.push(op);
+            return Ok(true);
         }
     }
 
-    /// Builds a node over two children, checking the tree depth.
-    fn join(
-        &mut self,
-        op_tok: usize,
-        lhs: Node,
-        rhs: Node,
-        make: impl FnOnce(Expr, Expr) -> ExprKind,
-    ) -> PResult<Node> {
-        let d = lhs.d.max(rhs.d) + 1;
+    /// `name:` at the start of a call argument.
+    fn argument_name(&mut self) -> PResult<Option<Ident>> {
+        if matches!(self.peek(), TokenKind::Name(_)) && self.peek_after(1) == &TokenKind::Colon {
+            let name = self.name("an argument name")?;
+            self.bump(); // `:`
+            return Ok(Some(name));
+        }
+        Ok(None)
+    }
+
+    /// Reduces the operators of the current bracket and files its value as an argument or
+    /// list item (for parentheses the value stays on the operand stack).
+    fn finish_item(&mut self, vals: &mut Vec<Node>, ops: &mut Vec<Op>) -> PResult<()> {
+        while ops.last().is_some_and(|o| !matches!(o, Op::Group(_))) {
+            self.reduce(vals, ops)?;
+        }
+        if let Some(Op::Group(Group::Paren { .. })) = ops.last() {
+            return Ok(());
+        }
+        let Some(item) = vals.pop() else {
+            return Err(Stop);
+        };
+        let mut late_positional = None;
+        match ops.last_mut() {
+            Some(Op::Group(Group::Call {
+                args,
+                d,
+                first_named,
+                name,
+                ..
+            })) => {
+                *d = (*d).max(item.d);
+                let name = name.take();
+                if name.is_none() {
+                    late_positional = first_named.clone();
+                }
+                args.push(Arg {
+                    name,
+                    value: item.e,
+                });
+            }
+            Some(Op::Group(Group::List { items, d, .. })) => {
+                *d = (*d).max(item.d);
+                items.push(item.e);
+            }
+            _ => return Err(Stop),
+        }
+        if let Some(first) = late_positional {
+            self.positional_after_named(ops, &first);
+        }
+        Ok(())
+    }
+
+    #[cold]
+    fn positional_after_named(&mut self, ops: &[Op], first: &Ident) {
+        let Some(Op::Group(Group::Call { args, .. })) = ops.last() else {
+            return;
+        };
+        let Some(arg) = args.last() else {
+            return;
+        };
+        let d = Diagnostic::error(
+            DiagKind::UnexpectedToken,
+            arg.value.span.clone(),
+            "a positional argument after a named one",
+        )
+        .expected("a named argument (`name: value`)", "a positional one")
+        .hint(format!(
+            "name this argument, or move it before `{}:`",
+            first.name
+        ));
+        self.diags.push(d);
+    }
+
+    /// Consumes the closing bracket of the innermost group and pushes its value.
+    fn close_group(&mut self, vals: &mut Vec<Node>, ops: &mut Vec<Op>) -> PResult<()> {
+        let close = self.bump();
+        let end = self.toks[close].span.end;
+        let node = match ops.pop() {
+            Some(Op::Group(Group::Paren { open })) => {
+                let Some(mut inner) = vals.pop() else {
+                    return Err(Stop);
+                };
+                inner.e.span = self.toks[open].span.start..end;
+                inner.tol = false;
+                inner
+            }
+            Some(Op::Group(Group::Call {
+                callee, args, d, ..
+            })) => self.call_node(callee, args, d, close)?,
+            Some(Op::Group(Group::List { open, items, d })) => {
+                let d = d + 1;
+                if d > MAX_DEPTH {
+                    self.pos = close;
+                    return Err(self.too_deep());
+                }
+                Node {
+                    e: Expr {
+                        kind: ExprKind::List(items),
+                        span: self.toks[open].span.start..end,
+                    },
+                    d,
+                    tol: false,
+                }
+            }
+            _ => return Err(Stop),
+        };
+        vals.push(node);
+        Ok(())
+    }
+
+    fn call_node(&mut self, callee: Node, args: Vec<Arg>, d: u32, close: usize) -> PResult<Node> {
+        let d = callee.d.max(d) + 1;
         if d > MAX_DEPTH {
-            self.pos = op_tok;
+            self.pos = close;
             return Err(self.too_deep());
         }
-        let span = lhs.e.span.start..rhs.e.span.end;
+        let span = callee.e.span.start..self.toks[close].span.end;
         Ok(Node {
             e: Expr {
-                kind: make(lhs.e, rhs.e),
+                kind: ExprKind::Call {
+                    callee: Box::new(callee.e),
+                    args,
+                },
                 span,
             },
             d,
+            tol: false,
         })
     }
 
-    /// `a ± b`, `a +/- b`, `a .. b`: one tolerance operator, no chains.
-    fn tolerance(&mut self) -> PResult<Node> {
-        let lhs = self.unary()?;
-        let range = match self.peek() {
-            TokenKind::PlusMinus => false,
-            TokenKind::DotDot => true,
-            _ => return Ok(lhs),
+    /// An unexpected token inside a bracket.
+    #[cold]
+    fn group_error(&mut self, vals: &[Node], ops: &[Op]) -> Stop {
+        let expected = match innermost_group(ops) {
+            Some(Group::Paren { .. }) => "`)`",
+            Some(Group::Call { .. }) => "`,` or `)`",
+            _ => "`,` or `]`",
         };
-        let op_tok = self.bump();
-        let rhs = self.unary()?;
-        if range {
-            self.check_range_units(&lhs.e, &rhs.e);
+        match vals.last() {
+            Some(v) => self.fail_after(&v.e.clone(), expected),
+            None => self.fail(expected, None),
         }
-        let node = self.join(op_tok, lhs, rhs, |l, r| {
-            if range {
-                ExprKind::Range {
-                    lo: Box::new(l),
-                    hi: Box::new(r),
-                }
-            } else {
-                ExprKind::PlusMinus {
-                    base: Box::new(l),
-                    spread: Box::new(r),
-                }
-            }
-        })?;
-        if matches!(self.peek(), TokenKind::PlusMinus | TokenKind::DotDot) {
-            let text = self.text(&node.e.span).to_string();
-            let d = Diagnostic::error(
-                DiagKind::UnexpectedToken,
-                self.here(),
-                "tolerance operators do not chain",
-            )
-            .expected("an operator or the end of the expression", self.describe(self.toks_at()))
-            .hint(format!(
-                "give one tolerance, or group the first in parentheses: `({text}) …`"
-            ));
-            return Err(self.report(d));
-        }
-        Ok(node)
     }
 
-    fn toks_at(&self) -> &'a Token {
-        &self.toks[self.pos]
+    #[cold]
+    fn chained_tolerance(&mut self, vals: &[Node]) -> Stop {
+        let text = vals.last().map_or("", |v| self.text(&v.e.span)).to_string();
+        let found = self.describe(&self.toks[self.pos]);
+        let d = Diagnostic::error(
+            DiagKind::UnexpectedToken,
+            self.here(),
+            "tolerance operators do not chain",
+        )
+        .expected("an operator or the end of the expression", found)
+        .hint(format!(
+            "give one tolerance, or group the first in parentheses: `({text}) …`"
+        ));
+        self.report(d)
+    }
+
+    /// Applies the operator on top of the stack to its operands.
+    fn reduce(&mut self, vals: &mut Vec<Node>, ops: &mut Vec<Op>) -> PResult<()> {
+        let Some(op) = ops.pop() else {
+            return Err(Stop);
+        };
+        let (tok, two) = match &op {
+            Op::Bin { tok, .. } | Op::Pow { tok } | Op::Tol { tok, .. } => (*tok, true),
+            Op::Prefix { tok, .. } => (*tok, false),
+            Op::Group(_) => return Err(Stop),
+        };
+        let rhs = vals.pop().ok_or(Stop)?;
+        let lhs = if two {
+            Some(vals.pop().ok_or(Stop)?)
+        } else {
+            None
+        };
+        let d = rhs.d.max(lhs.as_ref().map_or(0, |l| l.d)) + 1;
+        let start = lhs
+            .as_ref()
+            .map_or(self.toks[tok].span.start, |l| l.e.span.start);
+        let span = start..rhs.e.span.end;
+        if let (Op::Prefix { neg: false, .. }, None) = (&op, &lhs) {
+            // Unary plus changes nothing but the span.
+            let mut node = rhs;
+            node.e.span = span;
+            vals.push(node);
+            return Ok(());
+        }
+        if d > MAX_DEPTH {
+            self.pos = tok;
+            return Err(self.too_deep());
+        }
+        let mut tol = false;
+        let kind = match (op, lhs) {
+            (Op::Bin { op, .. }, Some(l)) => ExprKind::Binary {
+                op,
+                lhs: Box::new(l.e),
+                rhs: Box::new(rhs.e),
+            },
+            (Op::Pow { .. }, Some(l)) => ExprKind::Binary {
+                op: BinOp::Pow,
+                lhs: Box::new(l.e),
+                rhs: Box::new(rhs.e),
+            },
+            (Op::Tol { range, .. }, Some(l)) => {
+                tol = true;
+                if range {
+                    self.check_range_units(&l.e, &rhs.e);
+                    ExprKind::Range {
+                        lo: Box::new(l.e),
+                        hi: Box::new(rhs.e),
+                    }
+                } else {
+                    ExprKind::PlusMinus {
+                        base: Box::new(l.e),
+                        spread: Box::new(rhs.e),
+                    }
+                }
+            }
+            (Op::Prefix { .. }, None) => ExprKind::Neg(Box::new(rhs.e)),
+            _ => return Err(Stop),
+        };
+        vals.push(Node {
+            e: Expr { kind, span },
+            d,
+            tol,
+        });
+        Ok(())
     }
 
     /// `10.8 .. 13.2 V`: each end of a range carries its own unit.
@@ -1085,275 +1556,6 @@ impl<'a> Parser<'a> {
         .hint(format!("write `{fixed}`"));
         self.diags.push(d);
     }
-
-    /// Unary `-` and `+`, then a power.
-    fn unary(&mut self) -> PResult<Node> {
-        self.nest += 1;
-        let r = if self.nest > MAX_DEPTH {
-            Err(self.too_deep())
-        } else {
-            self.unary_inner()
-        };
-        self.nest -= 1;
-        r
-    }
-
-    fn unary_inner(&mut self) -> PResult<Node> {
-        let mut signs = Vec::new();
-        while let TokenKind::Minus | TokenKind::Plus = self.peek() {
-            if signs.len() as u32 >= MAX_DEPTH {
-                return Err(self.too_deep());
-            }
-            signs.push(self.bump());
-        }
-        let mut node = self.power()?;
-        for &s in signs.iter().rev() {
-            let span = self.toks[s].span.start..node.e.span.end;
-            if self.toks[s].kind == TokenKind::Plus {
-                node.e.span = span;
-                continue;
-            }
-            node.d += 1;
-            if node.d > MAX_DEPTH {
-                self.pos = s;
-                return Err(self.too_deep());
-            }
-            node.e = Expr {
-                kind: ExprKind::Neg(Box::new(node.e)),
-                span,
-            };
-        }
-        Ok(node)
-    }
-
-    /// `base ^ exponent`, right-associative; the exponent may carry a sign (`x^-1`).
-    fn power(&mut self) -> PResult<Node> {
-        let base = self.postfix()?;
-        if self.peek() != &TokenKind::Caret {
-            return Ok(base);
-        }
-        let op_tok = self.bump();
-        let exponent = self.unary()?;
-        self.join(op_tok, base, exponent, |l, r| ExprKind::Binary {
-            op: BinOp::Pow,
-            lhs: Box::new(l),
-            rhs: Box::new(r),
-        })
-    }
-
-    /// A primary followed by calls and field accesses.
-    fn postfix(&mut self) -> PResult<Node> {
-        let mut node = self.primary()?;
-        loop {
-            match self.peek() {
-                TokenKind::Dot => {
-                    let dot = self.bump();
-                    let field = self.name("a field name after `.`")?;
-                    node.d += 1;
-                    if node.d > MAX_DEPTH {
-                        self.pos = dot;
-                        return Err(self.too_deep());
-                    }
-                    let span = node.e.span.start..field.span.end;
-                    node.e = Expr {
-                        kind: ExprKind::Field {
-                            base: Box::new(node.e),
-                            field,
-                        },
-                        span,
-                    };
-                }
-                TokenKind::LParen if node.e.path().is_some() => node = self.call(node)?,
-                _ => return Ok(node),
-            }
-        }
-    }
-
-    fn call(&mut self, callee: Node) -> PResult<Node> {
-        self.bump(); // `(`
-        let mut d = callee.d;
-        let mut args: Vec<Arg> = Vec::new();
-        let mut first_named: Option<Ident> = None;
-        let close = loop {
-            if self.peek() == &TokenKind::RParen {
-                break self.bump();
-            }
-            let named = matches!(self.peek(), TokenKind::Name(_))
-                && self.peek_after(1) == &TokenKind::Colon;
-            let arg = if named {
-                let name = self.name("an argument name")?;
-                self.bump(); // `:`
-                let value = self.expr()?;
-                d = d.max(value.d);
-                if first_named.is_none() {
-                    first_named = Some(name.clone());
-                }
-                Arg {
-                    name: Some(name),
-                    value: value.e,
-                }
-            } else {
-                let value = self.expr()?;
-                d = d.max(value.d);
-                if let Some(first) = &first_named {
-                    let d = Diagnostic::error(
-                        DiagKind::UnexpectedToken,
-                        value.e.span.clone(),
-                        "a positional argument after a named one",
-                    )
-                    .expected("a named argument (`name: value`)", "a positional one")
-                    .hint(format!(
-                        "name this argument, or move it before `{}:`",
-                        first.name
-                    ));
-                    self.diags.push(d);
-                }
-                Arg {
-                    name: None,
-                    value: value.e,
-                }
-            };
-            args.push(arg);
-            match self.peek() {
-                TokenKind::Comma => {
-                    self.bump();
-                }
-                TokenKind::RParen => break self.bump(),
-                _ => {
-                    let last = &args[args.len() - 1].value;
-                    return Err(self.fail_after(last, "`,` or `)`"));
-                }
-            }
-        };
-        let d = d + 1;
-        if d > MAX_DEPTH {
-            self.pos = close;
-            return Err(self.too_deep());
-        }
-        let span = callee.e.span.start..self.toks[close].span.end;
-        Ok(Node {
-            e: Expr {
-                kind: ExprKind::Call {
-                    callee: Box::new(callee.e),
-                    args,
-                },
-                span,
-            },
-            d,
-        })
-    }
-
-    fn primary(&mut self) -> PResult<Node> {
-        let t = self.tok();
-        let leaf = |kind| {
-            Ok(Node {
-                e: Expr {
-                    kind,
-                    span: t.span.clone(),
-                },
-                d: 1,
-            })
-        };
-        match &t.kind {
-            TokenKind::Number { value, unit } => {
-                self.bump();
-                leaf(ExprKind::Number {
-                    value: *value,
-                    unit: unit.clone(),
-                })
-            }
-            TokenKind::Code { value, kind, text } => {
-                self.bump();
-                leaf(ExprKind::Code {
-                    value: *value,
-                    kind: *kind,
-                    text: text.clone(),
-                })
-            }
-            TokenKind::Str(s) => {
-                self.bump();
-                leaf(ExprKind::Str(s.clone()))
-            }
-            TokenKind::Name(n) => {
-                self.bump();
-                leaf(ExprKind::Name(n.clone()))
-            }
-            TokenKind::BadValue => {
-                self.bump();
-                leaf(ExprKind::Error)
-            }
-            TokenKind::LParen => {
-                let open = self.bump();
-                let mut inner = self.expr()?;
-                if self.peek() != &TokenKind::RParen {
-                    return Err(self.fail_after(&inner.e, "`)`"));
-                }
-                let close = self.bump();
-                inner.e.span = self.toks[open].span.start..self.toks[close].span.end;
-                Ok(inner)
-            }
-            TokenKind::LBracket => self.list(),
-            _ => {
-                let hint = match &t.kind {
-                    TokenKind::Dot
-                        if matches!(self.peek_after(1), TokenKind::Number { .. }) =>
-                    {
-                        Some("write a leading zero: `0.5`".to_string())
-                    }
-                    TokenKind::UnitSymbol(c) => Some(symbol_hint(*c)),
-                    TokenKind::Star | TokenKind::Slash | TokenKind::Caret => {
-                        Some("an operator needs a value on each side".to_string())
-                    }
-                    TokenKind::Keyword(k) => {
-                        Some(format!("`{}` is a keyword and cannot be a name", k.as_str()))
-                    }
-                    TokenKind::RParen | TokenKind::RBracket
-                        if self.matches[self.pos].is_none() =>
-                    {
-                        Some("this closing bracket has no opening one".to_string())
-                    }
-                    _ => None,
-                };
-                Err(self.fail("an expression", hint))
-            }
-        }
-    }
-
-    fn list(&mut self) -> PResult<Node> {
-        let open = self.bump();
-        let mut items = Vec::new();
-        let mut d = 0;
-        let close = loop {
-            if self.peek() == &TokenKind::RBracket {
-                break self.bump();
-            }
-            let item = self.expr()?;
-            d = d.max(item.d);
-            items.push(item.e);
-            match self.peek() {
-                TokenKind::Comma => {
-                    self.bump();
-                }
-                TokenKind::RBracket => break self.bump(),
-                _ => {
-                    let last = &items[items.len() - 1];
-                    return Err(self.fail_after(last, "`,` or `]`"));
-                }
-            }
-        };
-        let d = d + 1;
-        if d > MAX_DEPTH {
-            self.pos = close;
-            return Err(self.too_deep());
-        }
-        Ok(Node {
-            e: Expr {
-                kind: ExprKind::List(items),
-                span: self.toks[open].span.start..self.toks[close].span.end,
-            },
-            d,
-        })
-    }
 }
 
 fn symbol_hint(c: char) -> String {
@@ -1364,14 +1566,20 @@ fn symbol_hint(c: char) -> String {
     }
 }
 
-/// The last operand of an expression (`3` in `1 + 2 * 3`): what a following token touches.
+/// The last operand of an expression (`3` in `1 + 2 * 3`, but `(1 + 2)` as a whole): what
+/// a following token touches.
 fn rightmost(mut e: &Expr) -> &Expr {
     loop {
-        e = match &e.kind {
+        let next = match &e.kind {
             ExprKind::Binary { rhs, .. } => rhs,
             ExprKind::PlusMinus { spread, .. } => spread,
             ExprKind::Range { hi, .. } => hi,
             _ => return e,
         };
+        // A parenthesised operand ends at its `)`, after its last operand.
+        if next.span.end != e.span.end {
+            return e;
+        }
+        e = next;
     }
 }

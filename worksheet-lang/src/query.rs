@@ -51,7 +51,10 @@ pub fn complete(ws: &Worksheet, source: &str, cursor: usize) -> Completion {
     let start = path_start(source, cursor);
     let word = &source[start..cursor];
     let before = source[..start].trim_end_matches(' ');
-    let after_number = before.chars().next_back().is_some_and(|c| c.is_ascii_digit())
+    let after_number = before
+        .chars()
+        .next_back()
+        .is_some_and(|c| c.is_ascii_digit())
         && source[..start].len() - before.len() <= 1
         && !word.contains('.');
     let mut matches: Vec<String>;
@@ -66,7 +69,10 @@ pub fn complete(ws: &Worksheet, source: &str, cursor: usize) -> Completion {
         } else {
             ws.record_fields(base)
         };
-        matches = members.into_iter().filter(|m| m.starts_with(partial)).collect();
+        matches = members
+            .into_iter()
+            .filter(|m| m.starts_with(partial))
+            .collect();
     } else if after_number && !word.chars().next().is_some_and(|c| c.is_ascii_digit()) {
         matches = crate::units::symbols()
             .into_iter()
@@ -116,7 +122,10 @@ fn path_at(source: &str, cursor: usize) -> &str {
 
 /// The documentation of a built-in, as shown on inspection.
 pub fn builtin_doc(b: &builtins::Builtin) -> String {
-    let mut t = format!("{}\n\n{}\n\nFormula:\n{}\n", b.doc.signature, b.doc.summary, b.doc.formula);
+    let mut t = format!(
+        "{}\n\n{}\n\nFormula:\n{}\n",
+        b.doc.signature, b.doc.summary, b.doc.formula
+    );
     if !b.doc.fields.is_empty() {
         t.push_str("\nFields:\n");
         for f in b.doc.fields {
@@ -136,7 +145,10 @@ pub fn builtin_doc(b: &builtins::Builtin) -> String {
             t.push_str(&format!("  {:<12} {d}\n", p.name));
         }
     }
-    t.push_str(&format!("\nSource: {}\n\nCaveats: {}\n", b.doc.source, b.doc.caveats));
+    t.push_str(&format!(
+        "\nSource: {}\n\nCaveats: {}\n",
+        b.doc.source, b.doc.caveats
+    ));
     t
 }
 
@@ -146,7 +158,9 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
         return None;
     }
     if let Some(b) = builtins::lookup(path) {
-        return Some(Inspection { text: builtin_doc(b) });
+        return Some(Inspection {
+            text: builtin_doc(b),
+        });
     }
     if builtins::namespaces().contains(&path) {
         let members: Vec<&str> = builtins::all()
@@ -164,7 +178,11 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
                 "{}: IEC 60063 preferred-number series, {} values per decade:\n{}",
                 s.name,
                 s.values.len(),
-                s.values.iter().map(|v| format!("{v:.2}")).collect::<Vec<_>>().join(" ")
+                s.values
+                    .iter()
+                    .map(|v| format!("{v:.2}"))
+                    .collect::<Vec<_>>()
+                    .join(" ")
             ),
         });
     }
@@ -173,15 +191,26 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
         let mut t = format!("{text}\n");
         if let Some(r) = row {
             t.push_str(&format!("\nvalue: {}\n", r.text));
-            if let Shown::Number { bounds: Some(b), .. } = &r.shown {
+            if let Shown::Number {
+                bounds: Some(b), ..
+            } = &r.shown
+            {
                 if let Some(range) = &r.range_text {
                     t.push_str(&format!(
                         "worst case: {range}{}\n",
-                        if b.conservative { " (conservative)" } else { "" }
+                        if b.conservative {
+                            " (conservative)"
+                        } else {
+                            ""
+                        }
                     ));
                 }
                 for s in &b.shares {
-                    t.push_str(&format!("  {:>5.1} % of the spread from {}\n", s.fraction * 100.0, s.input));
+                    t.push_str(&format!(
+                        "  {:>5.1} % of the spread from {}\n",
+                        s.fraction * 100.0,
+                        s.input
+                    ));
                 }
             }
         }
@@ -204,9 +233,17 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
         _ => "",
     };
     if !math.is_empty() {
-        return Some(Inspection { text: math.to_string() });
+        return Some(Inspection {
+            text: math.to_string(),
+        });
     }
     crate::units::parse_unit(path).ok().map(|u| Inspection {
-        text: format!("unit {}: {} (1 {} = {} in SI)", u.text, u.dim.describe(), u.text, u.factor),
+        text: format!(
+            "unit {}: {} (1 {} = {} in SI)",
+            u.text,
+            u.dim.describe(),
+            u.text,
+            u.factor
+        ),
     })
 }

@@ -1,13 +1,13 @@
 //! `sweep NAME over A .. B (steps N | by STEP): EXPR, …` — the listed expressions
 //! re-evaluated, with their worst cases, while one definition takes a series of values.
 
-use crate::ast::{Expr, ExprKind, Stmt, StmtKind, SweepStep};
+use crate::ast::{Expr, ExprKind, Stmt, StmtKind, SweepStep, SweepVar};
 use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::eval::EvalError;
 use crate::num::Dual;
 use crate::results::{SweepLimit, SweepSeries, SweepTable};
 use crate::value::Num;
-use crate::worksheet::SweepHost;
+use crate::worksheet::{PointValue, SweepHost};
 
 /// Points a sweep may have.
 pub const MAX_POINTS: usize = 10_000_000;
@@ -20,22 +20,18 @@ fn err(e: EvalError) -> Diagnostic {
     e.into_diagnostic()
 }
 
-/// Runs one sweep statement; None when interrupted.
-pub(crate) fn run(host: &SweepHost<'_>, stmt: &Stmt, source: &str) -> Option<Result<SweepTable, Diagnostic>> {
-    let StmtKind::Sweep { vars, exprs } = &stmt.kind else {
-        return Some(Err(Diagnostic::error(DiagKind::UnexpectedToken, stmt.span.clone(), "not a sweep")));
-    };
-    let Some(var) = vars.first() else {
-        return Some(Err(Diagnostic::error(DiagKind::UnexpectedToken, stmt.span.clone(), "a sweep needs a name to vary")));
-    };
-    if vars.len() > 1 {
-        return Some(Err(Diagnostic::error(
-            DiagKind::UnexpectedToken,
-            vars[1].name.span.clone(),
-            "a sweep varies one name at a time",
-        )
-        .hint("write one sweep per name")));
-    }
+/// Curves a two-name sweep may draw (values of its second name).
+pub const MAX_FAMILY: usize = 20;
+
+/// One swept name: which definition, its current value's kind, and the points.
+struct Axis {
+    name: String,
+    def: usize,
+    current: Num,
+    points: Vec<f64>,
+}
+
+fn axis(host: &SweepHost<'_>, var: &SweepVar) -> Option<Result<Axis, Diagnostic>> {
     let name = &var.name.name;
     let Some(Ok(def)) = host.definition(name) else {
         return Some(Err(Diagnostic::error(
@@ -49,10 +45,16 @@ pub(crate) fn run(host: &SweepHost<'_>, stmt: &Stmt, source: &str) -> Option<Res
         span: var.name.span.clone(),
     };
     // The swept definition's own dimension.
-    let current = match host.point(None, std::slice::from_ref(&name_expr))? {
+    let current = match host.point(&[], std::slice::from_ref(&name_expr))? {
         Ok(p) => match p.values.first().cloned().flatten() {
             Some((n, _)) => n,
-            None => return Some(Err(Diagnostic::error(DiagKind::TypeMismatch, var.name.span.clone(), format!("`{name}` is not a number")))),
+            None => {
+                return Some(Err(Diagnostic::error(
+                    DiagKind::TypeMismatch,
+                    var.name.span.clone(),
+                    format!("`{name}` is not a number"),
+                )))
+            }
         },
         Err(e) => return Some(Err(err(e))),
     };
@@ -75,15 +77,22 @@ pub(crate) fn run(host: &SweepHost<'_>, stmt: &Stmt, source: &str) -> Option<Res
         (Ok(a), Ok(b)) => (a.x.value(), b.x.value()),
         (Err(e), _) | (_, Err(e)) => return Some(Err(e)),
     };
-    let count = match &var.step {
-        None => DEFAULT_POINTS,
+    if from > to {
+        return Some(Err(Diagnostic::error(
+            DiagKind::DomainError,
+            var.from.span.start..var.to.span.end,
+            "a sweep runs from the smaller end to the larger",
+        )));
+    }
+    let (count, step) = match &var.step {
+        None => (DEFAULT_POINTS, (to - from) / (DEFAULT_POINTS - 1) as f64),
         Some(SweepStep::Steps(e)) => match host.constant(e) {
             Ok(n) if n.dim.is_none() && n.x.value().fract() == 0.0 && n.x.value() >= 2.0 => {
                 let c = n.x.value();
                 if c > MAX_POINTS as f64 {
                     return Some(Err(limit(e, c)));
                 }
-                c as usize
+                (c as usize, (to - from) / (c - 1.0))
             }
             Ok(_) => {
                 return Some(Err(Diagnostic::error(
@@ -100,7 +109,7 @@ pub(crate) fn run(host: &SweepHost<'_>, stmt: &Stmt, source: &str) -> Option<Res
                 if c > MAX_POINTS as f64 {
                     return Some(Err(limit(e, c)));
                 }
-                c.max(1.0) as usize
+                (c.max(1.0) as usize, n.x.value())
             }
             Ok(_) => {
                 return Some(Err(Diagnostic::error(
@@ -112,87 +121,181 @@ pub(crate) fn run(host: &SweepHost<'_>, stmt: &Stmt, source: &str) -> Option<Res
             Err(x) => return Some(Err(err(x))),
         },
     };
-    let step = match &var.step {
-        Some(SweepStep::By(e)) => host.constant(e).map(|n| n.x.value()).unwrap_or(0.0),
-        _ if count > 1 => (to - from) / (count - 1) as f64,
-        _ => 0.0,
-    };
-    let mut points = Vec::with_capacity(count.min(MAX_DATA_POINTS * 4));
-    let mut series: Vec<SweepSeries> = exprs
-        .iter()
-        .map(|e| SweepSeries {
-            name: source.get(e.span.clone()).unwrap_or("").trim().to_string(),
-            dim: crate::units::Dim::NONE,
-            absolute: false,
-            nominal: Vec::new(),
-            min: None,
-            max: None,
-        })
-        .collect();
-    for i in 0..count {
-        if host.interrupt().is_raised() {
-            return None;
+    Some(Ok(Axis {
+        name: name.clone(),
+        def,
+        current,
+        points: (0..count).map(|i| from + step * i as f64).collect(),
+    }))
+}
+
+fn series_of(name: String) -> SweepSeries {
+    SweepSeries {
+        name,
+        dim: crate::units::Dim::NONE,
+        absolute: false,
+        nominal: Vec::new(),
+        min: None,
+        max: None,
+    }
+}
+
+fn push(s: &mut SweepSeries, v: Option<PointValue>) {
+    let Some((n, b)) = v else { return };
+    s.dim = n.dim;
+    s.absolute = n.abs;
+    s.nominal.push(n.x.value());
+    if let Some((lo, hi)) = b {
+        // Points before the first uncertain one are their own bounds.
+        let len = s.nominal.len() - 1;
+        let nominal_so_far = s.nominal[..len].to_vec();
+        s.min.get_or_insert_with(|| nominal_so_far.clone()).push(lo);
+        s.max.get_or_insert(nominal_so_far).push(hi);
+    } else {
+        if let Some(m) = s.min.as_mut() {
+            m.push(n.x.value());
         }
-        let x = from + step * i as f64;
-        let pin = Num {
-            x: Dual::constant(x),
-            ..current
-        };
-        let p = match host.point(Some((def, pin)), exprs)? {
-            Ok(p) => p,
-            Err(e) => {
-                let mut d = err(e);
-                d.message = format!(
-                    "at {name} = {}: {}",
-                    crate::units::format_si(x, current.dim, current.abs, 3),
-                    d.message
-                );
-                return Some(Err(d));
+        if let Some(m) = s.max.as_mut() {
+            m.push(n.x.value());
+        }
+    }
+}
+
+/// Runs one sweep statement; None when interrupted.
+pub(crate) fn run(
+    host: &SweepHost<'_>,
+    stmt: &Stmt,
+    source: &str,
+) -> Option<Result<SweepTable, Diagnostic>> {
+    let StmtKind::Sweep { vars, exprs } = &stmt.kind else {
+        return Some(Err(Diagnostic::error(
+            DiagKind::UnexpectedToken,
+            stmt.span.clone(),
+            "not a sweep",
+        )));
+    };
+    if vars.is_empty() || vars.len() > 2 {
+        return Some(Err(Diagnostic::error(
+            DiagKind::UnexpectedToken,
+            stmt.span.clone(),
+            "a sweep varies one name, or two for a family of curves",
+        )));
+    }
+    let inner = match axis(host, &vars[0])? {
+        Ok(a) => a,
+        Err(d) => return Some(Err(d)),
+    };
+    let outer = match vars.get(1).map(|v| axis(host, v)) {
+        None => None,
+        Some(None) => return None,
+        Some(Some(Ok(a))) => Some(a),
+        Some(Some(Err(d))) => return Some(Err(d)),
+    };
+    if let Some(o) = &outer {
+        if o.points.len() > MAX_FAMILY {
+            return Some(Err(Diagnostic::error(
+                DiagKind::Limit,
+                vars[1].name.span.clone(),
+                format!(
+                    "a family of curves has at most {MAX_FAMILY}; this one asks for {}",
+                    o.points.len()
+                ),
+            )
+            .hint("give the second name fewer steps")));
+        }
+        if o.def == inner.def {
+            return Some(Err(Diagnostic::error(
+                DiagKind::Argument,
+                vars[1].name.span.clone(),
+                "the two names of a sweep must differ",
+            )));
+        }
+        if (o.points.len() as f64) * (inner.points.len() as f64) > MAX_POINTS as f64 {
+            return Some(Err(limit(
+                &vars[1].from,
+                o.points.len() as f64 * inner.points.len() as f64,
+            )));
+        }
+    }
+    let texts: Vec<String> = exprs
+        .iter()
+        .map(|e| source.get(e.span.clone()).unwrap_or("").trim().to_string())
+        .collect();
+    let family: Vec<Option<f64>> = match &outer {
+        Some(o) => o.points.iter().map(|&b| Some(b)).collect(),
+        None => vec![None],
+    };
+    let mut series: Vec<SweepSeries> = Vec::new();
+    for b in &family {
+        for t in &texts {
+            series.push(series_of(match (b, &outer) {
+                (Some(b), Some(o)) => format!(
+                    "{t} ({} = {})",
+                    o.name,
+                    crate::units::format_si(*b, o.current.dim, o.current.abs, 3)
+                ),
+                _ => t.clone(),
+            }));
+        }
+    }
+    for (fi, b) in family.iter().enumerate() {
+        for &x in &inner.points {
+            if host.interrupt().is_raised() {
+                return None;
             }
-        };
-        points.push(x);
-        for (s, v) in series.iter_mut().zip(p.values) {
-            let Some((n, b)) = v else { continue };
-            s.dim = n.dim;
-            s.absolute = n.abs;
-            s.nominal.push(n.x.value());
-            if let Some((lo, hi)) = b {
-                // Points before the first uncertain one are their own bounds.
-                let len = s.nominal.len() - 1;
-                let nominal_so_far = s.nominal[..len].to_vec();
-                s.min.get_or_insert_with(|| nominal_so_far.clone()).push(lo);
-                s.max.get_or_insert(nominal_so_far).push(hi);
-            } else {
-                if let Some(m) = s.min.as_mut() {
-                    m.push(n.x.value());
+            let mut pins = vec![(
+                inner.def,
+                Num {
+                    x: Dual::constant(x),
+                    ..inner.current
+                },
+            )];
+            if let (Some(b), Some(o)) = (b, &outer) {
+                pins.push((
+                    o.def,
+                    Num {
+                        x: Dual::constant(*b),
+                        ..o.current
+                    },
+                ));
+            }
+            let p = match host.point(&pins, exprs)? {
+                Ok(p) => p,
+                Err(e) => {
+                    let mut d = err(e);
+                    d.message = format!(
+                        "at {} = {}: {}",
+                        inner.name,
+                        crate::units::format_si(x, inner.current.dim, inner.current.abs, 3),
+                        d.message
+                    );
+                    return Some(Err(d));
                 }
-                if let Some(m) = s.max.as_mut() {
-                    m.push(n.x.value());
-                }
+            };
+            for (j, v) in p.values.into_iter().enumerate() {
+                push(&mut series[fi * exprs.len() + j], v);
             }
         }
     }
     let mut limits = Vec::new();
-    for (e, s) in exprs.iter().zip(&series) {
+    for (j, (e, t)) in exprs.iter().zip(&texts).enumerate() {
         if let ExprKind::Name(n) = &e.kind {
             for (text, rhs) in host.check_on(n) {
-                if let Ok(l) = host.constant(&rhs) {
-                    if l.dim == s.dim {
-                        limits.push(SweepLimit {
-                            series: s.name.clone(),
-                            limit: l.x.value(),
-                            text,
-                        });
-                    }
+                if let Some(l) = host.constant(&rhs).ok().filter(|l| l.dim == series[j].dim) {
+                    limits.push(SweepLimit {
+                        series: t.clone(),
+                        limit: l.x.value(),
+                        text,
+                    });
                 }
             }
         }
     }
-    let (points, series) = decimate(points, series, MAX_DATA_POINTS);
+    let (points, series) = decimate(inner.points, series, MAX_DATA_POINTS);
     Some(Ok(SweepTable {
-        over: name.clone(),
-        dim: current.dim,
-        absolute: current.abs,
+        over: inner.name,
+        dim: inner.current.dim,
+        absolute: inner.current.abs,
         points,
         series,
         limits,
@@ -209,7 +312,11 @@ fn limit(e: &Expr, c: f64) -> Diagnostic {
 
 /// Keeps at most `max` points: evenly spaced picks plus, in each bucket, the points where
 /// any series reaches its extreme, so peaks survive.
-pub fn decimate(points: Vec<f64>, series: Vec<SweepSeries>, max: usize) -> (Vec<f64>, Vec<SweepSeries>) {
+pub fn decimate(
+    points: Vec<f64>,
+    series: Vec<SweepSeries>,
+    max: usize,
+) -> (Vec<f64>, Vec<SweepSeries>) {
     let n = points.len();
     if n <= max || max < 4 {
         return (points, series);

@@ -90,7 +90,12 @@ impl Worksheet {
 
     /// Runs a cell. `cell` is the front end's cell id if it sent one; otherwise the
     /// worksheet recognises the cell by the names it defines, or makes a new key.
-    pub fn execute(&mut self, cell: Option<&str>, source: &str, interrupt: &Interrupt) -> Execution {
+    pub fn execute(
+        &mut self,
+        cell: Option<&str>,
+        source: &str,
+        interrupt: &Interrupt,
+    ) -> Execution {
         let program = parser::parse(source);
         let key = match cell {
             Some(k) => k.to_string(),
@@ -191,7 +196,10 @@ impl Worksheet {
         }
         let expr = match program.stmts.as_slice() {
             [s] => match &s.kind {
-                StmtKind::Show { expr, as_unit: None } => expr.clone(),
+                StmtKind::Show {
+                    expr,
+                    as_unit: None,
+                } => expr.clone(),
                 _ => {
                     return Err(Diagnostic::error(
                         DiagKind::UnexpectedToken,
@@ -440,7 +448,10 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
         shows: Vec::new(),
         sweeps: Vec::new(),
         items: (0..cells.len()).map(|_| Vec::new()).collect(),
-        diags: cells.iter().map(|c| c.program.diagnostics.clone()).collect(),
+        diags: cells
+            .iter()
+            .map(|c| c.program.diagnostics.clone())
+            .collect(),
     };
     // Who owns each name: within a cell the first definition (a second is an error);
     // across cells the one run last.
@@ -519,8 +530,15 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                     m.index.insert(d.name.name.clone(), idx);
                     m.items[ci].push(Item::Def(idx));
                 }
-                StmtKind::Function { name, params, unit, body } => {
-                    if owner.get(&name.name).map(|o| o.0) != Some(ci) || m.funcs.contains_key(&name.name) {
+                StmtKind::Function {
+                    name,
+                    params,
+                    unit,
+                    body,
+                } => {
+                    if owner.get(&name.name).map(|o| o.0) != Some(ci)
+                        || m.funcs.contains_key(&name.name)
+                    {
                         continue;
                     }
                     let unit = match unit.as_ref().map(resolve_unit) {
@@ -571,7 +589,10 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                 }
                 StmtKind::Sweep { .. } => {
                     m.items[ci].push(Item::Sweep(m.sweeps.len()));
-                    m.sweeps.push(SweepEntry { cell: ci, stmt: s.clone() });
+                    m.sweeps.push(SweepEntry {
+                        cell: ci,
+                        stmt: s.clone(),
+                    });
                 }
                 StmtKind::Error => {}
             }
@@ -582,20 +603,34 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
             Some(&i) if m.defs[i].given => {}
             Some(&i) => {
                 let ci = m.defs[i].cell;
-                m.diags[ci].push(Diagnostic::error(
-                    DiagKind::Argument,
-                    m.defs[i].name_span.clone(),
-                    format!("`--set {}={}`: `{}` is a derived value, not a given", o.name, o.text, o.name),
-                ).hint("only inputs declared with `given` can be set from outside"));
+                m.diags[ci].push(
+                    Diagnostic::error(
+                        DiagKind::Argument,
+                        m.defs[i].name_span.clone(),
+                        format!(
+                            "`--set {}={}`: `{}` is a derived value, not a given",
+                            o.name, o.text, o.name
+                        ),
+                    )
+                    .hint("only inputs declared with `given` can be set from outside"),
+                );
             }
             None => {
                 if let Some(ci) = (!cells.is_empty()).then_some(0) {
-                    let mut names: Vec<String> = m.defs.iter().filter(|d| d.given).map(|d| d.name.clone()).collect();
+                    let mut names: Vec<String> = m
+                        .defs
+                        .iter()
+                        .filter(|d| d.given)
+                        .map(|d| d.name.clone())
+                        .collect();
                     names.sort();
                     let mut d = Diagnostic::error(
                         DiagKind::UnknownName,
                         0..0,
-                        format!("`--set {}={}`: this worksheet has no given named `{}`", o.name, o.text, o.name),
+                        format!(
+                            "`--set {}={}`: this worksheet has no given named `{}`",
+                            o.name, o.text, o.name
+                        ),
                     );
                     d.hint = Some(match eval::nearest(&o.name, &names) {
                         Some(b) => format!("did you mean `{b}`?"),
@@ -635,7 +670,10 @@ fn order_definitions(m: &mut Model) {
                     eval::free_names(&f.body, &f.params, &mut names);
                 }
             }
-            names.iter().filter_map(|x| m.index.get(x).copied()).collect()
+            names
+                .iter()
+                .filter_map(|x| m.index.get(x).copied())
+                .collect()
         })
         .collect();
     // Iterative depth-first search (colours: 0 new, 1 on the stack, 2 done).
@@ -658,7 +696,10 @@ fn order_definitions(m: &mut Model) {
                 } else if colour[w] == 1 {
                     // A cycle: w … v → w.
                     let pos = stack.iter().position(|(x, _)| *x == w).unwrap_or(0);
-                    let mut path: Vec<&str> = stack[pos..].iter().map(|(x, _)| m.defs[*x].name.as_str()).collect();
+                    let mut path: Vec<&str> = stack[pos..]
+                        .iter()
+                        .map(|(x, _)| m.defs[*x].name.as_str())
+                        .collect();
                     path.push(&m.defs[w].name);
                     let text = path.join(" → ");
                     for (x, _) in &stack[pos..] {
@@ -708,7 +749,12 @@ impl Names for Scope<'_> {
         self.model.funcs.get(name)
     }
     fn all_names(&self) -> Vec<String> {
-        self.model.index.keys().chain(self.model.funcs.keys()).cloned().collect()
+        self.model
+            .index
+            .keys()
+            .chain(self.model.funcs.keys())
+            .cloned()
+            .collect()
     }
 }
 
@@ -726,8 +772,8 @@ struct Runner<'m> {
     interrupt: &'m Interrupt,
     errors: HashMap<StmtId, EvalError>,
     notes: Vec<(usize, Diagnostic)>,
-    /// A pinned value for one definition (sweeps): (definition index, value).
-    pin: Option<(usize, Num)>,
+    /// Pinned values of definitions (sweeps): (definition index, value).
+    pins: Vec<(usize, Num)>,
     /// Extra expressions evaluated after the statements (a sweep's series): (key, expr).
     extra: Vec<(String, Expr)>,
     /// Values of the nominal pass: definitions, and shown expressions by index.
@@ -761,11 +807,13 @@ impl Runner<'_> {
                 values[d] = Some(Err(e.message.clone()));
                 continue;
             }
-            let result = if let Some((pd, pv)) = self.pin.filter(|(pd, _)| *pd == d) {
-                let _ = pd;
-                Ok(Value::Num(pv))
+            let result = if let Some((_, pv)) = self.pins.iter().find(|(pd, _)| *pd == d) {
+                Ok(Value::Num(*pv))
             } else {
-                let scope = Scope { model, values: &values };
+                let scope = Scope {
+                    model,
+                    values: &values,
+                };
                 let mut ev = Evaluator {
                     names: &scope,
                     reg: &mut self.reg,
@@ -811,7 +859,10 @@ impl Runner<'_> {
                 }
                 Err(mut e) => {
                     if def.overridden && e.kind != DiagKind::DependencyFailed {
-                        e.message = format!("in the value set from outside for `{}`: {}", def.name, e.message);
+                        e.message = format!(
+                            "in the value set from outside for `{}`: {}",
+                            def.name, e.message
+                        );
                         e.span = def.value_span.clone();
                     }
                     values[d] = Some(Err(e.message.clone()));
@@ -819,7 +870,10 @@ impl Runner<'_> {
                 }
             }
         }
-        let scope = Scope { model, values: &values };
+        let scope = Scope {
+            model,
+            values: &values,
+        };
         for (i, c) in model.checks.iter().enumerate() {
             let mut ev = Evaluator {
                 names: &scope,
@@ -836,12 +890,17 @@ impl Runner<'_> {
                 let a = ev.eval(&c.lhs)?;
                 let b = ev.eval(&c.rhs)?;
                 let (Value::Num(a), Value::Num(b)) = (a, b) else {
-                    return Err(EvalError::new(DiagKind::TypeMismatch, &c.span, "a check compares two numbers"));
+                    return Err(EvalError::new(
+                        DiagKind::TypeMismatch,
+                        &c.span,
+                        "a check compares two numbers",
+                    ));
                 };
-                let diff = eval::binary(crate::ast::BinOp::Sub, a, b, &c.span, &c.rhs.span).map_err(|mut e| {
-                    e.message = format!("the two sides cannot be compared: {}", e.message);
-                    e
-                })?;
+                let diff = eval::binary(crate::ast::BinOp::Sub, a, b, &c.span, &c.rhs.span)
+                    .map_err(|mut e| {
+                        e.message = format!("the two sides cannot be compared: {}", e.message);
+                        e
+                    })?;
                 ev.record(&format!("{}:lhs", c.key), a);
                 ev.record(&format!("{}:rhs", c.key), b);
                 ev.record(&format!("{}:diff", c.key), diff);
@@ -879,10 +938,7 @@ impl Runner<'_> {
                 }
                 Ok(v)
             });
-            let r = r.map(|v| {
-                ev.record_value(&s.key, &v);
-                v
-            });
+            let r = r.inspect(|v| ev.record_value(&s.key, v));
             let notes = std::mem::take(&mut ev.notes);
             if nominal {
                 self.notes.extend(notes.into_iter().map(|n| (s.cell, n)));
@@ -920,7 +976,12 @@ impl Runner<'_> {
 }
 
 /// An override must have the dimension of the value it replaces.
-fn same_kind(scope: &Scope<'_>, original: &Expr, new: &Value, def: &DefEntry) -> Result<(), EvalError> {
+fn same_kind(
+    scope: &Scope<'_>,
+    original: &Expr,
+    new: &Value,
+    def: &DefEntry,
+) -> Result<(), EvalError> {
     let mut pass = Pass::new(Mode::Nominal, 0);
     let mut scratch = Registry::default();
     let mut ev = Evaluator {
@@ -934,7 +995,9 @@ fn same_kind(scope: &Scope<'_>, original: &Expr, new: &Value, def: &DefEntry) ->
         depth: 0,
         notes: Vec::new(),
     };
-    let Ok(old) = ev.eval(original) else { return Ok(()) };
+    let Ok(old) = ev.eval(original) else {
+        return Ok(());
+    };
     match (&old, new) {
         (Value::Num(a), Value::Num(b)) if a.dim != b.dim || a.abs != b.abs => Err(EvalError::new(
             DiagKind::DimensionMismatch,
@@ -977,7 +1040,7 @@ impl<'m> Runner<'m> {
             interrupt,
             errors: HashMap::new(),
             notes: Vec::new(),
-            pin: None,
+            pins: Vec::new(),
             extra: Vec::new(),
             nominal_values: Vec::new(),
             shown: HashMap::new(),
@@ -1030,7 +1093,12 @@ impl Analysed<'_, '_> {
             max: b.max,
             conservative: b.conservative,
             shares,
-            rss: b.swings.iter().map(|s| (s / 2.0).powi(2)).sum::<f64>().sqrt(),
+            rss: b
+                .swings
+                .iter()
+                .map(|s| (s / 2.0).powi(2))
+                .sum::<f64>()
+                .sqrt(),
         }
     }
 
@@ -1038,13 +1106,18 @@ impl Analysed<'_, '_> {
     fn describe_corner(&mut self, b: &ScalarBounds, at: &[Interval]) -> String {
         let mut parts: Vec<String> = Vec::new();
         for &k in &b.depends {
-            let Some(&sid) = self.reg.input_scalars.get(k) else { continue };
+            let Some(&sid) = self.reg.input_scalars.get(k) else {
+                continue;
+            };
             if sid == usize::MAX {
                 continue;
             }
             let label = self.reg.inputs[k].label.clone();
             if let Some(v) = self.passes.at(at, sid) {
-                let t = format!("{label} = {}", units::format_si(v.x.value(), v.dim, v.abs, SIG));
+                let t = format!(
+                    "{label} = {}",
+                    units::format_si(v.x.value(), v.dim, v.abs, SIG)
+                );
                 if !parts.contains(&t) {
                     parts.push(t);
                 }
@@ -1082,9 +1155,13 @@ impl Analysed<'_, '_> {
                 let u = unit.or(preferred.as_ref());
                 let si = nom.x.value();
                 let text = fmt_value(si, nom.dim, nom.abs, u);
-                let range_text = b
-                    .as_ref()
-                    .map(|b| format!("{} … {}", fmt_value(b.min, nom.dim, nom.abs, u), fmt_value(b.max, nom.dim, nom.abs, u)));
+                let range_text = b.as_ref().map(|b| {
+                    format!(
+                        "{} … {}",
+                        fmt_value(b.min, nom.dim, nom.abs, u),
+                        fmt_value(b.max, nom.dim, nom.abs, u)
+                    )
+                });
                 out.push(ValueRow {
                     preferred: preferred.clone(),
                     range_text,
@@ -1129,7 +1206,10 @@ fn plain(v: &Value) -> String {
     match v {
         Value::Num(n) => units::format_si(n.x.value(), n.dim, n.abs, SIG),
         Value::Str(s) => format!("\"{s}\""),
-        Value::List(items) => format!("[{}]", items.iter().map(plain).collect::<Vec<_>>().join(", ")),
+        Value::List(items) => format!(
+            "[{}]",
+            items.iter().map(plain).collect::<Vec<_>>().join(", ")
+        ),
         Value::Record(r) => format!("({} result)", r.kind),
         Value::Series(s) => format!("{} ({} values per decade)", s.name, s.values.len()),
     }
@@ -1166,7 +1246,11 @@ fn cell_of_stmt(model: &Model, cells: &[Cell], key: &str) -> Option<usize> {
 }
 
 /// Evaluates every cell; None when interrupted.
-fn evaluate(cells: &[Cell], overrides: &[Override], interrupt: &Interrupt) -> Option<Vec<CellReport>> {
+fn evaluate(
+    cells: &[Cell],
+    overrides: &[Override],
+    interrupt: &Interrupt,
+) -> Option<Vec<CellReport>> {
     let model = build_model(cells, overrides);
     let mut runner = Runner::new(&model, interrupt);
     let nominal = runner.run(Mode::Nominal)?;
@@ -1201,7 +1285,16 @@ fn evaluate(cells: &[Cell], overrides: &[Override], interrupt: &Interrupt) -> Op
                         continue;
                     }
                     if let Some(Ok(v)) = &nominal_values[*d] {
-                        an.value_rows(&def_key(&def.name), &def.name, v, def.unit.as_ref(), None, &def.note, def.given, &mut report.values);
+                        an.value_rows(
+                            &def_key(&def.name),
+                            &def.name,
+                            v,
+                            def.unit.as_ref(),
+                            None,
+                            &def.note,
+                            def.given,
+                            &mut report.values,
+                        );
                     }
                 }
                 Item::Check(i) => {
@@ -1220,12 +1313,29 @@ fn evaluate(cells: &[Cell], overrides: &[Override], interrupt: &Interrupt) -> Op
                     }
                     let s = &model.shows[*i];
                     if let Some(v) = shown.get(i) {
-                        an.value_rows(&s.key, &s.text, v, s.unit.as_ref(), None, "", false, &mut report.shown);
+                        an.value_rows(
+                            &s.key,
+                            &s.text,
+                            v,
+                            s.unit.as_ref(),
+                            None,
+                            "",
+                            false,
+                            &mut report.shown,
+                        );
                     }
                 }
                 Item::Sweep(i) => {
                     let s = &model.sweeps[*i];
-                    match crate::sweep::run(&SweepHost { model: &model, cells, interrupt }, &s.stmt, &cells[s.cell].source)? {
+                    match crate::sweep::run(
+                        &SweepHost {
+                            model: &model,
+                            cells,
+                            interrupt,
+                        },
+                        &s.stmt,
+                        &cells[s.cell].source,
+                    )? {
                         Ok(t) => report.sweeps.push(t),
                         Err(d) => report.diagnostics.push(d),
                     }
@@ -1237,8 +1347,12 @@ fn evaluate(cells: &[Cell], overrides: &[Override], interrupt: &Interrupt) -> Op
     let probes = an.reg.probes.clone();
     let mut fired: Vec<(usize, usize, f64, WarningRow)> = Vec::new();
     for p in &probes {
-        let Some(ci) = cell_of_stmt(&model, cells, &p.stmt) else { continue };
-        let Some((nom, b)) = an.scalar_by_id(p.scalar) else { continue };
+        let Some(ci) = cell_of_stmt(&model, cells, &p.stmt) else {
+            continue;
+        };
+        let Some((nom, b)) = an.scalar_by_id(p.scalar) else {
+            continue;
+        };
         let (above, limit) = match p.rule.when {
             crate::builtins::WarnWhen::MaxAbove(l) => (true, l),
             crate::builtins::WarnWhen::MinBelow(l) => (false, l),
@@ -1251,7 +1365,11 @@ fn evaluate(cells: &[Cell], overrides: &[Override], interrupt: &Interrupt) -> Op
         if (above && v > limit) || (!above && v < limit) {
             let at = match &b {
                 Some(b) => {
-                    let corner = if above { b.max_at.clone() } else { b.min_at.clone() };
+                    let corner = if above {
+                        b.max_at.clone()
+                    } else {
+                        b.min_at.clone()
+                    };
                     let c = an.describe_corner(b, &corner);
                     if c.is_empty() {
                         String::new()
@@ -1283,8 +1401,13 @@ fn evaluate(cells: &[Cell], overrides: &[Override], interrupt: &Interrupt) -> Op
                 text,
             };
             // Of several rules on one value, the most severe one speaks.
-            match fired.iter_mut().find(|(c, s, _, _)| *c == ci && *s == p.scalar) {
-                Some(f) if (above && limit > f.2) || (!above && limit < f.2) => *f = (ci, p.scalar, limit, row),
+            match fired
+                .iter_mut()
+                .find(|(c, s, _, _)| *c == ci && *s == p.scalar)
+            {
+                Some(f) if (above && limit > f.2) || (!above && limit < f.2) => {
+                    *f = (ci, p.scalar, limit, row)
+                }
                 Some(_) => {}
                 None => fired.push((ci, p.scalar, limit, row)),
             }
@@ -1357,10 +1480,13 @@ pub(crate) struct SweepHost<'a> {
     interrupt: &'a Interrupt,
 }
 
+/// A sweep series' value at one point: nominal, and (min, max) when uncertain.
+pub(crate) type PointValue = (Num, Option<(f64, f64)>);
+
 /// One analysed evaluation of the worksheet with a definition pinned to a value.
 pub(crate) struct SweepPoint {
-    /// For each extra expression: nominal, and (min, max) when uncertain.
-    pub values: Vec<Option<(Num, Option<(f64, f64)>)>>,
+    /// For each extra expression, if it evaluated.
+    pub values: Vec<Option<PointValue>>,
 }
 
 impl SweepHost<'_> {
@@ -1403,17 +1529,33 @@ impl SweepHost<'_> {
         };
         match ev.eval(e)? {
             Value::Num(n) if scratch.inputs.is_empty() => Ok(n),
-            Value::Num(_) => Err(EvalError::new(DiagKind::TypeMismatch, &e.span, "a sweep's ends and steps are exact numbers, without a tolerance")),
-            v => Err(EvalError::new(DiagKind::TypeMismatch, &e.span, format!("expected a number, found {}", v.type_name()))),
+            Value::Num(_) => Err(EvalError::new(
+                DiagKind::TypeMismatch,
+                &e.span,
+                "a sweep's ends and steps are exact numbers, without a tolerance",
+            )),
+            v => Err(EvalError::new(
+                DiagKind::TypeMismatch,
+                &e.span,
+                format!("expected a number, found {}", v.type_name()),
+            )),
         }
     }
 
-    /// Evaluates `exprs` with definition `pin` (an index from `definition`) set to `value`.
-    /// None when interrupted; an error when an expression fails at this point.
-    pub fn point(&self, pin: Option<(usize, Num)>, exprs: &[Expr]) -> Option<Result<SweepPoint, EvalError>> {
+    /// Evaluates `exprs` with the definitions in `pins` (indices from `definition`) set to
+    /// the values given. None when interrupted; an error when an expression fails there.
+    pub fn point(
+        &self,
+        pins: &[(usize, Num)],
+        exprs: &[Expr],
+    ) -> Option<Result<SweepPoint, EvalError>> {
         let mut r = Runner::new(self.model, self.interrupt);
-        r.pin = pin;
-        r.extra = exprs.iter().enumerate().map(|(j, e)| (format!("sw:{j}"), e.clone())).collect();
+        r.pins = pins.to_vec();
+        r.extra = exprs
+            .iter()
+            .enumerate()
+            .map(|(j, e)| (format!("sw:{j}"), e.clone()))
+            .collect();
         let nominal = r.run(Mode::Nominal)?;
         // An expression that fails is evaluated once more alone to report why.
         let reg = r.reg.clone();
@@ -1421,7 +1563,10 @@ impl SweepHost<'_> {
             if reg.find_scalar(&format!("sw:{j}")).is_none() {
                 let model = self.model;
                 let values = std::mem::take(&mut r.nominal_values);
-                let scope = Scope { model, values: &values };
+                let scope = Scope {
+                    model,
+                    values: &values,
+                };
                 let mut pass = Pass::new(Mode::Nominal, 0);
                 let mut scratch = Registry::default();
                 let mut ev = Evaluator {

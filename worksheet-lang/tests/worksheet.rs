@@ -23,7 +23,12 @@ fn si(r: &CellReport, name: &str) -> f64 {
 }
 
 fn text<'a>(r: &'a CellReport, name: &str) -> &'a str {
-    &r.values.iter().chain(r.shown.iter()).find(|v| v.name == name).expect("row").text
+    &r.values
+        .iter()
+        .chain(r.shown.iter())
+        .find(|v| v.name == name)
+        .expect("row")
+        .text
 }
 
 fn close(a: f64, b: f64) -> bool {
@@ -32,7 +37,12 @@ fn close(a: f64, b: f64) -> bool {
 
 fn only_error(src: &str) -> worksheet_lang::Diagnostic {
     let r = run(src);
-    let errors: Vec<_> = r.diagnostics.iter().filter(|d| d.is_error()).cloned().collect();
+    let errors: Vec<_> = r
+        .diagnostics
+        .iter()
+        .filter(|d| d.is_error())
+        .cloned()
+        .collect();
     assert_eq!(errors.len(), 1, "{src}: {errors:?}");
     errors.into_iter().next().unwrap_or_else(|| unreachable!())
 }
@@ -41,7 +51,10 @@ fn only_error(src: &str) -> worksheet_lang::Diagnostic {
 fn temperature_rules() {
     // Absolute ± difference → absolute; absolute − absolute → difference.
     let r = run("a = 25 °C + 10 K\nb = 50 °C - 20 °C\nc = 77 °F\n");
-    assert!(close(si(&r, "a"), 308.15), "25 °C + 10 K = 35 °C = 308.15 K");
+    assert!(
+        close(si(&r, "a"), 308.15),
+        "25 °C + 10 K = 35 °C = 308.15 K"
+    );
     assert_eq!(text(&r, "a"), "35.0 °C");
     assert!(close(si(&r, "b"), 30.0));
     assert_eq!(text(&r, "b"), "30.0 K");
@@ -77,7 +90,12 @@ fn the_reference_rail_without_built_ins() {
     let theta = 6.4 + 22.0 * 60.0 / 82.0;
     assert!(close(si(&r, "tj"), 323.15 + 1.308 * theta));
     let row = r.values.iter().find(|v| v.name == "tj").expect("tj");
-    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!("tj uncertain") };
+    let Shown::Number {
+        bounds: Some(b), ..
+    } = &row.shown
+    else {
+        panic!("tj uncertain")
+    };
     assert!(close(b.min, 323.15 + 0.8784 * theta));
     assert!(close(b.max, 323.15 + 1.824 * theta));
     assert!(!b.conservative);
@@ -114,13 +132,28 @@ fn tolerance_forms() {
     // 85 % ± 5 % is relative: 80.75 % … 89.25 %.
     let r = run("e = 85 % ± 5 %\nv = 1.25 V ± 20 mV\nc = tol(10 uF, -20 %, +80 %)\n");
     let row = r.values.iter().find(|v| v.name == "e").expect("e");
-    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!() };
+    let Shown::Number {
+        bounds: Some(b), ..
+    } = &row.shown
+    else {
+        panic!()
+    };
     assert!(close(b.min, 0.8075) && close(b.max, 0.8925));
     let row = r.values.iter().find(|v| v.name == "v").expect("v");
-    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!() };
+    let Shown::Number {
+        bounds: Some(b), ..
+    } = &row.shown
+    else {
+        panic!()
+    };
     assert!(close(b.min, 1.23) && close(b.max, 1.27));
     let row = r.values.iter().find(|v| v.name == "c").expect("c");
-    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!() };
+    let Shown::Number {
+        bounds: Some(b), ..
+    } = &row.shown
+    else {
+        panic!()
+    };
     assert!(close(b.min, 8e-6) && close(b.max, 18e-6));
     let e = only_error("t = 50 °C ± 5 %\n");
     assert_eq!(e.kind, DiagKind::Temperature);
@@ -145,7 +178,10 @@ fn redefinition_recomputes_dependents_in_other_cells() {
     let c = &ex.updated[1].report;
     assert!(!c.checks[0].passed, "1.25 W > 1 W must fail now");
     let ch = &ex.updated[0].changed_by[0];
-    assert_eq!((ch.name.as_str(), ch.old.as_str(), ch.new.as_str()), ("iload", "180 mA", "250 mA"));
+    assert_eq!(
+        (ch.name.as_str(), ch.old.as_str(), ch.new.as_str()),
+        ("iload", "180 mA", "250 mA")
+    );
     // A run that does not change anything updates nothing.
     let ex = ws.execute(Some("a"), "given iload = 250 mA\n", &i);
     assert!(ex.updated.is_empty());
@@ -178,9 +214,17 @@ fn cells_without_ids_are_known_by_their_names() {
 #[test]
 fn cycles_are_named() {
     let r = run("a = b + 1 V\nb = a * 2\n");
-    let errs: Vec<_> = r.diagnostics.iter().filter(|d| d.kind == DiagKind::Cycle).collect();
+    let errs: Vec<_> = r
+        .diagnostics
+        .iter()
+        .filter(|d| d.kind == DiagKind::Cycle)
+        .collect();
     assert_eq!(errs.len(), 2);
-    assert!(errs[0].message.contains("a → b → a") || errs[0].message.contains("b → a → b"), "{}", errs[0].message);
+    assert!(
+        errs[0].message.contains("a → b → a") || errs[0].message.contains("b → a → b"),
+        "{}",
+        errs[0].message
+    );
 }
 
 #[test]
@@ -202,12 +246,20 @@ fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
     let src = "x = 12 V + 3 A\n";
     let e = only_error(src);
     assert_eq!(e.kind, DiagKind::DimensionMismatch);
-    assert!(e.message.contains("voltage plus a current"), "{}", e.message);
+    assert!(
+        e.message.contains("voltage plus a current"),
+        "{}",
+        e.message
+    );
     assert_eq!(&src[e.span.clone()], "12 V + 3 A");
     // Declared unit.
     let e = only_error("p [mW] = 2 V\n");
     assert_eq!(e.kind, DiagKind::DimensionMismatch);
-    assert!(e.message.contains("power") && e.message.contains("voltage"), "{}", e.message);
+    assert!(
+        e.message.contains("power") && e.message.contains("voltage"),
+        "{}",
+        e.message
+    );
     // A divisor whose range spans zero.
     let e = only_error("given v = -1 V .. 2 V\nr = 1 V / v\n");
     assert_eq!(e.kind, DiagKind::DivisorSpansZero);
@@ -226,10 +278,17 @@ fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
     assert_eq!(e.kind, DiagKind::Redefinition);
     // A dependent of a failed definition says why.
     let r = run("a = 1 V + 1 A\nb = a * 2\n");
-    assert!(r.diagnostics.iter().any(|d| d.kind == DiagKind::DependencyFailed));
+    assert!(r
+        .diagnostics
+        .iter()
+        .any(|d| d.kind == DiagKind::DependencyFailed));
     // A unit read as a unit although a name exists: a warning with the product spelled out.
     let r = run("C = 2 uF\nq = 2 C\n");
-    let w = r.diagnostics.iter().find(|d| d.kind == DiagKind::UnitShadowsName).expect("warning");
+    let w = r
+        .diagnostics
+        .iter()
+        .find(|d| d.kind == DiagKind::UnitShadowsName)
+        .expect("warning");
     assert!(!w.is_error());
     assert!(w.hint.as_deref().unwrap_or("").contains("2 * C"));
 }
@@ -247,19 +306,43 @@ fn user_functions_records_and_lists() {
 fn overrides_replace_a_given_whole() {
     let mut ws = Worksheet::new();
     ws.set_override("iload", "250 mA ± 20 %").expect("literal");
-    let r = ws.execute(Some("m"), "given iload = 180 mA\np = iload * 2 V\n", &Interrupt::new()).report;
+    let r = ws
+        .execute(
+            Some("m"),
+            "given iload = 180 mA\np = iload * 2 V\n",
+            &Interrupt::new(),
+        )
+        .report;
     assert!(close(si(&r, "p"), 0.5));
     let row = r.values.iter().find(|v| v.name == "p").expect("p");
-    let Shown::Number { bounds: Some(b), .. } = &row.shown else { panic!() };
+    let Shown::Number {
+        bounds: Some(b), ..
+    } = &row.shown
+    else {
+        panic!()
+    };
     assert!(close(b.min, 0.4) && close(b.max, 0.6));
     let mut ws = Worksheet::new();
     ws.set_override("nope", "1 A").expect("literal");
-    let r = ws.execute(Some("m"), "given iload = 180 mA\n", &Interrupt::new()).report;
-    assert!(r.diagnostics.iter().any(|d| d.kind == DiagKind::UnknownName && d.is_error()));
+    let r = ws
+        .execute(Some("m"), "given iload = 180 mA\n", &Interrupt::new())
+        .report;
+    assert!(r
+        .diagnostics
+        .iter()
+        .any(|d| d.kind == DiagKind::UnknownName && d.is_error()));
     let mut ws = Worksheet::new();
     ws.set_override("iload", "2 V").expect("literal");
-    let r = ws.execute(Some("m"), "given iload [mA] = 180 mA\n", &Interrupt::new()).report;
-    assert!(r.diagnostics.iter().any(|d| d.kind == DiagKind::DimensionMismatch), "{:?}", r.diagnostics);
+    let r = ws
+        .execute(Some("m"), "given iload [mA] = 180 mA\n", &Interrupt::new())
+        .report;
+    assert!(
+        r.diagnostics
+            .iter()
+            .any(|d| d.kind == DiagKind::DimensionMismatch),
+        "{:?}",
+        r.diagnostics
+    );
 }
 
 #[test]
@@ -272,4 +355,34 @@ fn sweeps_follow_the_closed_form() {
     for (x, y) in s.points.iter().zip(&s.series[0].nominal) {
         assert!(close(*y, 7.0 * x));
     }
+}
+
+#[test]
+fn a_two_name_sweep_draws_a_family() {
+    // loss = (vin − 5 V)·i: for vin in {10 V, 12 V} and i in {0.1, 0.2, 0.3} A:
+    // 0.5, 1.0, 1.5 W and 0.7, 1.4, 2.1 W.
+    let r = run("given vin = 12 V\ngiven i = 0.1 A\nloss = (vin - 5 V) * i\nsweep i over 0.1 A .. 0.3 A steps 3, vin over 10 V .. 12 V steps 2: loss\n");
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let s = &r.sweeps[0];
+    assert_eq!(s.series.len(), 2);
+    assert_eq!(s.series[0].name, "loss (vin = 10.0 V)");
+    for (got, want) in s.series[0].nominal.iter().zip([0.5, 1.0, 1.5]) {
+        assert!(close(*got, want));
+    }
+    for (got, want) in s.series[1].nominal.iter().zip([0.7, 1.4, 2.1]) {
+        assert!(close(*got, want));
+    }
+}
+
+#[test]
+fn a_swept_given_keeps_the_other_tolerances() {
+    // p = v·i with v = 5 V ± 10 %: at i = 1 A the band is 4.5 … 5.5 W.
+    let r = run("given v = 5 V ± 10 %\ngiven i = 2 A ± 50 %\np = v * i\ncheck p <= 6 W\nsweep i over 1 A .. 2 A steps 2: p\n");
+    let s = &r.sweeps[0];
+    let min = s.series[0].min.as_ref().expect("band");
+    let max = s.series[0].max.as_ref().expect("band");
+    assert!(close(min[0], 4.5) && close(max[0], 5.5));
+    assert!(close(min[1], 9.0) && close(max[1], 11.0));
+    assert_eq!(s.limits.len(), 1);
+    assert!(close(s.limits[0].limit, 6.0));
 }

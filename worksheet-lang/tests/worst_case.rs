@@ -74,11 +74,26 @@ fn expr(n: usize) -> impl Strategy<Value = E> {
 fn bounds(src: &str, name: &str) -> (f64, f64, f64, bool) {
     let mut ws = Worksheet::new();
     let ex = ws.execute(None, src, &Interrupt::new());
-    assert!(!ex.report.has_errors(), "{src}\n{:?}", ex.report.diagnostics);
-    let row = ex.report.values.iter().find(|v| v.name == name).expect("value row");
+    assert!(
+        !ex.report.has_errors(),
+        "{src}\n{:?}",
+        ex.report.diagnostics
+    );
+    let row = ex
+        .report
+        .values
+        .iter()
+        .find(|v| v.name == name)
+        .expect("value row");
     match &row.shown {
-        Shown::Number { value, bounds: Some(b) } => (value.si, b.min, b.max, b.conservative),
-        Shown::Number { value, bounds: None } => (value.si, value.si, value.si, false),
+        Shown::Number {
+            value,
+            bounds: Some(b),
+        } => (value.si, b.min, b.max, b.conservative),
+        Shown::Number {
+            value,
+            bounds: None,
+        } => (value.si, value.si, value.si, false),
         other => panic!("not a number: {other:?}"),
     }
 }

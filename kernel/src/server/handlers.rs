@@ -119,7 +119,9 @@ pub(crate) fn kernel_info() -> Value {
             version: version.into(),
             mimetype: Some("text/x-headroom".into()),
             file_extension: Some(".hrw".into()),
-            pygments_lexer: None,
+            // No Pygments lexer knows the language yet; naming the plain-text one keeps
+            // jupyter-console and nbconvert from warning about a missing lexer.
+            pygments_lexer: Some("text".into()),
             codemirror_mode: None,
             nbconvert_exporter: None,
         },

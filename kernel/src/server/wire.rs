@@ -3,8 +3,9 @@
 //! Incoming frames are split and verified by `jupyter_zmq_client::RawMessage::from_multipart`
 //! (HMAC-SHA256 checked in constant time by `ring`). We stop there and parse the four JSON
 //! parts ourselves: the crate's own conversion to `JupyterMessage` rejects execute requests
-//! that omit `silent`/`store_history`, and re-serialising its parsed header would change the
-//! parent header we must echo back byte for byte in meaning (its dates gain nine digits).
+//! that omit `silent`/`store_history`, and we echo the request's header as the parent header
+//! exactly as the client wrote it rather than re-serialising a parsed copy (which would
+//! rewrite its date with nine fractional digits).
 //!
 //! Outgoing frames are written here: the crate's sending path is private and serialises
 //! through `jupyter-protocol`, which writes `null` where the schema wants `{}`, nine

@@ -3,7 +3,7 @@
 //! Every check looks at the whole interval of the pass, so an impossible input is caught
 //! in whichever pass first shows it (the nominal point, a box, a corner).
 
-use crate::builtins::quantity::{arg, dim_of, si, temperature, Q, Temperature};
+use crate::builtins::quantity::{arg, dim_of, si, temperature, Temperature, Q};
 use crate::builtins::series::{self, Series};
 use crate::builtins::{CallError, Param};
 use crate::num::Dual;
@@ -18,20 +18,37 @@ pub struct Args<'a> {
 
 /// A required parameter.
 pub const fn req(name: &'static str) -> Param {
-    Param { name, required: true, default: "" }
+    Param {
+        name,
+        required: true,
+        default: "",
+    }
 }
 
 /// An optional parameter with its default as the language writes it ("" when computed or
 /// absent).
 pub const fn opt(name: &'static str, default: &'static str) -> Param {
-    Param { name, required: false, default }
+    Param {
+        name,
+        required: false,
+        default,
+    }
+}
+
+/// `x ≥ limit`, false for NaN (so a NaN never passes a check).
+pub fn at_least(x: f64, limit: f64) -> bool {
+    x >= limit
+}
+
+/// `x > limit`, false for NaN.
+pub fn above(x: f64, limit: f64) -> bool {
+    x > limit
 }
 
 /// A value with its unit, for messages (three significant digits).
 pub fn show(si: f64, dim: Dim) -> String {
     format_si(si, dim, false, 3)
 }
-
 
 impl<'a> Args<'a> {
     pub fn new(params: &'static [Param], vals: &'a [Option<Value>]) -> Self {
@@ -58,12 +75,19 @@ impl<'a> Args<'a> {
     }
 
     /// A quantity with a default (SI).
-    pub fn q_or<D: uom::si::Dimension + ?Sized>(&self, i: usize, default: f64) -> Result<Q<D>, CallError> {
+    pub fn q_or<D: uom::si::Dimension + ?Sized>(
+        &self,
+        i: usize,
+        default: f64,
+    ) -> Result<Q<D>, CallError> {
         Ok(self.q_opt(i)?.unwrap_or_else(|| si(default)))
     }
 
     /// An optional quantity.
-    pub fn q_opt<D: uom::si::Dimension + ?Sized>(&self, i: usize) -> Result<Option<Q<D>>, CallError> {
+    pub fn q_opt<D: uom::si::Dimension + ?Sized>(
+        &self,
+        i: usize,
+    ) -> Result<Option<Q<D>>, CallError> {
         match self.value(i) {
             None => Ok(None),
             Some(v) => arg::<D>(v, self.name(i)).map(Some).map_err(|e| e.at(i)),
@@ -93,12 +117,28 @@ impl<'a> Args<'a> {
     }
 
     /// One of a fixed set of words (`mode: "up"`), with a default.
-    pub fn word_or(&self, i: usize, default: &'static str, choices: &[&'static str]) -> Result<&'static str, CallError> {
-        let list = || choices.iter().map(|c| format!("\"{c}\"")).collect::<Vec<_>>().join(", ");
+    pub fn word_or(
+        &self,
+        i: usize,
+        default: &'static str,
+        choices: &[&'static str],
+    ) -> Result<&'static str, CallError> {
+        let list = || {
+            choices
+                .iter()
+                .map(|c| format!("\"{c}\""))
+                .collect::<Vec<_>>()
+                .join(", ")
+        };
         match self.value(i) {
             None => Ok(default),
             Some(Value::Str(s)) => choices.iter().copied().find(|c| **c == **s).ok_or_else(|| {
-                CallError::new(format!("`{}` must be one of {}, not \"{s}\"", self.name(i), list())).at(i)
+                CallError::new(format!(
+                    "`{}` must be one of {}, not \"{s}\"",
+                    self.name(i),
+                    list()
+                ))
+                .at(i)
             }),
             Some(other) => Err(CallError::new(format!(
                 "`{}` must be a text, one of {}, but this is {}",
@@ -107,13 +147,26 @@ impl<'a> Args<'a> {
                 other.type_name()
             ))
             .at(i)
-            .hint(format!("write the word in quotes: `{}: \"{default}\"`", self.name(i)))),
+            .hint(format!(
+                "write the word in quotes: `{}: \"{default}\"`",
+                self.name(i)
+            ))),
         }
     }
 
     /// A preferred-number series (`E24`, or its name as text), with a default.
-    pub fn series_or(&self, i: usize, default: &'static Series) -> Result<&'static Series, CallError> {
-        let names = || series::ALL.iter().map(|s| s.name).collect::<Vec<_>>().join(" ");
+    pub fn series_or(
+        &self,
+        i: usize,
+        default: &'static Series,
+    ) -> Result<&'static Series, CallError> {
+        let names = || {
+            series::ALL
+                .iter()
+                .map(|s| s.name)
+                .collect::<Vec<_>>()
+                .join(" ")
+        };
         match self.value(i) {
             None => Ok(default),
             Some(Value::Series(s)) => Ok(s),
@@ -141,14 +194,19 @@ impl<'a> Args<'a> {
                 if n.x.v.is_point() && n.x.v.lo.is_finite() {
                     Ok(n.x.v.lo)
                 } else {
-                    Err(CallError::new(format!("`{}` must be a single known number, not a range", self.name(i)))
-                        .at(i)
-                        .hint("give it without a tolerance"))
+                    Err(CallError::new(format!(
+                        "`{}` must be a single known number, not a range",
+                        self.name(i)
+                    ))
+                    .at(i)
+                    .hint("give it without a tolerance"))
                 }
             }
             Some(v) => Err(arg::<uom::si::ratio::Dimension>(v, self.name(i))
                 .err()
-                .unwrap_or_else(|| CallError::new(format!("`{}` must be a plain number", self.name(i))))
+                .unwrap_or_else(|| {
+                    CallError::new(format!("`{}` must be a plain number", self.name(i)))
+                })
                 .at(i)),
         }
     }
@@ -158,15 +216,23 @@ impl<'a> Args<'a> {
         match self.value(i) {
             None => Err(self.missing(i)),
             Some(Value::List(items)) => Ok(items),
-            Some(other) => Err(CallError::new(format!("`{}` must be a list, but this is {}", self.name(i), other.type_name()))
-                .at(i)),
+            Some(other) => Err(CallError::new(format!(
+                "`{}` must be a list, but this is {}",
+                self.name(i),
+                other.type_name()
+            ))
+            .at(i)),
         }
     }
 
     /// Checks that a quantity is above zero over the whole pass.
-    pub fn positive<D: uom::si::Dimension + ?Sized>(&self, i: usize, q: &Q<D>) -> Result<(), CallError> {
+    pub fn positive<D: uom::si::Dimension + ?Sized>(
+        &self,
+        i: usize,
+        q: &Q<D>,
+    ) -> Result<(), CallError> {
         let x = q.value;
-        if x.v.lo > 0.0 {
+        if above(x.v.lo, 0.0) {
             Ok(())
         } else {
             Err(CallError::new(format!(
@@ -179,9 +245,13 @@ impl<'a> Args<'a> {
     }
 
     /// Checks that a quantity is zero or above over the whole pass.
-    pub fn not_negative<D: uom::si::Dimension + ?Sized>(&self, i: usize, q: &Q<D>) -> Result<(), CallError> {
+    pub fn not_negative<D: uom::si::Dimension + ?Sized>(
+        &self,
+        i: usize,
+        q: &Q<D>,
+    ) -> Result<(), CallError> {
         let x = q.value;
-        if x.v.lo >= 0.0 {
+        if at_least(x.v.lo, 0.0) {
             Ok(())
         } else {
             Err(CallError::new(format!(

@@ -1,10 +1,10 @@
 //! Heat: junction temperature through a chain of thermal resistances, heatsink sizing, the
 //! power and ambient limits of a package, and pulsed loads on a Foster network.
 
-use super::args::{opt, req, Args};
+use super::args::{above, at_least, opt, req, Args};
 use super::quantity::{
-    arg, difference, from_dual, out, out_temperature, si, Power, Ratio, Temperature, TemperatureInterval,
-    ThermalResistance, Time,
+    arg, difference, from_dual, out, out_temperature, si, Power, Ratio, Temperature,
+    TemperatureInterval, ThermalResistance, Time,
 };
 use super::{Builtin, CallCtx, CallError, Doc, FieldDoc, Param, WarnRule, WarnWhen};
 use crate::num::Dual;
@@ -17,7 +17,12 @@ const THETA_CAVEAT: &str = "θJA from a datasheet holds only for the board it wa
      airflow, neighbouring parts and altitude change it. Surfaces above about 60 °C burn on \
      touch. Confirm with the part's datasheet, by measurement and with the applicable codes.";
 
-const JUNCTION_PARAMS: &[Param] = &[req("power"), req("ambient"), req("theta"), opt("tj_max", "")];
+const JUNCTION_PARAMS: &[Param] = &[
+    req("power"),
+    req("ambient"),
+    req("theta"),
+    opt("tj_max", ""),
+];
 
 pub static JUNCTION: Builtin = Builtin {
     path: "heat.junction",
@@ -91,7 +96,13 @@ fn probe_margin(ctx: &mut CallCtx<'_>, margin: TemperatureInterval) {
     );
 }
 
-const SINK_PARAMS: &[Param] = &[req("power"), req("ambient"), req("tj_max"), req("jc"), req("cs")];
+const SINK_PARAMS: &[Param] = &[
+    req("power"),
+    req("ambient"),
+    req("tj_max"),
+    req("jc"),
+    req("cs"),
+];
 
 pub static SINK_FOR: Builtin = Builtin {
     path: "heat.sink_for",
@@ -146,7 +157,8 @@ fn sink_for(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, Call
         Num::new(theta_sa.value, Dim::THERMAL_RESISTANCE),
         WarnRule {
             when: WarnWhen::MinBelow(0.0),
-            message: "no heatsink can do this: even an ideal one leaves the junction above tj_max".into(),
+            message: "no heatsink can do this: even an ideal one leaves the junction above tj_max"
+                .into(),
             label: "required θSA".into(),
         },
     );
@@ -164,11 +176,27 @@ pub static MAX_POWER: Builtin = Builtin {
         signature: "heat.max_power(ambient, tj_max, theta)",
         formula: "P = (tj_max − ambient) / θ",
         arguments: &[
-            FieldDoc { name: "ambient", unit: "°C", meaning: "temperature of the surrounding air" },
-            FieldDoc { name: "tj_max", unit: "°C", meaning: "junction temperature not to be exceeded" },
-            FieldDoc { name: "theta", unit: "K/W", meaning: "thermal resistance from junction to ambient" },
+            FieldDoc {
+                name: "ambient",
+                unit: "°C",
+                meaning: "temperature of the surrounding air",
+            },
+            FieldDoc {
+                name: "tj_max",
+                unit: "°C",
+                meaning: "junction temperature not to be exceeded",
+            },
+            FieldDoc {
+                name: "theta",
+                unit: "K/W",
+                meaning: "thermal resistance from junction to ambient",
+            },
         ],
-        fields: &[FieldDoc { name: "(result)", unit: "W", meaning: "largest allowed dissipation" }],
+        fields: &[FieldDoc {
+            name: "(result)",
+            unit: "W",
+            meaning: "largest allowed dissipation",
+        }],
         source: "The steady-state thermal-resistance model with the definitions of θJA and θJC in \
                  JEDEC JESD51-1 and JESD51-2.",
         caveats: THETA_CAVEAT,
@@ -207,9 +235,21 @@ pub static MAX_AMBIENT: Builtin = Builtin {
         signature: "heat.max_ambient(power, tj_max, theta)",
         formula: "ambient = tj_max − power · θ",
         arguments: &[
-            FieldDoc { name: "power", unit: "W", meaning: "power dissipated in the part" },
-            FieldDoc { name: "tj_max", unit: "°C", meaning: "junction temperature not to be exceeded" },
-            FieldDoc { name: "theta", unit: "K/W", meaning: "thermal resistance from junction to ambient" },
+            FieldDoc {
+                name: "power",
+                unit: "W",
+                meaning: "power dissipated in the part",
+            },
+            FieldDoc {
+                name: "tj_max",
+                unit: "°C",
+                meaning: "junction temperature not to be exceeded",
+            },
+            FieldDoc {
+                name: "theta",
+                unit: "K/W",
+                meaning: "thermal resistance from junction to ambient",
+            },
         ],
         fields: &[FieldDoc {
             name: "(result)",
@@ -297,7 +337,7 @@ fn pulse(_ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallEr
     a.not_negative(4, &base)?;
     if let Some(t) = &period {
         a.positive(3, t)?;
-        if !((*t - duration).value.v.lo >= 0.0) {
+        if !at_least((*t - duration).value.v.lo, 0.0) {
             return Err(CallError::new("`period` must be at least `duration`")
                 .at(3)
                 .hint("the period runs from the start of one pulse to the start of the next"));
@@ -335,14 +375,18 @@ fn foster_terms(items: &[Value]) -> Result<Vec<(ThermalResistance, Time)>, CallE
     }
     let mut terms = Vec::with_capacity(items.len());
     for item in items {
-        let Value::List(pair) = item else { return Err(shape()) };
-        let [r, tau] = &pair[..] else { return Err(shape()) };
+        let Value::List(pair) = item else {
+            return Err(shape());
+        };
+        let [r, tau] = &pair[..] else {
+            return Err(shape());
+        };
         let r: ThermalResistance = arg(r, "R of a network term").map_err(|e| e.at(2))?;
         let tau: Time = arg(tau, "τ of a network term").map_err(|e| e.at(2))?;
-        if !(r.value.v.lo >= 0.0) {
+        if !at_least(r.value.v.lo, 0.0) {
             return Err(CallError::new("a network term's R must not be negative").at(2));
         }
-        if !(tau.value.v.lo > 0.0) {
+        if !above(tau.value.v.lo, 0.0) {
             return Err(CallError::new("a network term's τ must be positive").at(2));
         }
         terms.push((r, tau));

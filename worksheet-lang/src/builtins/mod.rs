@@ -111,8 +111,20 @@ pub struct WarnRule {
 /// What a built-in may ask of the evaluator during a call.
 pub trait CallHost {
     fn is_nominal(&self) -> bool;
-    fn choose(&mut self, key: &str, pick: &mut dyn FnMut() -> Result<f64, CallError>) -> Result<f64, CallError>;
-    fn part_input(&mut self, key: &str, label: String, nominal: f64, lo: f64, hi: f64, dim: Dim) -> Dual;
+    fn choose(
+        &mut self,
+        key: &str,
+        pick: &mut dyn FnMut() -> Result<f64, CallError>,
+    ) -> Result<f64, CallError>;
+    fn part_input(
+        &mut self,
+        key: &str,
+        label: String,
+        nominal: f64,
+        lo: f64,
+        hi: f64,
+        dim: Dim,
+    ) -> Dual;
     fn probe(&mut self, key: &str, value: Num, rule: WarnRule);
     fn warn(&mut self, text: String);
     /// The worst-case range (SI) of argument `param` over the whole input box, where the
@@ -147,7 +159,15 @@ impl CallCtx<'_> {
     }
     /// A new uncertain input, e.g. the tolerance of a chosen resistor: `lo ..= hi` around
     /// `nominal` (SI). Returns its value in the current pass.
-    pub fn part_input(&mut self, key: &str, label: String, nominal: f64, lo: f64, hi: f64, dim: Dim) -> Dual {
+    pub fn part_input(
+        &mut self,
+        key: &str,
+        label: String,
+        nominal: f64,
+        lo: f64,
+        hi: f64,
+        dim: Dim,
+    ) -> Dual {
         self.host.part_input(key, label, nominal, lo, hi, dim)
     }
     /// Records a value whose worst case decides a warning.
@@ -171,7 +191,10 @@ impl Builtin {
     /// whose display leads with the worst-case minimum: the smallest θ or power, or the
     /// lowest ambient, that the design must meet. Their data keeps nominal, min and max.
     pub fn leads_with_minimum(&self) -> bool {
-        matches!(self.path, "heat.sink_for" | "heat.max_power" | "heat.max_ambient")
+        matches!(
+            self.path,
+            "heat.sink_for" | "heat.max_power" | "heat.max_ambient"
+        )
     }
 }
 
@@ -202,7 +225,10 @@ pub fn lookup(path: &str) -> Option<&'static Builtin> {
 
 /// The namespaces (`reg`, `heat`, `res`, `power`).
 pub fn namespaces() -> Vec<&'static str> {
-    let mut ns: Vec<&str> = all().iter().filter_map(|b| b.path.split('.').next()).collect();
+    let mut ns: Vec<&str> = all()
+        .iter()
+        .filter_map(|b| b.path.split('.').next())
+        .collect();
     ns.sort_unstable();
     ns.dedup();
     ns

@@ -1,6 +1,6 @@
 //! Power sources: battery run time (`power.battery_hours`).
 
-use super::args::{opt, req, Args};
+use super::args::{at_least, opt, req, Args};
 use super::quantity::{from_dual, out, Charge, Current, Ratio, Time};
 use super::{Builtin, CallCtx, CallError, Doc, FieldDoc, Param};
 use crate::units::format_number;
@@ -48,14 +48,16 @@ pub static BATTERY_HOURS: Builtin = Builtin {
 
 fn battery_hours(_ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError> {
     let a = Args::new(BATTERY_PARAMS, vals);
-    let capacity: Charge = a.q(0).map_err(|e| e.hint("give the capacity as a charge, e.g. `2200 mAh`"))?;
+    let capacity: Charge = a
+        .q(0)
+        .map_err(|e| e.hint("give the capacity as a charge, e.g. `2200 mAh`"))?;
     let current: Current = a.q(1)?;
     let k: Ratio = a.q_or(2, 1.0)?;
     let hours: Time = a.q_or(3, 20.0 * 3600.0)?;
     a.positive(0, &capacity)?;
     a.positive(1, &current)?;
     a.positive(3, &hours)?;
-    if !(k.value.v.lo >= 1.0) {
+    if !at_least(k.value.v.lo, 1.0) {
         return Err(CallError::new(format!(
             "Peukert's exponent is at least 1, but `peukert` reaches {}",
             format_number(k.value.v.lo, 3)

@@ -132,14 +132,20 @@ pub fn difference(a: Temperature, b: Temperature) -> TemperatureInterval {
     wrap(a.value - b.value)
 }
 
-
 /// A built-in's record: `fields` are (name, value, display unit).
-pub fn record(kind: &'static str, fields: Vec<(&'static str, Value, Option<&'static str>)>) -> Value {
+pub fn record(
+    kind: &'static str,
+    fields: Vec<(&'static str, Value, Option<&'static str>)>,
+) -> Value {
     Value::Record(std::sync::Arc::new(crate::value::Record {
         kind,
         fields: fields
             .into_iter()
-            .map(|(name, value, display)| crate::value::Field { name, value, display })
+            .map(|(name, value, display)| crate::value::Field {
+                name,
+                value,
+                display,
+            })
             .collect(),
     }))
 }

@@ -1,7 +1,7 @@
 //! Regulators: the linear pass element (`reg.linear`) and the switching converter
 //! (`reg.switching`).
 
-use super::args::{opt, req, show, Args};
+use super::args::{above, at_least, opt, req, show, Args};
 use super::quantity::{self as q, from_dual, out, record, si, Current, Power, Ratio, Voltage};
 use super::{Builtin, CallCtx, CallError, Doc, FieldDoc, Param, WarnRule, WarnWhen};
 use crate::num::{Dual, Interval};
@@ -33,9 +33,21 @@ pub static LINEAR: Builtin = Builtin {
                   loss = (vin − vo) · iout + vin · iq\n\
                   efficiency = pout / pin",
         arguments: &[
-            FieldDoc { name: "vin", unit: "V", meaning: "input voltage" },
-            FieldDoc { name: "vout", unit: "V", meaning: "output voltage the regulator is set to" },
-            FieldDoc { name: "iout", unit: "A", meaning: "load current" },
+            FieldDoc {
+                name: "vin",
+                unit: "V",
+                meaning: "input voltage",
+            },
+            FieldDoc {
+                name: "vout",
+                unit: "V",
+                meaning: "output voltage the regulator is set to",
+            },
+            FieldDoc {
+                name: "iout",
+                unit: "A",
+                meaning: "load current",
+            },
             FieldDoc {
                 name: "iq",
                 unit: "A",
@@ -47,15 +59,43 @@ pub static LINEAR: Builtin = Builtin {
                 meaning: "smallest input-to-output difference at which it still regulates; may be \
                           an expression of the load (`0.15 V + 1.2 Ω * iload`)",
             },
-            FieldDoc { name: "vin_max", unit: "V", meaning: "the part's highest rated input (warns above)" },
-            FieldDoc { name: "iout_max", unit: "A", meaning: "the part's rated output current (warns above)" },
+            FieldDoc {
+                name: "vin_max",
+                unit: "V",
+                meaning: "the part's highest rated input (warns above)",
+            },
+            FieldDoc {
+                name: "iout_max",
+                unit: "A",
+                meaning: "the part's rated output current (warns above)",
+            },
         ],
         fields: &[
-            FieldDoc { name: "pin", unit: "W", meaning: "power drawn from the input" },
-            FieldDoc { name: "pout", unit: "W", meaning: "power delivered to the load" },
-            FieldDoc { name: "loss", unit: "W", meaning: "heat dissipated in the regulator" },
-            FieldDoc { name: "efficiency", unit: "%", meaning: "pout / pin" },
-            FieldDoc { name: "iin", unit: "A", meaning: "input current: load plus quiescent current" },
+            FieldDoc {
+                name: "pin",
+                unit: "W",
+                meaning: "power drawn from the input",
+            },
+            FieldDoc {
+                name: "pout",
+                unit: "W",
+                meaning: "power delivered to the load",
+            },
+            FieldDoc {
+                name: "loss",
+                unit: "W",
+                meaning: "heat dissipated in the regulator",
+            },
+            FieldDoc {
+                name: "efficiency",
+                unit: "%",
+                meaning: "pout / pin",
+            },
+            FieldDoc {
+                name: "iin",
+                unit: "A",
+                meaning: "input current: load plus quiescent current",
+            },
             FieldDoc {
                 name: "headroom",
                 unit: "V",
@@ -64,7 +104,8 @@ pub static LINEAR: Builtin = Builtin {
         ],
         source: "Ohm's law and the power balance of a series pass element: the load current flows \
                  through the pass element, the quiescent current from the input to ground.",
-        caveats: "Where headroom falls below zero the output is taken to sag to vin − dropout with \
+        caveats:
+            "Where headroom falls below zero the output is taken to sag to vin − dropout with \
                   the load current unchanged; a resistive load would draw less. Dropout depends on \
                   load and temperature: take it from the part's datasheet at your load. The loss \
                   is heat in the package: check it with heat.junction, and confirm with the part's \
@@ -128,9 +169,11 @@ fn linear(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallEr
     } else if iin.value.v.lo > 0.0 {
         iout / iin
     } else {
-        return Err(CallError::new("the efficiency is undefined with neither load nor quiescent current")
-            .at(2)
-            .hint("give a load current above zero"));
+        return Err(CallError::new(
+            "the efficiency is undefined with neither load nor quiescent current",
+        )
+        .at(2)
+        .hint("give a load current above zero"));
     };
     let efficiency = conversion * load_share;
 
@@ -179,7 +222,13 @@ fn linear(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallEr
     ))
 }
 
-const SWITCHING_PARAMS: &[Param] = &[req("vin"), req("vout"), req("iout"), req("efficiency"), opt("iq", "0 A")];
+const SWITCHING_PARAMS: &[Param] = &[
+    req("vin"),
+    req("vout"),
+    req("iout"),
+    req("efficiency"),
+    opt("iq", "0 A"),
+];
 
 pub static SWITCHING: Builtin = Builtin {
     path: "reg.switching",
@@ -236,7 +285,7 @@ fn switching(_ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, Ca
     a.not_negative(2, &iout)?;
     a.not_negative(4, &iq)?;
     let e = eta.value.v;
-    if !(e.hi <= 1.0) {
+    if !at_least(1.0, e.hi) {
         return Err(CallError::new(format!(
             "an efficiency above 100 % is impossible, but `efficiency` reaches {} %",
             format_number(e.hi * 100.0, 3)
@@ -244,7 +293,7 @@ fn switching(_ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, Ca
         .at(3)
         .hint("write efficiencies in percent: `efficiency: 88 %`"));
     }
-    if !(e.lo > 0.0) {
+    if !above(e.lo, 0.0) {
         return Err(CallError::new(format!(
             "`efficiency` must be above 0 %, but it reaches {} %",
             format_number(e.lo * 100.0, 3)

@@ -5,8 +5,11 @@
 //! rule (`CallCtx::choose`); the part's tolerance then enters the analysis as an input of
 //! its own (`CallCtx::part_input`).
 
-use super::args::{opt, req, show, Args};
-use super::quantity::{self as q, difference, from_dual, out, record, si, Current, Power, Ratio, Resistance, Temperature, Voltage};
+use super::args::{above, opt, req, show, Args};
+use super::quantity::{
+    self as q, difference, from_dual, out, record, si, Current, Power, Ratio, Resistance,
+    Temperature, Voltage,
+};
 use super::series::{Rounding, Series, ALL as SERIES};
 use super::{Builtin, CallCtx, CallError, Doc, FieldDoc, Param, WarnRule, WarnWhen};
 use crate::num::Dual;
@@ -20,7 +23,19 @@ fn series_named(name: &str) -> &'static Series {
 }
 
 /// Common power ratings of resistors, W (common practice, no source).
-pub const RATINGS: &[f64] = &[0.05, 0.0625, 0.1, 0.125, 0.25, 1.0 / 3.0, 0.5, 1.0, 2.0, 3.0, 5.0];
+pub const RATINGS: &[f64] = &[
+    0.05,
+    0.0625,
+    0.1,
+    0.125,
+    0.25,
+    1.0 / 3.0,
+    0.5,
+    1.0,
+    2.0,
+    3.0,
+    5.0,
+];
 
 /// A resistor is chosen for at least twice its worst-case dissipation (common practice,
 /// no source).
@@ -51,13 +66,21 @@ fn check_tolerance(a: &Args<'_>, i: usize, tol: f64) -> Result<(), CallError> {
     if (0.0..1.0).contains(&tol) {
         Ok(())
     } else {
-        Err(CallError::new(format!("`{}` must be from 0 % to below 100 %, not {}", a.name(i), percent(tol)))
-            .at(i)
-            .hint("for example `tolerance: 1 %`"))
+        Err(CallError::new(format!(
+            "`{}` must be from 0 % to below 100 %, not {}",
+            a.name(i),
+            percent(tol)
+        ))
+        .at(i)
+        .hint("for example `tolerance: 1 %`"))
     }
 }
 
-const PICK_PARAMS: &[Param] = &[req("value"), opt("series", "E24"), opt("mode", "\"nearest\"")];
+const PICK_PARAMS: &[Param] = &[
+    req("value"),
+    opt("series", "E24"),
+    opt("mode", "\"nearest\""),
+];
 
 pub static PICK: Builtin = Builtin {
     path: "res.pick",
@@ -67,7 +90,8 @@ pub static PICK: Builtin = Builtin {
                   the nearest one or up or down. The picked part's tolerance (the series' usual \
                   one: E24 5 %, E96 1 %) becomes an input of the worst case.",
         signature: "res.pick(value, series: E24, mode: \"nearest\" | \"up\" | \"down\")",
-        formula: "nearest: the preferred value v with the smallest |ln(v / value)| (a tie goes up)\n\
+        formula:
+            "nearest: the preferred value v with the smallest |ln(v / value)| (a tie goes up)\n\
                   up: the smallest preferred value ≥ value\n\
                   down: the largest preferred value ≤ value\n\
                   preferred values: the series' table × 10^k for every decade k",
@@ -77,8 +101,16 @@ pub static PICK: Builtin = Builtin {
                 unit: "Ω (or F)",
                 meaning: "the value wanted; the pick is made from its nominal value",
             },
-            FieldDoc { name: "series", unit: "", meaning: "E3, E6, E12, E24, E48, E96 or E192" },
-            FieldDoc { name: "mode", unit: "", meaning: "\"nearest\", \"up\" or \"down\"" },
+            FieldDoc {
+                name: "series",
+                unit: "",
+                meaning: "E3, E6, E12, E24, E48, E96 or E192",
+            },
+            FieldDoc {
+                name: "mode",
+                unit: "",
+                meaning: "\"nearest\", \"up\" or \"down\"",
+            },
         ],
         fields: &[FieldDoc {
             name: "(result)",
@@ -86,9 +118,11 @@ pub static PICK: Builtin = Builtin {
             meaning: "the preferred value, with the series' usual tolerance",
         }],
         source: "IEC 60063 preferred-number series, as its tables print them (E3–E24 and E192's \
-                 9.20 differ from the rounding formula). E3 5 %… tolerances: IEC 60063's \
-                 association of series and tolerance (E3 is taken as ±40 %).",
-        caveats: "The tolerance is the series' usual one; a part bought tighter or looser than that \
+                 9.20 differ from the rounding formula). Tolerances: IEC 60063's association of \
+                 series and tolerance (E6 20 %, E12 10 %, E24 5 %, E48 2 %, E96 1 %, E192 0.5 %); \
+                 E3, \"above 20 %\" there, is taken as ±40 %.",
+        caveats:
+            "The tolerance is the series' usual one; a part bought tighter or looser than that \
                   needs its own `± …` written after the result. Temperature coefficient and \
                   ageing are not included.",
     },
@@ -100,10 +134,17 @@ fn pick(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallErro
     let n = match a.value(0) {
         Some(Value::Num(n)) if !n.abs => *n,
         Some(Value::Num(_)) => {
-            return Err(CallError::new("`value` must be a component value, not an absolute temperature").at(0))
+            return Err(CallError::new(
+                "`value` must be a component value, not an absolute temperature",
+            )
+            .at(0))
         }
         Some(other) => {
-            return Err(CallError::new(format!("`value` must be a number, but this is {}", other.type_name())).at(0))
+            return Err(CallError::new(format!(
+                "`value` must be a number, but this is {}",
+                other.type_name()
+            ))
+            .at(0))
         }
         None => return Err(CallError::new("`value` is required").at(0)),
     };
@@ -112,12 +153,14 @@ fn pick(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallErro
     let rounding = Rounding::from_name(mode).unwrap_or(Rounding::Nearest);
     let x = n.x.value();
     if ctx.is_nominal() && !(x > 0.0 && x.is_finite()) {
-        return Err(CallError::new(format!("`value` must be positive, not {}", show(x, n.dim))).at(0));
+        return Err(
+            CallError::new(format!("`value` must be positive, not {}", show(x, n.dim))).at(0),
+        );
     }
     let v = ctx.choose("value", || {
-        series
-            .pick(x, rounding)
-            .ok_or_else(|| CallError::new(format!("no preferred value for {}", show(x, n.dim))).at(0))
+        series.pick(x, rounding).ok_or_else(|| {
+            CallError::new(format!("no preferred value for {}", show(x, n.dim))).at(0)
+        })
     })?;
     let tol = series.tolerance;
     let label = format!("{} {} ± {}", series.name, show(v, n.dim), percent(tol));
@@ -199,8 +242,11 @@ fn led(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError
     a.positive(0, &supply)?;
     a.positive(1, &vf)?;
     a.positive(2, &target)?;
-    if !(count >= 1.0 && count <= 1000.0 && count.fract() == 0.0) {
-        return Err(CallError::new(format!("`count` must be a whole number of LEDs, not {count}")).at(3));
+    if !((1.0..=1000.0).contains(&count) && count.fract() == 0.0) {
+        return Err(CallError::new(format!(
+            "`count` must be a whole number of LEDs, not {count}"
+        ))
+        .at(3));
     }
     check_tolerance(&a, 5, tol)?;
 
@@ -231,9 +277,13 @@ fn led(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError
             "worst" => across_max / (target_nom * (1.0 - tol)),
             _ => across_nom / target_nom,
         };
-        series
-            .pick(need, Rounding::Up)
-            .ok_or_else(|| CallError::new(format!("no preferred value at or above {}", show(need, Dim::RESISTANCE))).at(2))
+        series.pick(need, Rounding::Up).ok_or_else(|| {
+            CallError::new(format!(
+                "no preferred value at or above {}",
+                show(need, Dim::RESISTANCE)
+            ))
+            .at(2)
+        })
     })?;
     let rating = ctx.choose("rating", || {
         let share = default_share(ambient_max);
@@ -253,16 +303,25 @@ fn led(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError
     })?;
 
     let label = format!("r = {} ± {}", show(r_nom, Dim::RESISTANCE), percent(tol));
-    let r: Resistance =
-        from_dual(ctx.part_input("r", label, r_nom, r_nom * (1.0 - tol), r_nom * (1.0 + tol), Dim::RESISTANCE));
+    let r: Resistance = from_dual(ctx.part_input(
+        "r",
+        label,
+        r_nom,
+        r_nom * (1.0 - tol),
+        r_nom * (1.0 + tol),
+        Dim::RESISTANCE,
+    ));
     // Below zero the string does not conduct at all.
     let drive = q::max(across, si(0.0));
     let current: Current = drive / r;
     let power: Power = drive * drive / r;
 
     let share = derate_share(ambient, si_temperature(KNEE_K), si_temperature(ZERO_K));
-    if !(share.value.v.lo > 0.0) {
-        return Err(CallError::new("at an ambient of 155 °C or more a resistor may dissipate nothing").at(7));
+    if !above(share.value.v.lo, 0.0) {
+        return Err(CallError::new(
+            "at an ambient of 155 °C or more a resistor may dissipate nothing",
+        )
+        .at(7));
     }
     let allowed: Power = from_dual::<uom::si::power::Dimension>(Dual::constant(rating)) * share;
     let load: Ratio = power / allowed;
@@ -326,7 +385,11 @@ fn led(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError
             ("r", out(r), None),
             ("current", out(current), None),
             ("power", out(power), None),
-            ("rating", Value::Num(Num::constant(rating, Dim::POWER)), None),
+            (
+                "rating",
+                Value::Num(Num::constant(rating, Dim::POWER)),
+                None,
+            ),
         ],
     ))
 }
@@ -442,9 +505,12 @@ fn divider_search(
             Reference::Ground => set * (vout / vref - 1.0),
             Reference::Output => (vout - vref) / (vref / set + iadj),
         };
-        for other in [series.pick(partner, Rounding::Down), series.pick(partner, Rounding::Up)]
-            .into_iter()
-            .flatten()
+        for other in [
+            series.pick(partner, Rounding::Down),
+            series.pick(partner, Rounding::Up),
+        ]
+        .into_iter()
+        .flatten()
         {
             let (top, bottom) = match reference {
                 Reference::Ground => (other, set),
@@ -488,9 +554,11 @@ fn divider(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallE
     a.not_negative(6, &iadj)?;
     check_tolerance(&a, 4, tol)?;
     if reference == Reference::Ground && a.value(6).is_some() && !(iadj.value.v.hi == 0.0) {
-        return Err(CallError::new("`iadj` applies to `reference: \"output\"` only")
-            .at(6)
-            .hint("a three-terminal adjustable regulator is `reference: \"output\"`"));
+        return Err(
+            CallError::new("`iadj` applies to `reference: \"output\"` only")
+                .at(6)
+                .hint("a three-terminal adjustable regulator is `reference: \"output\"`"),
+        );
     }
     let (vout_nom, vref_nom) = (vout.value.value(), vref.value.value());
     if ctx.is_nominal() && vout_nom <= vref_nom {
@@ -511,7 +579,14 @@ fn divider(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallE
     let bottom_nom = ctx.choose("r_bottom", || search().map(|p| p.1))?;
     let part = |ctx: &mut CallCtx<'_>, key: &str, v: f64| -> Resistance {
         let label = format!("{key} = {} ± {}", show(v, Dim::RESISTANCE), percent(tol));
-        from_dual(ctx.part_input(key, label, v, v * (1.0 - tol), v * (1.0 + tol), Dim::RESISTANCE))
+        from_dual(ctx.part_input(
+            key,
+            label,
+            v,
+            v * (1.0 - tol),
+            v * (1.0 + tol),
+            Dim::RESISTANCE,
+        ))
     };
     let top = part(ctx, "r_top", top_nom);
     let bottom = part(ctx, "r_bottom", bottom_nom);
@@ -535,7 +610,12 @@ fn divider(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallE
     ))
 }
 
-const DERATE_PARAMS: &[Param] = &[req("rating"), req("temperature"), opt("knee", "70 °C"), opt("zero", "155 °C")];
+const DERATE_PARAMS: &[Param] = &[
+    req("rating"),
+    req("temperature"),
+    opt("knee", "70 °C"),
+    opt("zero", "155 °C"),
+];
 
 pub static DERATE: Builtin = Builtin {
     path: "res.derate",
@@ -568,7 +648,7 @@ fn derate(_ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallE
     let knee = a.temp_or(2, KNEE_K)?;
     let zero = a.temp_or(3, ZERO_K)?;
     a.not_negative(0, &rating)?;
-    if !(difference(zero, knee).value.v.lo > 0.0) {
+    if !above(difference(zero, knee).value.v.lo, 0.0) {
         return Err(CallError::new("`zero` must be above `knee`").at(3));
     }
     Ok(out(rating * derate_share(t, knee, zero)))
