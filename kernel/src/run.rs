@@ -37,7 +37,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<u8> {
     let path = &args.file;
     match path.extension().and_then(|e| e.to_str()) {
         Some("hrw") => run_worksheet(args),
-        Some("ipynb") => bail!("notebooks (.ipynb) are not supported yet"),
+        Some("ipynb") => crate::notebook::run(args),
         Some(ext) => bail!(
             "`{}`: headroom runs worksheets (.hrw) and notebooks (.ipynb), not .{ext} files",
             path.display()

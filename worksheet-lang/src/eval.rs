@@ -81,10 +81,16 @@ pub struct Registry {
     pub input_scalars: Vec<usize>,
     pub scalar_keys: Vec<String>,
     scalar_index: HashMap<String, usize>,
-    choices: HashMap<String, f64>,
+    pub(crate) choices: HashMap<String, f64>,
     pub probes: Vec<ProbeInfo>,
     /// Unconditional warnings of built-ins: (statement label, statement key, text).
     pub warnings: Vec<(String, String, String)>,
+    /// The argument ranges of each built-in call seen in a box pass (by call key).
+    pub observed: HashMap<String, Vec<Option<Interval>>>,
+    /// Argument ranges known from an earlier round, for choices that need them.
+    pub known: HashMap<String, Vec<Option<Interval>>>,
+    /// Set when a built-in asked for an argument range that was not known yet.
+    pub wanted_ranges: std::cell::Cell<bool>,
 }
 
 impl Registry {
@@ -724,6 +730,17 @@ impl<'a> Evaluator<'a> {
             )
             .hint(b.doc.signature));
         }
+        let call_key = format!("{}#{}", self.stmt_key, span.start);
+        if matches!(self.pass.mode, Mode::Box { .. }) && !self.reg.observed.contains_key(&call_key) {
+            let ranges = slots
+                .iter()
+                .map(|v| match v {
+                    Some(Value::Num(n)) => Some(n.x.v),
+                    _ => None,
+                })
+                .collect();
+            self.reg.observed.insert(call_key, ranges);
+        }
         let mut host = Host {
             ev: self,
             call_key: format!("{}", span.start),
@@ -1045,6 +1062,14 @@ impl CallHost for Host<'_, '_> {
             }
         }
         self.ev.record(&k, value);
+    }
+    fn arg_range(&self, param: usize) -> Option<Interval> {
+        let key = format!("{}#{}", self.ev.stmt_key, self.call_key);
+        let r = self.ev.reg.known.get(&key).and_then(|v| v.get(param).copied().flatten());
+        if r.is_none() {
+            self.ev.reg.wanted_ranges.set(true);
+        }
+        r
     }
     fn warn(&mut self, text: String) {
         let src = self.ev.stmt_label.clone();
@@ -1373,6 +1398,28 @@ impl Record {
     pub fn into_value(self) -> Value {
         Value::Record(Arc::new(self))
     }
+}
+
+/// True when the expression holds a part that did not parse.
+pub fn has_error(e: &Expr) -> bool {
+    let mut stack = vec![e];
+    while let Some(e) = stack.pop() {
+        match &e.kind {
+            ExprKind::Error => return true,
+            ExprKind::Neg(x) => stack.push(x),
+            ExprKind::Binary { lhs, rhs, .. } => stack.extend([&**lhs, &**rhs]),
+            ExprKind::PlusMinus { base, spread } => stack.extend([&**base, &**spread]),
+            ExprKind::Range { lo, hi } => stack.extend([&**lo, &**hi]),
+            ExprKind::Call { callee, args } => {
+                stack.push(callee);
+                stack.extend(args.iter().map(|a| &a.value));
+            }
+            ExprKind::Field { base, .. } => stack.push(base),
+            ExprKind::List(items) => stack.extend(items.iter()),
+            ExprKind::Number { .. } | ExprKind::Code { .. } | ExprKind::Str(_) | ExprKind::Name(_) => {}
+        }
+    }
+    false
 }
 
 /// All dependencies (free names) of an expression, excluding `bound` names.

@@ -521,28 +521,26 @@ impl Lexer<'_> {
     fn string(&mut self) {
         let start = self.pos;
         let body = start + 1;
-        let line_end = self.s[body..].find('\n').map_or(self.s.len(), |i| body + i);
-        match self.s[body..line_end].find('"') {
-            Some(i) => {
-                let close = body + i;
-                let text = self.original(body..close);
-                self.push(TokenKind::Str(text), start, close + 1);
-            }
-            None => {
-                let end = body + self.s[body..line_end].trim_end().len();
-                let text = self.original(body..end);
-                self.diag(
-                    Diagnostic::error(
-                        DiagKind::UnterminatedString,
-                        self.f.span(start..end),
-                        "this string is not closed",
-                    )
-                    .expected("`\"`", "end of line")
-                    .hint("end it with `\"` on the same line; a string cannot span lines"),
-                );
-                self.push(TokenKind::Str(text), start, end);
-            }
+        let stop = self.s[body..]
+            .find(['"', '\n'])
+            .map_or(self.s.len(), |i| body + i);
+        if self.s[stop..].starts_with('"') {
+            let text = self.original(body..stop);
+            self.push(TokenKind::Str(text), start, stop + 1);
+            return;
         }
+        let end = body + self.s[body..stop].trim_end().len();
+        let text = self.original(body..end);
+        self.diag(
+            Diagnostic::error(
+                DiagKind::UnterminatedString,
+                self.f.span(start..end),
+                "this string is not closed",
+            )
+            .expected("`\"`", "end of line")
+            .hint("end it with `\"` on the same line; a string cannot span lines"),
+        );
+        self.push(TokenKind::Str(text), start, end);
     }
 
     /// The original text of a folded range.

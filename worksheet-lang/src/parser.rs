@@ -38,6 +38,7 @@ pub fn parse(source: &str) -> Program {
         quiet: Vec::new(),
         brackets: Vec::new(),
         err_at: 0,
+        stmt_diags: 0,
         head: None,
     };
     let mut stmts = Vec::new();
@@ -55,10 +56,9 @@ pub fn parse(source: &str) -> Program {
         .diagnostics
         .iter()
         .filter(|d| {
-            !(d.kind == DiagKind::InvalidCharacter
-                && quiet
-                    .iter()
-                    .any(|q| q.start <= d.span.start && d.span.end <= q.end))
+            !quiet
+                .iter()
+                .any(|q| q.start <= d.span.start && d.span.end <= q.end)
         })
         .cloned()
         .collect();
@@ -125,7 +125,14 @@ fn match_brackets(toks: &[Token]) -> (Vec<Option<usize>>, bool, bool) {
             TokenKind::RBracket => TokenKind::LBracket,
             _ => continue,
         };
-        match stack.iter().rposition(|&o| toks[o].kind == opener) {
+        // Only look a little way down for a fitting opener, so that a run of mismatched
+        // closers stays linear.
+        let floor = stack.len().saturating_sub(16);
+        match stack[floor..]
+            .iter()
+            .rposition(|&o| toks[o].kind == opener)
+            .map(|at| at + floor)
+        {
             Some(at) => {
                 if at + 1 != stack.len() {
                     bad = true;
@@ -206,6 +213,8 @@ enum Group {
         first_named: Option<Ident>,
         /// The name of the argument being read.
         name: Option<Ident>,
+        /// An error was reported inside (a positional argument after a named one).
+        broken: bool,
     },
     List {
         open: usize,
@@ -237,13 +246,15 @@ struct Parser<'a> {
     matches: Vec<Option<usize>>,
     pos: usize,
     diags: Vec<Diagnostic>,
-    /// Original ranges read as unit text, where the lexer's invalid-character errors do not
-    /// apply (the unit parser reports on the whole text).
+    /// Original ranges read as unit text, where the lexer's errors do not apply (the unit
+    /// is judged as a whole when it is resolved).
     quiet: Vec<Span>,
     /// Open brackets the parser is inside (token indices), innermost last.
     brackets: Vec<usize>,
     /// The token at which the last error was detected.
     err_at: usize,
+    /// How many diagnostics there were when the current statement began.
+    stmt_diags: usize,
     head: Option<(Head, usize)>,
 }
 
@@ -408,23 +419,26 @@ impl<'a> Parser<'a> {
         if self.matches[b].is_some() {
             return None;
         }
-        let open = &self.toks[b];
-        if t.kind != TokenKind::Eof && t.line == open.line {
+        if t.kind != TokenKind::Eof && t.line == self.toks[b].line {
             return None;
         }
+        let d = self.unclosed_diag(b, self.describe(t));
+        Some(self.report(d))
+    }
+
+    fn unclosed_diag(&self, b: usize, found: String) -> Diagnostic {
+        let open = &self.toks[b];
         let (c, close) = match open.kind {
             TokenKind::LBracket => ("[", "]"),
             _ => ("(", ")"),
         };
-        let found = self.describe(t);
-        let d = Diagnostic::error(
+        Diagnostic::error(
             DiagKind::UnclosedDelimiter,
             open.span.clone(),
             format!("this `{c}` is never closed"),
         )
         .expected(format!("`{close}`"), found)
-        .hint(format!("close the `{c}` opened here"));
-        Some(self.report(d))
+        .hint(format!("close the `{c}` opened here"))
     }
 
     fn report(&mut self, d: Diagnostic) -> Stop {
@@ -448,6 +462,28 @@ impl<'a> Parser<'a> {
             },
             k if starts_operand(k) && expected.contains("`,`") => {
                 Some("separate the items with `,`".to_string())
+            }
+            TokenKind::Name(n) if matches!(prev.kind, ExprKind::Number { unit: None, .. }) => {
+                // `10KΩ`, `5 v`: a unit in the wrong case.
+                // A word of letters only near a unit symbol is most likely a mistyped unit;
+                // a designator such as `V1` is a name.
+                let near = units::nearest_symbol(n).filter(|_| n.chars().all(char::is_alphabetic));
+                let case_only = near
+                    .as_ref()
+                    .filter(|u| u.to_lowercase() == n.to_lowercase());
+                let product = format!("write `{prev_text} * {n}`");
+                Some(match (case_only, &near) {
+                    (Some(u), _) => format!(
+                        "{product} for a product, or `{prev_text} {u}` for the unit \
+                         (units are case-sensitive)"
+                    ),
+                    // `12 Vv`: most likely a mistyped unit.
+                    (None, Some(u)) => format!(
+                        "`{n}` is not a unit; did you mean `{prev_text} {u}`? \
+                         (for a product, {product})"
+                    ),
+                    (None, None) => product,
+                })
             }
             k if starts_operand(k) => {
                 let next_text = self.text(&t.span);
@@ -495,6 +531,7 @@ impl<'a> Parser<'a> {
 
     fn statement(&mut self) -> Stmt {
         let start = self.pos;
+        self.stmt_diags = self.diags.len();
         self.brackets.clear();
         self.head = None;
         let outcome = match self.statement_kind() {
@@ -722,22 +759,14 @@ impl<'a> Parser<'a> {
         Ok(unit)
     }
 
-    /// The unit written in the folded range, trimmed, with an error if it is no unit.
+    /// The unit written in the folded range, trimmed. Whether it is a unit is for the
+    /// evaluator to say (it resolves every declared and `as` unit and reports on it).
     fn unit_text(&mut self, from: usize, to: usize) -> UnitExpr {
         let raw = self.ftext.get(from..to).unwrap_or("");
         let lead = raw.len() - raw.trim_start().len();
         let text = raw.trim();
         let span = self.folded.span(from + lead..from + lead + text.len());
         self.quiet.push(span.clone());
-        if !text.is_empty() {
-            if let Err(e) = units::parse_unit(text) {
-                let mut d = Diagnostic::error(DiagKind::UnknownUnit, span.clone(), e.message);
-                if let Some(h) = e.hint {
-                    d = d.hint(h);
-                }
-                self.diags.push(d);
-            }
-        }
         UnitExpr {
             text: text.to_string(),
             span,
@@ -933,58 +962,120 @@ impl<'a> Parser<'a> {
     /// Where to go on after an error in the statement that began at `start`.
     fn recover(&mut self, start: usize) -> usize {
         let e = self.err_at.max(start);
-        let line = self.line_start(start, e);
-        let mut unclosed = self.brackets.iter().any(|&b| self.matches[b].is_none());
-        let mut end = None;
-        if !unclosed {
-            let mut p = e;
-            if let Some(close) = self.brackets.first().and_then(|&b| self.matches[b]) {
-                p = p.max(close + 1);
-            }
-            while end.is_none() {
-                match &self.toks[p].kind {
-                    TokenKind::Eof => end = Some(p),
-                    TokenKind::Newline => {
-                        if self.prev_token(p).is_some_and(|t| t.kind.continues_line()) {
-                            while self.toks[p].kind == TokenKind::Newline {
-                                p += 1;
-                            }
-                        } else {
-                            end = Some(p);
-                        }
-                    }
-                    TokenKind::LParen | TokenKind::LBracket => match self.matches[p] {
-                        Some(close) if close > p => p = close + 1,
-                        _ => {
-                            unclosed = true;
-                            break;
-                        }
-                    },
-                    _ => p += 1,
-                }
-            }
-        }
         // The error is on a line that was read as a continuation but begins a statement of
-        // its own: the line before ended with an operator, or left a bracket open.
-        let joined_at_top = self.brackets.iter().all(|&b| b >= line);
-        if line > start && self.begins_statement(line) && (unclosed || joined_at_top) {
-            if joined_at_top && !unclosed {
-                if let Some(prev) = self.prev_token(line) {
-                    let t = self.text(&prev.span).to_string();
-                    if let Some(d) = self.diags.last_mut() {
-                        d.hint = Some(format!(
-                            "the line before ends with `{t}`, so this line was read as its \
-                             continuation"
-                        ));
+        // its own: the line before ended with an operator, or left a bracket open. Go on
+        // there; what is wrong on that line is reported when it is read on its own.
+        let line = self.line_start(start, e);
+        if line > start && self.begins_statement(line) {
+            let (open, unmatched) = self.open_at(start, line);
+            if open == 0
+                && self
+                    .prev_token(line)
+                    .is_some_and(|t| t.kind.continues_line())
+            {
+                self.dangling_operator(line);
+                return line;
+            }
+            if let Some(b) = unmatched {
+                self.forget_from(line);
+                let reported = self.diags[self.stmt_diags..]
+                    .iter()
+                    .any(|d| d.kind == DiagKind::UnclosedDelimiter && d.span == self.toks[b].span);
+                if !reported {
+                    let found = "a new statement on the next line".to_string();
+                    let d = self.unclosed_diag(b, found);
+                    self.diags.push(d);
+                }
+                return line;
+            }
+        }
+        // Otherwise skip to the end of the statement: out of the brackets the error is in,
+        // then to the first line break that ends it.
+        let mut p = e;
+        let mut unclosed = self.brackets.iter().any(|&b| self.matches[b].is_none());
+        if let Some(close) = self.brackets.first().and_then(|&b| self.matches[b]) {
+            p = p.max(close + 1);
+        }
+        while !unclosed {
+            match &self.toks[p].kind {
+                TokenKind::Eof => return p,
+                TokenKind::Newline => {
+                    if !self.prev_token(p).is_some_and(|t| t.kind.continues_line()) {
+                        return p;
+                    }
+                    while self.toks[p].kind == TokenKind::Newline {
+                        p += 1;
+                    }
+                }
+                TokenKind::LParen | TokenKind::LBracket => match self.matches[p] {
+                    Some(close) if close > p => p = close + 1,
+                    _ => unclosed = true,
+                },
+                _ => p += 1,
+            }
+        }
+        // A bracket that is never closed would make the rest of the cell this statement;
+        // go on at the next line instead.
+        self.next_line(e)
+    }
+
+    /// How many brackets opened in `start..line` are still open at `line`, and the
+    /// innermost of them that is never closed.
+    fn open_at(&self, start: usize, line: usize) -> (usize, Option<usize>) {
+        let mut open = 0;
+        let mut unmatched = None;
+        for i in start..line {
+            if matches!(self.toks[i].kind, TokenKind::LParen | TokenKind::LBracket) {
+                match self.matches[i] {
+                    Some(close) if close < line => {}
+                    Some(_) => open += 1,
+                    None => {
+                        open += 1;
+                        unmatched = Some(i);
                     }
                 }
             }
-            return line;
         }
-        match end {
-            Some(end) if !unclosed => end,
-            _ => self.next_line(e),
+        (open, unmatched)
+    }
+
+    /// Drops this statement's diagnostics that point at or after token `line`.
+    fn forget_from(&mut self, line: usize) {
+        let from = self.toks[line].span.start;
+        let mut i = self.stmt_diags;
+        while i < self.diags.len() {
+            if self.diags[i].span.start >= from {
+                self.diags.remove(i);
+            } else {
+                i += 1;
+            }
         }
+    }
+
+    /// The statement ended with an operator and the next line, read as its continuation,
+    /// begins a statement of its own. What went wrong on that line is reported when it is
+    /// read again on its own; here the error is the operator with nothing after it.
+    #[cold]
+    fn dangling_operator(&mut self, line: usize) {
+        let Some(op) = self.prev_token(line) else {
+            return;
+        };
+        self.forget_from(line);
+        let t = self.text(&op.span);
+        let d = Diagnostic::error(
+            DiagKind::UnexpectedToken,
+            op.span.clone(),
+            format!("`{t}` ends the line but has nothing after it"),
+        )
+        .expected(
+            format!("an expression after `{t}`"),
+            "a new statement on the next line",
+        )
+        .hint(format!(
+            "finish the expression, or remove the `{t}`; a line ending in `{t}` continues on \
+             the next line"
+        ));
+        self.diags.push(d);
     }
 
     /// The first token of the line holding token `e` (not before `start`).
@@ -1207,6 +1298,7 @@ impl<'a> Parser<'a> {
                         d: 0,
                         first_named: name.clone(),
                         name,
+                        broken: false,
                     }));
                     return Ok(true);
                 }
@@ -1325,12 +1417,14 @@ impl<'a> Parser<'a> {
                 d,
                 first_named,
                 name,
+                broken,
                 ..
             })) => {
                 *d = (*d).max(item.d);
                 let name = name.take();
-                if name.is_none() {
+                if name.is_none() && first_named.is_some() {
                     late_positional = first_named.clone();
+                    *broken = true;
                 }
                 args.push(Arg {
                     name,
@@ -1383,6 +1477,18 @@ impl<'a> Parser<'a> {
                 inner.tol = false;
                 inner
             }
+            Some(Op::Group(Group::Call {
+                callee,
+                broken: true,
+                ..
+            })) => Node {
+                e: Expr {
+                    kind: ExprKind::Error,
+                    span: callee.e.span.start..end,
+                },
+                d: 1,
+                tol: false,
+            },
             Some(Op::Group(Group::Call {
                 callee, args, d, ..
             })) => self.call_node(callee, args, d, close)?,
@@ -1503,8 +1609,9 @@ impl<'a> Parser<'a> {
             },
             (Op::Tol { range, .. }, Some(l)) => {
                 tol = true;
-                if range {
-                    self.check_range_units(&l.e, &rhs.e);
+                if range && self.range_lacks_units(&l.e, &rhs.e) {
+                    ExprKind::Error
+                } else if range {
                     ExprKind::Range {
                         lo: Box::new(l.e),
                         hi: Box::new(rhs.e),
@@ -1527,21 +1634,23 @@ impl<'a> Parser<'a> {
         Ok(())
     }
 
-    /// `10.8 .. 13.2 V`: each end of a range carries its own unit.
-    fn check_range_units(&mut self, lo: &Expr, hi: &Expr) {
-        fn literal(e: &Expr) -> Option<(&Expr, Option<&UnitExpr>)> {
-            match &e.kind {
-                ExprKind::Number { unit, .. } => Some((e, unit.as_ref())),
-                ExprKind::Neg(inner) => literal(inner),
-                _ => None,
+    /// `10.8 .. 13.2 V`: each end of a range carries its own unit. True when reported.
+    fn range_lacks_units(&mut self, lo: &Expr, hi: &Expr) -> bool {
+        fn literal(mut e: &Expr) -> Option<(&Expr, Option<&UnitExpr>)> {
+            loop {
+                match &e.kind {
+                    ExprKind::Number { unit, .. } => return Some((e, unit.as_ref())),
+                    ExprKind::Neg(inner) => e = inner,
+                    _ => return None,
+                }
             }
         }
         let (Some((lo_n, lo_u)), Some((hi_n, hi_u))) = (literal(lo), literal(hi)) else {
-            return;
+            return false;
         };
         let unit = match (lo_u, hi_u) {
             (None, Some(u)) | (Some(u), None) => u.text.clone(),
-            _ => return,
+            _ => return false,
         };
         let bare = |e: &Expr, n: &Expr, u: Option<&UnitExpr>| match u {
             Some(_) => self.text(&e.span).to_string(),
@@ -1555,6 +1664,7 @@ impl<'a> Parser<'a> {
         )
         .hint(format!("write `{fixed}`"));
         self.diags.push(d);
+        true
     }
 }
 

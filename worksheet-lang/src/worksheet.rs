@@ -383,6 +383,10 @@ struct DefEntry {
     original: Option<Expr>,
     overridden: bool,
     static_error: Option<EvalError>,
+    /// The value did not parse (already reported by the parser).
+    parse_failed: bool,
+    /// A sizing result (`heat.sink_for` …) whose display leads with its worst-case minimum.
+    leads_with_minimum: bool,
 }
 
 struct CheckEntry {
@@ -503,11 +507,20 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                         ));
                         continue;
                     }
-                    let (unit, static_error) = match d.unit.as_ref().map(resolve_unit) {
+                    let parse_failed = eval::has_error(&d.value);
+                    let (unit, mut static_error) = match d.unit.as_ref().map(resolve_unit) {
                         Some(Ok(u)) => (Some(u), None),
                         Some(Err(e)) => (None, Some(e)),
                         None => (None, None),
                     };
+                    if parse_failed {
+                        // The parser has reported why; dependents say that this failed.
+                        static_error = Some(EvalError::new(
+                            DiagKind::UnexpectedToken,
+                            &d.value.span,
+                            "its definition did not parse",
+                        ));
+                    }
                     let ov = if given {
                         overrides.iter().find(|o| o.name == d.name.name)
                     } else {
@@ -526,6 +539,14 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                         original: ov.map(|_| d.value.clone()),
                         overridden: ov.is_some(),
                         static_error,
+                        parse_failed,
+                        leads_with_minimum: match &d.value.kind {
+                            ExprKind::Call { callee, .. } => callee
+                                .path()
+                                .and_then(|p| crate::builtins::lookup(&p))
+                                .is_some_and(|b| b.leads_with_minimum()),
+                            _ => false,
+                        },
                     });
                     m.index.insert(d.name.name.clone(), idx);
                     m.items[ci].push(Item::Def(idx));
@@ -559,6 +580,9 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                     );
                 }
                 StmtKind::Check { lhs, op, rhs, note } => {
+                    if eval::has_error(lhs) || eval::has_error(rhs) {
+                        continue;
+                    }
                     m.items[ci].push(Item::Check(m.checks.len()));
                     m.checks.push(CheckEntry {
                         cell: ci,
@@ -572,6 +596,9 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                     });
                 }
                 StmtKind::Show { expr, as_unit } => {
+                    if eval::has_error(expr) {
+                        continue;
+                    }
                     let (unit, unit_error) = match as_unit.as_ref().map(resolve_unit) {
                         Some(Ok(u)) => (Some(u), None),
                         Some(Err(e)) => (None, Some(e)),
@@ -1201,6 +1228,19 @@ impl Analysed<'_, '_> {
     }
 }
 
+/// A sizing result is shown by the side the design must meet: its worst-case minimum.
+fn lead_with_minimum(row: Option<&mut ValueRow>) {
+    let Some(row) = row else { return };
+    if let Shown::Number {
+        value,
+        bounds: Some(b),
+    } = &row.shown
+    {
+        let min = fmt_value(b.min, value.dim, value.absolute, row.unit.as_ref().or(row.preferred.as_ref()));
+        row.text = format!("{min} at worst (nominal {})", row.text);
+    }
+}
+
 /// A value as text without bounds (lists, series).
 fn plain(v: &Value) -> String {
     match v {
@@ -1252,7 +1292,24 @@ fn evaluate(
     interrupt: &Interrupt,
 ) -> Option<Vec<CellReport>> {
     let model = build_model(cells, overrides);
+    // Choices that depend on their arguments' worst-case ranges (`res.led(rule: "worst")`)
+    // take them from a box pass of an earlier round; repeat while they change.
+    let mut known = HashMap::new();
+    for _ in 0..3 {
+        let mut probe = Runner::new(&model, interrupt);
+        probe.reg.known = known.clone();
+        probe.run(Mode::Nominal)?;
+        if !probe.reg.wanted_ranges.get() {
+            break;
+        }
+        probe.run(Mode::Box { seed: None })?;
+        if probe.reg.observed == known {
+            break;
+        }
+        known = std::mem::take(&mut probe.reg.observed);
+    }
     let mut runner = Runner::new(&model, interrupt);
+    runner.reg.known = known;
     let nominal = runner.run(Mode::Nominal)?;
     let reg = runner.reg.clone();
     let nominal_values = std::mem::take(&mut runner.nominal_values);
@@ -1281,7 +1338,9 @@ fn evaluate(
                 Item::Def(d) => {
                     let def = &model.defs[*d];
                     if let Some(e) = an.passes.eval.errors.get(&StmtId::Def(*d)) {
-                        report.diagnostics.push(e.clone().into_diagnostic());
+                        if !def.parse_failed {
+                            report.diagnostics.push(e.clone().into_diagnostic());
+                        }
                         continue;
                     }
                     if let Some(Ok(v)) = &nominal_values[*d] {
@@ -1295,6 +1354,9 @@ fn evaluate(
                             def.given,
                             &mut report.values,
                         );
+                        if def.leads_with_minimum {
+                            lead_with_minimum(report.values.last_mut());
+                        }
                     }
                 }
                 Item::Check(i) => {
@@ -1332,6 +1394,8 @@ fn evaluate(
                             model: &model,
                             cells,
                             interrupt,
+                            choices: &an.reg.choices,
+                            known: &an.reg.known,
                         },
                         &s.stmt,
                         &cells[s.cell].source,
@@ -1345,7 +1409,7 @@ fn evaluate(
     }
     // Warnings of the built-ins, judged at their worst case.
     let probes = an.reg.probes.clone();
-    let mut fired: Vec<(usize, usize, f64, WarningRow)> = Vec::new();
+    let mut fired: Vec<(usize, String, f64, WarningRow)> = Vec::new();
     for p in &probes {
         let Some(ci) = cell_of_stmt(&model, cells, &p.stmt) else {
             continue;
@@ -1400,16 +1464,16 @@ fn evaluate(
                 source: p.source.clone(),
                 text,
             };
-            // Of several rules on one value, the most severe one speaks.
-            match fired
-                .iter_mut()
-                .find(|(c, s, _, _)| *c == ci && *s == p.scalar)
-            {
-                Some(f) if (above && limit > f.2) || (!above && limit < f.2) => {
-                    *f = (ci, p.scalar, limit, row)
-                }
+            // Of several rules on one value (same statement, same label), the most
+            // severe one speaks: over tj_max, not also within 10 K of it.
+            let same = |f: &(usize, String, f64, WarningRow)| {
+                f.0 == ci && f.1 == format!("{}\u{0}{}", p.stmt, p.rule.label)
+            };
+            let id = format!("{}\u{0}{}", p.stmt, p.rule.label);
+            match fired.iter_mut().find(|f| same(f)) {
+                Some(f) if (above && limit > f.2) || (!above && limit < f.2) => *f = (ci, id, limit, row),
                 Some(_) => {}
-                None => fired.push((ci, p.scalar, limit, row)),
+                None => fired.push((ci, id, limit, row)),
             }
         }
     }
@@ -1478,6 +1542,10 @@ pub(crate) struct SweepHost<'a> {
     model: &'a Model,
     cells: &'a [Cell],
     interrupt: &'a Interrupt,
+    /// The parts the worksheet chose: a sweep shows how that design behaves, so it keeps
+    /// them rather than choosing again at every point.
+    choices: &'a HashMap<String, f64>,
+    known: &'a HashMap<String, Vec<Option<Interval>>>,
 }
 
 /// A sweep series' value at one point: nominal, and (min, max) when uncertain.
@@ -1550,6 +1618,8 @@ impl SweepHost<'_> {
         exprs: &[Expr],
     ) -> Option<Result<SweepPoint, EvalError>> {
         let mut r = Runner::new(self.model, self.interrupt);
+        r.reg.choices = self.choices.clone();
+        r.reg.known = self.known.clone();
         r.pins = pins.to_vec();
         r.extra = exprs
             .iter()

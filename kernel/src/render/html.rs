@@ -10,10 +10,13 @@
 //! JupyterLab's own table rules right-align cells and centre tables, so every cell states its
 //! alignment and the table its margin.
 
-use super::{caution, diagnostic_warnings, signed_margin, split_number_unit};
+use super::sweep::{columns, heading, left_out_text, table_rows};
+use super::{
+    caution, diagnostic_warnings, signed_margin, split_number_unit, MAX_CELL_OUTPUT_BYTES,
+};
 use html_escape::encode_text;
 use std::fmt::Write as _;
-use worksheet_lang::results::{CellReport, CheckRow, Shown, ValueRow};
+use worksheet_lang::results::{CellReport, CheckRow, Shown, SweepTable, ValueRow};
 
 const BLOCK: &str = "margin: 2px 0; padding: 0";
 const TABLE: &str = "border-collapse: collapse; margin: 2px 0; border: none";
@@ -40,6 +43,16 @@ const CAUTION: &str = "margin: 6px 0 2px 0; padding: 4px 8px; font-weight: bold;
 border-left: 3px solid #d9443a; border-left: 3px solid var(--jp-error-color1, #d9443a); \
 background: rgba(217, 68, 58, 0.08)";
 const LIST: &str = "margin: 2px 0; padding-left: 18px";
+const HEAD_NUMBER: &str = "text-align: right; padding: 2px 0 2px 12px; white-space: nowrap; \
+font-weight: normal; opacity: 0.75";
+const HEAD_TEXT: &str = "text-align: left; padding: 2px 12px 2px 4px; white-space: nowrap; \
+font-weight: normal; opacity: 0.75";
+const HEAD_RULE: &str = "border-bottom: 1px solid rgba(128, 128, 128, 0.30); \
+border-bottom: 1px solid var(--jp-border-color2, rgba(128, 128, 128, 0.30))";
+const GAP: &str = "text-align: right; padding: 0 0 0 12px; opacity: 0.6";
+const MARK: &str = "text-align: left; padding: 2px 4px; white-space: nowrap; opacity: 0.8";
+const CAPPED: &str = "margin: 6px 0 2px 0; padding: 4px 8px; \
+border-left: 3px solid rgba(128, 128, 128, 0.6); background: rgba(128, 128, 128, 0.10)";
 
 /// Text escaped for element content.
 fn esc(s: &str) -> String {
@@ -126,7 +139,17 @@ fn check_row(out: &mut String, c: &CheckRow) {
     out.push_str("</tr>");
 }
 
+/// The result block. Past the cell's output cap the sweep tables give way to a note first
+/// (see [`MAX_CELL_OUTPUT_BYTES`]); the caller replaces a block still too large.
 pub(super) fn report(r: &CellReport) -> String {
+    let full = report_with(r, true);
+    if full.len() <= MAX_CELL_OUTPUT_BYTES || r.sweeps.is_empty() {
+        return full;
+    }
+    report_with(r, false)
+}
+
+fn report_with(r: &CellReport, sweep_tables: bool) -> String {
     let mut out = format!(r#"<div style="{BLOCK}">"#);
     let inputs: Vec<&ValueRow> = r.values.iter().filter(|v| v.given).collect();
     let derived: Vec<&ValueRow> = r.values.iter().filter(|v| !v.given).collect();
@@ -147,6 +170,11 @@ pub(super) fn report(r: &CellReport) -> String {
         section(&mut out, "Checks", 6);
         r.checks.iter().for_each(|c| check_row(&mut out, c));
         out.push_str("</tbody></table>");
+    }
+    if sweep_tables {
+        r.sweeps.iter().for_each(|s| sweep_table(&mut out, s));
+    } else if !r.sweeps.is_empty() {
+        let _ = write!(out, r#"<div style="{CAPPED}">{}</div>"#, esc(&capped_note("The sweep tables are")));
     }
     let mut warnings: Vec<String> = r
         .warnings
@@ -171,10 +199,74 @@ pub(super) fn report(r: &CellReport) -> String {
     out
 }
 
+/// "The sweep tables are left out: …", for output past the cell's cap.
+pub(super) fn capped_note(what: &str) -> String {
+    format!(
+        "{what} left out: this cell's output would pass its cap of {} MiB. \
+The plain text and the results data hold everything.",
+        MAX_CELL_OUTPUT_BYTES / (1024 * 1024)
+    )
+}
+
+/// A sweep as a table: a heading row, column headings, then the rows (see `sweep::table_rows`),
+/// with a "⋮" row where rows are left out and a closing line saying how many.
+fn sweep_table(out: &mut String, s: &SweepTable) {
+    let rows = table_rows(s);
+    let cols = columns(s, &rows);
+    let marked = rows.rows.iter().any(|r| !r.marks.is_empty());
+    let span = cols.len() + usize::from(marked);
+    let _ = write!(out, r#"<table style="{TABLE}"><tbody>"#);
+    section(out, &format!("Sweep: {}", heading(s)), span);
+    let _ = write!(out, r#"<tr style="{HEAD_RULE}">"#);
+    for c in &cols {
+        let style = if c.is_range { HEAD_TEXT } else { HEAD_NUMBER };
+        let _ = write!(out, r#"<th style="{style}">{}</th>"#, esc(&c.heading));
+    }
+    if marked {
+        let _ = write!(out, r#"<th style="{HEAD_TEXT}"></th>"#);
+    }
+    out.push_str("</tr>");
+    for (k, row) in rows.rows.iter().enumerate() {
+        if k > 0 && row.index > rows.rows[k - 1].index + 1 {
+            let skipped = row.index - rows.rows[k - 1].index - 1;
+            let _ = write!(
+                out,
+                r#"<tr><td style="{GAP}" title="{skipped} rows left out">⋮</td><td colspan="{}"></td></tr>"#,
+                span - 1
+            );
+        }
+        out.push_str("<tr>");
+        for c in &cols {
+            let style = if c.is_range { RANGE } else { NUMBER };
+            let _ = write!(out, r#"<td style="{style}">{}</td>"#, esc(&c.cells[k]));
+        }
+        if marked {
+            let _ = write!(out, r#"<td style="{MARK}">{}</td>"#, esc(&row.marks.join(", ")));
+        }
+        out.push_str("</tr>");
+    }
+    if let Some(t) = left_out_text(&rows) {
+        let _ = write!(
+            out,
+            r#"<tr><td colspan="{span}" style="{NOTE}">{}</td></tr>"#,
+            esc(&t)
+        );
+    }
+    out.push_str("</tbody></table>");
+}
+
 /// The bare-expression values as a small table without section headers.
 pub(super) fn shown(rows: &[ValueRow]) -> String {
     let mut out = format!(r#"<table style="{TABLE}"><tbody>"#);
     rows.iter().for_each(|v| value_row(&mut out, v));
     out.push_str("</tbody></table>");
     out
+}
+
+/// The whole result block's stand-in when it is too large to send.
+pub(super) fn capped_block() -> String {
+    format!(
+        r#"<div style="{CAPPED}">{}</div>"#,
+        esc(&capped_note("The result block is"))
+    )
 }

@@ -5,8 +5,10 @@
 //! `range_text`, a check's `worst_text`/`limit_text`/`margin_text`); only the JSON carries raw SI
 //! numbers.
 
+mod chart;
 mod html;
 mod json;
+mod sweep;
 mod text;
 
 use serde_json::{Map, Value};
@@ -16,6 +18,13 @@ use worksheet_lang::units::Dim;
 
 /// MIME type of the results data, the same for the kernel and `headroom run --json`.
 pub const RESULTS_MIME: &str = "application/vnd.headroom.results+json";
+
+/// Most bytes of rendered output one cell may send: its HTML result block and every chart's
+/// SVG and PNG (as base64) together. Beyond it whole parts give way to a short note, never a
+/// cut in the middle of markup: charts go first, then the HTML sweep tables, then the HTML
+/// block as a whole. The plain text and the results data are always complete. 2 MiB keeps a
+/// notebook with a few dozen sweeps responsive in a browser (common practice, no source).
+pub const MAX_CELL_OUTPUT_BYTES: usize = 2 * 1024 * 1024;
 
 /// Shown wherever a worksheet holds a temperature hot enough to burn.
 pub const HOT_SURFACE_CAUTION: &str = "Caution: surfaces above about 60 °C burn on touch; \
@@ -29,9 +38,35 @@ const HOT_SURFACE_K: f64 = 273.15 + 60.0;
 pub fn bundle(report: &CellReport) -> Map<String, Value> {
     let mut m = Map::new();
     m.insert("text/plain".into(), Value::String(text(report)));
-    m.insert("text/html".into(), Value::String(html::report(report)));
+    m.insert("text/html".into(), Value::String(html_block(report)));
     m.insert(RESULTS_MIME.into(), results_json(&[report]));
     m
+}
+
+/// The HTML result block, or a note in its place when even without its sweep tables it would
+/// pass [`MAX_CELL_OUTPUT_BYTES`].
+fn html_block(report: &CellReport) -> String {
+    let h = html::report(report);
+    if h.len() <= MAX_CELL_OUTPUT_BYTES {
+        h
+    } else {
+        html::capped_block()
+    }
+}
+
+/// One display bundle per sweep chart of the cell, to be sent after its result block: for
+/// each sweep, one chart per group of series that share a dimension (and absoluteness), each
+/// with `image/svg+xml`, an `image/png` fallback (base64) and a one-line `text/plain`. Charts
+/// that would take the cell past [`MAX_CELL_OUTPUT_BYTES`], or that fail to draw, are
+/// replaced by a bundle holding a note (`text/plain` and `text/html`). Empty without sweeps.
+// Called by the kernel and the notebook writer after a cell's result block.
+#[allow(dead_code)]
+pub fn charts(report: &CellReport) -> Vec<Map<String, Value>> {
+    if report.sweeps.is_empty() {
+        return Vec::new();
+    }
+    let used = html_block(report).len();
+    chart::bundles(report, MAX_CELL_OUTPUT_BYTES.saturating_sub(used))
 }
 
 /// The bundle of the bare-expression values of a cell (its `execute_result`), or `None` when
@@ -181,3 +216,6 @@ fn diagnostic_warnings(r: &CellReport) -> Vec<String> {
 
 #[cfg(test)]
 mod tests;
+
+#[cfg(test)]
+mod chart_tests;

@@ -1,8 +1,9 @@
 //! The plain-text result block: aligned columns for consoles and `headroom run`.
 
+use super::sweep::{columns, heading, left_out_text, table_rows};
 use super::{caution, diagnostic_warnings, signed_margin, split_number_unit};
 use unicode_width::UnicodeWidthStr;
-use worksheet_lang::results::{CellReport, CheckRow, Shown, ValueRow};
+use worksheet_lang::results::{CellReport, CheckRow, Shown, SweepTable, ValueRow};
 
 const INDENT: &str = "  ";
 const PASS: &str = "✓ pass";
@@ -16,13 +17,13 @@ enum Align {
 
 /// Rows of cells laid out in columns. `gaps[i]` is written before column `i` (ignored for the
 /// first); a column that is empty in every row is left out with its gap.
-struct Grid {
-    align: &'static [Align],
-    gaps: &'static [&'static str],
+struct Grid<'a> {
+    align: &'a [Align],
+    gaps: &'a [&'a str],
     rows: Vec<Vec<String>>,
 }
 
-impl Grid {
+impl Grid<'_> {
     fn lines(&self) -> Vec<String> {
         let ncol = self.align.len();
         let mut widths = vec![0usize; ncol];
@@ -155,20 +156,8 @@ pub(super) fn report(r: &CellReport) -> String {
     }
 
     if !r.sweeps.is_empty() {
-        let lines: Vec<String> = r
-            .sweeps
-            .iter()
-            .map(|s| {
-                let names: Vec<&str> = s.series.iter().map(|se| se.name.as_str()).collect();
-                format!(
-                    "{INDENT}over {} ({} points): {}",
-                    s.over,
-                    s.points.len(),
-                    names.join(", ")
-                )
-            })
-            .collect();
-        sections.push(format!("Sweeps\n{}", lines.join("\n")));
+        let tables: Vec<String> = r.sweeps.iter().map(sweep_table).collect();
+        sections.push(format!("Sweeps\n{}", tables.join("\n\n")));
     }
 
     let mut warnings: Vec<String> = r
@@ -189,6 +178,52 @@ pub(super) fn report(r: &CellReport) -> String {
         sections.push(c.to_string());
     }
     sections.join("\n\n")
+}
+
+/// A sweep as a table under its heading: the swept value, then each series' nominal value
+/// and worst-case range. A long table keeps its first and last rows and each series' extremes
+/// (marked), with "⋮" where rows are left out and a line saying how many.
+fn sweep_table(s: &SweepTable) -> String {
+    let rows = table_rows(s);
+    let cols = columns(s, &rows);
+    let marked = rows.rows.iter().any(|r| !r.marks.is_empty());
+    let mut align: Vec<Align> = cols
+        .iter()
+        .map(|c| if c.is_range { Align::Left } else { Align::Right })
+        .collect();
+    let mut gaps: Vec<&str> = cols
+        .iter()
+        .map(|c| if c.is_range { "  " } else { "   " })
+        .collect();
+    if marked {
+        align.push(Align::Left);
+        gaps.push("   ");
+    }
+    let width = align.len();
+    let mut grid_rows: Vec<Vec<String>> = vec![cols.iter().map(|c| c.heading.clone()).collect()];
+    for (k, row) in rows.rows.iter().enumerate() {
+        if k > 0 && row.index > rows.rows[k - 1].index + 1 {
+            let mut gap = vec![String::new(); width];
+            gap[0] = "⋮".to_string();
+            grid_rows.push(gap);
+        }
+        let mut cells: Vec<String> = cols.iter().map(|c| c.cells[k].clone()).collect();
+        if marked {
+            cells.push(row.marks.join(", "));
+        }
+        grid_rows.push(cells);
+    }
+    let grid = Grid {
+        align: &align,
+        gaps: &gaps,
+        rows: grid_rows,
+    };
+    let mut lines = vec![format!("{INDENT}{}", one_line(&heading(s)))];
+    lines.extend(grid.lines().into_iter().map(|l| format!("{INDENT}{l}")));
+    if let Some(t) = left_out_text(&rows) {
+        lines.push(format!("{INDENT}{INDENT}({t})"));
+    }
+    lines.join("\n")
 }
 
 /// The bare-expression values: one alone is just "6.00 V" (with " (5.70 V … 6.30 V)" when

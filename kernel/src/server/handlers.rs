@@ -22,6 +22,10 @@ use tokio::sync::{mpsc, Notify};
 use worksheet_lang::{Completeness, Interrupt, Worksheet};
 use zeromq::{RouterSendHalf, SocketSend, ZmqMessage};
 
+/// How long a failed cell's reply waits for requests sent right behind it, which
+/// `stop_on_error` then aborts. Short enough not to be noticed.
+const ABORT_WINDOW: std::time::Duration = std::time::Duration::from_millis(50);
+
 /// What every task of the kernel shares.
 pub(crate) struct Shared {
     pub session: Session,
@@ -302,18 +306,23 @@ impl Shell {
             _ => wire::content(&CommInfoReply::default(), &["comms"]),
         };
         let failed = reply["status"] == "error";
+        if failed && req.msg_type == "execute_request" && stops_on_error(&req) {
+            self.abort_queued().await;
+        }
         self.replier
             .send(&shared, &req, &reply_type(&req.msg_type), &reply)
             .await;
         shared.status(&req, false);
-        if failed && req.msg_type == "execute_request" && stops_on_error(&req) {
-            self.abort_queued();
-        }
     }
 
-    /// Takes every request already waiting; the executes among them will be aborted, the
-    /// rest answered as usual, all in the order they came.
-    fn abort_queued(&mut self) {
+    /// Takes every request waiting behind a failed cell; the executes among them will be
+    /// aborted, the rest answered as usual, all in the order they came.
+    ///
+    /// This happens before the failed cell's reply is sent, so nothing a client sends in
+    /// answer to that reply is aborted. A cell can fail faster than the requests sent right
+    /// behind it ("run all") arrive, so stragglers get a short window first.
+    async fn abort_queued(&mut self) {
+        tokio::time::sleep(ABORT_WINDOW).await;
         while let Ok(r) = self.queue.try_recv() {
             self.aborting.push_back(r);
         }
