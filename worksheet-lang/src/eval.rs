@@ -953,7 +953,7 @@ impl<'a> Evaluator<'a> {
 /// True when two expressions compute the same function of the same inputs: equal apart
 /// from their spans, and free of tolerance sites and calls (each site is an input of its
 /// own, so `(1 V ± 1 %) / (1 V ± 1 %)` is not one).
-fn same_function(a: &Expr, b: &Expr) -> bool {
+pub(crate) fn same_function(a: &Expr, b: &Expr) -> bool {
     match (&a.kind, &b.kind) {
         (ExprKind::Number { value: x, unit: u }, ExprKind::Number { value: y, unit: v }) => {
             x == y && u.as_ref().map(|u| &u.text) == v.as_ref().map(|v| &v.text)
@@ -1095,7 +1095,7 @@ fn unreachable_num(span: &Span) -> R<Num> {
 }
 
 /// True when the expression is a `%` or `ppm` literal (only those make a tolerance relative).
-fn is_relative_literal(e: &Expr) -> bool {
+pub(crate) fn is_relative_literal(e: &Expr) -> bool {
     match &e.kind {
         ExprKind::Number { unit: Some(u), .. } => u.text == "%" || u.text == "ppm",
         ExprKind::Neg(x) => is_relative_literal(x),

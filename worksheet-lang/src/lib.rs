@@ -26,6 +26,7 @@ pub mod worksheet;
 pub use results::CellReport;
 pub use worksheet::{Execution, Interrupt, Worksheet};
 pub mod analysis;
+pub mod compile;
 pub mod eval;
 pub mod query;
 pub mod sweep;

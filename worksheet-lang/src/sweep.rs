@@ -4,7 +4,8 @@
 use crate::ast::{Expr, ExprKind, Stmt, StmtKind, SweepStep, SweepVar};
 use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::eval::EvalError;
-use crate::num::Dual;
+use crate::compile::{Bands, Tape};
+use crate::num::{Dual, Interval};
 use crate::results::{SweepLimit, SweepSeries, SweepTable};
 use crate::value::Num;
 use crate::worksheet::{PointValue, SweepHost};
@@ -238,7 +239,18 @@ pub(crate) fn run(
             }));
         }
     }
+    let mut swept = vec![inner.def];
+    if let Some(o) = &outer {
+        swept.push(o.def);
+    }
+    let fast = match host.compile(&swept, exprs) {
+        Some(tape) => fast_sweep(host, &tape, &inner, outer.as_ref(), &family, exprs, &mut series)?,
+        None => false,
+    };
     for (fi, b) in family.iter().enumerate() {
+        if fast {
+            break;
+        }
         for &x in &inner.points {
             if host.interrupt().is_raised() {
                 return None;
@@ -300,6 +312,167 @@ pub(crate) fn run(
         series,
         limits,
     }))
+}
+
+/// Runs the sweep on its compiled tape. Returns Some(false), leaving `series` empty, when
+/// the general path must take over (a value left its domain somewhere: that path reports
+/// where); None when interrupted.
+fn fast_sweep(
+    host: &SweepHost<'_>,
+    tape: &Tape,
+    inner: &Axis,
+    outer: Option<&Axis>,
+    family: &[Option<f64>],
+    exprs: &[Expr],
+    series: &mut [SweepSeries],
+) -> Option<bool> {
+    // The kinds (dimension, absolute) of the series, and the errors a point can meet,
+    // from one ordinary evaluation at the first point of each curve.
+    let mut kinds = Vec::with_capacity(exprs.len());
+    for b in family {
+        let mut pins = vec![(inner.def, pinned(inner, inner.points[0]))];
+        if let (Some(b), Some(o)) = (b, outer) {
+            pins.push((o.def, pinned(o, *b)));
+        }
+        match host.point(&pins, exprs)? {
+            Ok(p) => {
+                kinds.clear();
+                for v in p.values {
+                    match v {
+                        Some((n, _)) => kinds.push((n.dim, n.abs)),
+                        None => return Some(false),
+                    }
+                }
+            }
+            Err(_) => return Some(false),
+        }
+    }
+    let uncertain = tape.inputs.len() > tape.swept;
+    let mut regs: Vec<f64> = Vec::new();
+    let mut dregs: Vec<Dual> = Vec::new();
+    let mut inputs: Vec<f64> = Vec::with_capacity(tape.inputs.len());
+    let mut scratch: Vec<f64> = Vec::with_capacity(tape.inputs.len());
+    tape.prepare(&mut regs);
+    let n = inner.points.len();
+    let (first, last) = (inner.points[0], inner.points[n - 1]);
+    for (fi, b) in family.iter().enumerate() {
+        let mut at: Vec<f64> = vec![first];
+        if let Some(b) = b {
+            at.push(*b);
+        }
+        let curve = &mut series[fi * exprs.len()..(fi + 1) * exprs.len()];
+        for (s, (dim, abs)) in curve.iter_mut().zip(&kinds) {
+            s.dim = *dim;
+            s.absolute = *abs;
+            s.nominal.reserve(n);
+            if uncertain {
+                s.min = Some(Vec::with_capacity(n));
+                s.max = Some(Vec::with_capacity(n));
+            }
+        }
+        // Signs proven over the whole sweep serve every point; otherwise over chunks.
+        let sweep_box = |lo: f64, hi: f64| -> Vec<Interval> {
+            let mut v = vec![Interval::new(lo, hi)];
+            if let Some(b) = b {
+                v.push(Interval::point(*b));
+            }
+            v
+        };
+        let whole = if uncertain {
+            Bands::prove(tape, &sweep_box(first, last), &mut dregs).filter(Bands::exact)
+        } else {
+            None
+        };
+        const CHUNK: usize = 1 << 14;
+        let mut chunk_bands: Option<Bands<'_>> = None;
+        for (i, &x) in inner.points.iter().enumerate() {
+            if i % 4096 == 0 && host.interrupt().is_raised() {
+                return None;
+            }
+            at[0] = x;
+            inputs.clear();
+            inputs.extend_from_slice(&at);
+            inputs.extend(tape.inputs[tape.swept..].iter().map(|t| t.nominal));
+            tape.run(&inputs, &mut regs);
+            for (s, &r) in curve.iter_mut().zip(&tape.outputs) {
+                let v = regs[r as usize];
+                if !v.is_finite() {
+                    return Some(false);
+                }
+                s.nominal.push(v);
+            }
+            if !uncertain {
+                continue;
+            }
+            if whole.is_none() && i % CHUNK == 0 {
+                let hi = inner.points[(i + CHUNK - 1).min(n - 1)];
+                chunk_bands = Bands::prove(tape, &sweep_box(x, hi), &mut dregs).filter(Bands::exact);
+            }
+            let point_bands;
+            let bands = match whole.as_ref().or(chunk_bands.as_ref()) {
+                Some(b) => b,
+                None => {
+                    point_bands = Bands::prove(tape, &sweep_box(x, x), &mut dregs);
+                    match point_bands.as_ref() {
+                        Some(b) => b,
+                        None => return Some(false),
+                    }
+                }
+            };
+            for (o, s) in curve.iter_mut().enumerate() {
+                let (lo, hi) = match bands.at(o, &at, &mut scratch, &mut regs) {
+                    Some(r) => r,
+                    None => match enclose(tape, o, &at, &mut dregs) {
+                        Some(r) => r,
+                        None => return Some(false),
+                    },
+                };
+                if !lo.is_finite() || !hi.is_finite() {
+                    return Some(false);
+                }
+                let nominal = s.nominal[i];
+                if let (Some(mn), Some(mx)) = (s.min.as_mut(), s.max.as_mut()) {
+                    mn.push(lo.min(nominal));
+                    mx.push(hi.max(nominal));
+                }
+            }
+        }
+        // A series that never moved with the tolerances has no band.
+        for s in curve.iter_mut() {
+            if s.min.as_ref() == Some(&s.nominal) && s.max.as_ref() == Some(&s.nominal) {
+                s.min = None;
+                s.max = None;
+            }
+        }
+    }
+    Some(true)
+}
+
+/// A guaranteed enclosure of output `o` over the tolerance box at one sweep point, where
+/// the monotonicity test fails: interval evaluation on 16 sub-ranges of each undecided
+/// input would be tighter; one interval run is enough to stay safe and is marked nowhere
+/// else, so keep it simple and exact-or-enclosing.
+fn enclose(tape: &Tape, o: usize, at: &[f64], dregs: &mut Vec<Dual>) -> Option<(f64, f64)> {
+    let inputs: Vec<Dual> = tape
+        .inputs
+        .iter()
+        .enumerate()
+        .map(|(i, t)| match at.get(i) {
+            Some(&x) if i < tape.swept => Dual::constant(x),
+            _ => Dual::input(Interval::new(t.lo, t.hi), false),
+        })
+        .collect();
+    tape.prepare(dregs);
+    tape.run(&inputs, dregs);
+    let v = dregs[tape.outputs[o] as usize];
+    v.is_finite().then_some((v.v.lo, v.v.hi))
+}
+
+fn pinned(axis: &Axis, x: f64) -> Num {
+    Num {
+        x: Dual::constant(x),
+        ..axis.current
+    }
 }
 
 fn limit(e: &Expr, c: f64) -> Diagnostic {

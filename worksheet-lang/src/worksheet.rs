@@ -70,10 +70,23 @@ pub(crate) struct Cell {
 #[derive(Debug, Default)]
 pub struct Worksheet {
     pub(crate) cells: Vec<Cell>,
+    options: Options,
     reports: Vec<CellReport>,
     overrides: Vec<Override>,
     runs: u64,
     anonymous: usize,
+}
+
+/// How the worksheet evaluates (defaults are what users get).
+#[derive(Debug, Clone)]
+struct Options {
+    fast_sweeps: bool,
+}
+
+impl Default for Options {
+    fn default() -> Self {
+        Options { fast_sweeps: true }
+    }
 }
 
 #[derive(Debug, Clone)]
@@ -113,7 +126,7 @@ impl Worksheet {
             Some(c) => *c = new_cell,
             None => cells.push(new_cell),
         }
-        let Some(reports) = evaluate(&cells, &self.overrides, interrupt) else {
+        let Some(reports) = evaluate(&cells, &self.overrides, &self.options, interrupt) else {
             let mut report = self
                 .reports
                 .iter()
@@ -232,6 +245,12 @@ impl Worksheet {
             expr,
         });
         Ok(())
+    }
+
+    /// Whether sweeps may run compiled (the default). Off, every point takes the general
+    /// path; tests use this to check one against the other.
+    pub fn set_fast_sweeps(&mut self, on: bool) {
+        self.options.fast_sweeps = on;
     }
 
     /// The reports of every cell as last run, in the order the cells were first run.
@@ -1289,6 +1308,7 @@ fn cell_of_stmt(model: &Model, cells: &[Cell], key: &str) -> Option<usize> {
 fn evaluate(
     cells: &[Cell],
     overrides: &[Override],
+    options: &Options,
     interrupt: &Interrupt,
 ) -> Option<Vec<CellReport>> {
     let model = build_model(cells, overrides);
@@ -1396,6 +1416,8 @@ fn evaluate(
                             interrupt,
                             choices: &an.reg.choices,
                             known: &an.reg.known,
+                            base: Some((&an.reg, &an.nominal, &an.bounds)),
+                            fast: options.fast_sweeps,
                         },
                         &s.stmt,
                         &cells[s.cell].source,
@@ -1546,6 +1568,32 @@ pub(crate) struct SweepHost<'a> {
     /// them rather than choosing again at every point.
     choices: &'a HashMap<String, f64>,
     known: &'a HashMap<String, Vec<Option<Interval>>>,
+    /// The worksheet's own evaluation, for values a sweep does not move.
+    base: Option<(&'a Registry, &'a Pass, &'a [Option<ScalarBounds>])>,
+    /// Whether compiled sweeps may be used (tests compare both paths).
+    fast: bool,
+}
+
+impl crate::compile::TapeSource for SweepHost<'_> {
+    fn definition(&self, name: &str) -> Option<(usize, &Expr)> {
+        let &i = self.model.index.get(name)?;
+        let d = &self.model.defs[i];
+        if d.static_error.is_some() {
+            return None;
+        }
+        Some((i, &d.expr))
+    }
+    fn function(&self, name: &str) -> Option<&Function> {
+        self.model.funcs.get(name)
+    }
+    fn certain(&self, key: &str) -> Option<f64> {
+        let (reg, nominal, bounds) = self.base?;
+        let id = reg.find_scalar(&def_key(key))?;
+        if bounds.get(id).is_some_and(|b| b.is_some()) {
+            return None;
+        }
+        nominal.scalars.get(id).copied().flatten().map(|n| n.x.value())
+    }
 }
 
 /// A sweep series' value at one point: nominal, and (min, max) when uncertain.
@@ -1558,6 +1606,14 @@ pub(crate) struct SweepPoint {
 }
 
 impl SweepHost<'_> {
+    /// The sweep compiled to a tape, when its expressions allow it.
+    pub fn compile(&self, swept: &[usize], exprs: &[Expr]) -> Option<crate::compile::Tape> {
+        if !self.fast {
+            return None;
+        }
+        crate::compile::compile(self, swept, exprs)
+    }
+
     pub fn interrupt(&self) -> &Interrupt {
         self.interrupt
     }

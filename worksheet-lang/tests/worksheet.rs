@@ -386,3 +386,72 @@ fn a_swept_given_keeps_the_other_tolerances() {
     assert_eq!(s.limits.len(), 1);
     assert!(close(s.limits[0].limit, 6.0));
 }
+
+/// The compiled sweep path against the general one (which re-runs the full analysis at
+/// every point): both must give the same curves and bands.
+#[test]
+fn compiled_sweeps_agree_with_the_general_path() {
+    let cases = [
+        // Monotone chain with tolerances on several inputs.
+        "given vin = 10.8 V .. 13.2 V\ngiven i = 100 mA\nr = 10 ohm ± 5 %\n\
+         drop = i * r\nloss = (vin - 5 V - drop) * i + vin * 2 mA\n\
+         θ = 6 K/W + (22 K/W || 60 K/W ± 10 %)\ntj = 50 °C + loss * θ\ncheck tj <= 125 °C\n\
+         sweep i over 10 mA .. 300 mA steps 40: tj, loss\n",
+        // A peak inside the tolerance box (not monotone in r): bands still enclose.
+        "given i = 0.2 A\ngiven v = 12 V ± 1 %\nr = 5 ohm .. 50 ohm\np = (v - r * i) * i\n\
+         sweep i over 0.05 A .. 0.5 A steps 25: p\n",
+        // User functions, math, a family of curves.
+        "f(x, y) = sqrt(x * y) + max(x, y)\ngiven a = 2 V ± 10 %\ngiven b = 3 V\n\
+         z = f(a, b) * exp(-(b / 10 V))\n\
+         sweep a over 1 V .. 4 V steps 7, b over 1 V .. 3 V steps 3: z\n",
+    ];
+    for src in cases {
+        let mut fast = Worksheet::new();
+        let mut slow = Worksheet::new();
+        slow.set_fast_sweeps(false);
+        let f = fast.execute(Some("c"), src, &Interrupt::new()).report;
+        let s = slow.execute(Some("c"), src, &Interrupt::new()).report;
+        assert!(!f.has_errors() && !s.has_errors(), "{src}: {:?} {:?}", f.diagnostics, s.diagnostics);
+        assert_eq!(f.sweeps.len(), 1);
+        let (ft, st) = (&f.sweeps[0], &s.sweeps[0]);
+        assert_eq!(ft.points, st.points, "{src}");
+        assert_eq!(ft.series.len(), st.series.len());
+        for (a, b) in ft.series.iter().zip(&st.series) {
+            assert_eq!((a.dim, a.absolute), (b.dim, b.absolute), "{src}");
+            for (x, y) in a.nominal.iter().zip(&b.nominal) {
+                assert!(close(*x, *y), "{src}: nominal {x} vs {y}");
+            }
+            match (&a.min, &b.min, &a.max, &b.max) {
+                (Some(amin), Some(bmin), Some(amax), Some(bmax)) => {
+                    for k in 0..amin.len() {
+                        // Both enclose; for monotone cases both are exact and equal.
+                        assert!(amin[k] <= a.nominal[k] + 1e-12 && amax[k] >= a.nominal[k] - 1e-12);
+                        if src.contains("steps 40") || src.contains("steps 7") {
+                            assert!(close(amin[k], bmin[k]) && close(amax[k], bmax[k]), "{src}: {k}: {} {} vs {} {}", amin[k], amax[k], bmin[k], bmax[k]);
+                        }
+                    }
+                }
+                (None, None, None, None) => {}
+                other => panic!("{src}: band present in one path only: {other:?}"),
+            }
+        }
+    }
+}
+
+/// A long sweep of plain arithmetic stays well inside a generous bound (the benchmark
+/// measures the speed; this only guards against the general path being taken).
+#[test]
+fn a_million_point_sweep_finishes() {
+    let src = "given x = 1 V\ny1 = x * 2 + 1 V\ny2 = y1 * y1 / 1 V\ny3 = y2 - x\n\
+               sweep x over 0 V .. 1 V steps 1000000: y3\n";
+    let start = std::time::Instant::now();
+    let r = run(src);
+    let t = start.elapsed();
+    println!("10^6-point sweep: {t:?}");
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    assert!(t.as_secs() < 60, "took {t:?}");
+    assert_eq!(r.sweeps[0].points.len(), 1000);
+    // y3 = (2x + 1)² − x at x = 1 V: 9 − 1 = 8.
+    let last = *r.sweeps[0].series[0].nominal.last().expect("points");
+    assert!(close(last, 8.0));
+}
