@@ -42,6 +42,21 @@ enum Command {
 fn main() -> ExitCode {
     init_logging();
     let cli = Cli::parse();
+    // The command runs on a thread with the evaluator's roomy stack (see server.rs).
+    let worker = std::thread::Builder::new()
+        .name("headroom".into())
+        .stack_size(server::EVAL_STACK_BYTES)
+        .spawn(move || dispatch(cli));
+    match worker.map(|h| h.join()) {
+        Ok(Ok(code)) => code,
+        _ => {
+            eprintln!("headroom: internal error: the command thread failed");
+            ExitCode::from(3)
+        }
+    }
+}
+
+fn dispatch(cli: Cli) -> ExitCode {
     let result = match cli.command {
         Command::Kernel { connection_file } => server::serve(&connection_file).map(|()| 0),
         Command::Install(args) => install::install(&args).map(|()| 0),

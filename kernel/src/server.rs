@@ -31,10 +31,16 @@ use zeromq::{Socket, SocketRecv, SocketSend};
 /// kernel exits.
 const SHUTDOWN_GRACE: Duration = Duration::from_millis(100);
 
+/// Stack of the threads that evaluate worksheets.
+pub const EVAL_STACK_BYTES: usize = 64 * 1024 * 1024;
+
 pub fn serve(connection_file: &Path) -> anyhow::Result<()> {
     let conn = Connection::load(connection_file)?;
     let runtime = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(2)
+        // Evaluation recurses over nested expressions and calls (both capped by the
+        // language); a roomy stack keeps the deepest allowed worksheet far from the guard.
+        .thread_stack_size(EVAL_STACK_BYTES)
         .enable_all()
         .build()?;
     let result = runtime.block_on(run(&conn));

@@ -103,7 +103,7 @@ fn scratch(nb: &Value, name: &str) -> (tempfile::TempDir, PathBuf) {
 }
 
 /// The results data of a code cell's result block.
-fn block<'a>(nb: &'a Value, cell: usize) -> &'a Value {
+fn block(nb: &Value, cell: usize) -> &Value {
     nb["cells"][cell]["outputs"]
         .as_array()
         .and_then(|o| o.iter().find(|o| o["output_type"] == "display_data"))
@@ -111,7 +111,7 @@ fn block<'a>(nb: &'a Value, cell: usize) -> &'a Value {
         .unwrap_or_else(|| panic!("no result block in cell {cell}: {}", nb["cells"][cell]))
 }
 
-fn si<'a>(data: &'a Value, name: &str) -> f64 {
+fn si(data: &Value, name: &str) -> f64 {
     data["values"]
         .as_array()
         .and_then(|vs| vs.iter().find(|v| v["name"] == name))
@@ -177,7 +177,9 @@ fn run_stores_the_outputs_the_kernel_would_send() {
     assert!(close(si(block(&out, 2), "loss"), 0.7), "{}", block(&out, 2));
     assert_eq!(block(&out, 2)["checks"][0]["passed"], true);
     // Execution counts number the cells run; a blank cell is not run.
-    let counts: Vec<&Value> = (1..5).map(|i| &out["cells"][i]["execution_count"]).collect();
+    let counts: Vec<&Value> = (1..5)
+        .map(|i| &out["cells"][i]["execution_count"])
+        .collect();
     assert_eq!(counts, [&json!(1), &json!(2), &json!(null), &json!(3)]);
     assert_eq!(out["cells"][3]["outputs"], json!([]));
     // A bare expression: its value is the execute_result, 700 mW, after nothing else.
@@ -205,8 +207,10 @@ fn unknown_metadata_attachments_and_markdown_survive() {
     cells[0]["attachments"] = json!({"board.png": {"image/png": "iVBORw0KGgoAAAANSUhEUg=="}});
     cells[0]["metadata"] = json!({"tags": ["keep"], "editable": false});
     cells[1]["metadata"] = json!({"collapsed": true, "custom": {"z": 1, "a": [1.5, null]}});
-    cells.push(json!({"cell_type": "raw", "id": "raw1", "metadata": {"format": "text/x-rst"},
-        "source": ["raw text\n", "kept"]}));
+    cells.push(
+        json!({"cell_type": "raw", "id": "raw1", "metadata": {"format": "text/x-rst"},
+        "source": ["raw text\n", "kept"]}),
+    );
     let (dir, path) = scratch(&nb, "rail.ipynb");
     let r = headroom(&["run", p(&path)]);
     assert_eq!(r.code, 0, "{}", r.all());
@@ -225,7 +229,10 @@ fn unknown_metadata_attachments_and_markdown_survive() {
     }
     // Key order of the unknown metadata is kept too (the file is diffable).
     let text = std::fs::read_to_string(dir.path().join("rail.run.ipynb")).expect("read");
-    let (z, a) = (text.find("\"z\": 1").expect("z"), text.find("\"a\": [").expect("a"));
+    let (z, a) = (
+        text.find("\"z\": 1").expect("z"),
+        text.find("\"a\": [").expect("a"),
+    );
     assert!(z < a, "the order of `custom` changed");
 }
 
@@ -245,14 +252,21 @@ fn a_set_that_flips_a_check_fails_says_so_and_rewrites_the_given() {
         nb["cells"][1]["source"][1],
         "given iload = 200mA   \"logic board\"   # measured on the bench\n"
     );
-    assert_eq!(nb["metadata"]["headroom"]["overrides"], json!({"iload": "200mA"}));
+    assert_eq!(
+        nb["metadata"]["headroom"]["overrides"],
+        json!({"iload": "200mA"})
+    );
     assert!(close(si(block(&nb, 2), "loss"), 1.4));
     assert_eq!(block(&nb, 2)["checks"][0]["passed"], false);
     // The source now carries the value: verify needs no flags to reproduce the run, and
     // reports the failing check.
     let r = headroom(&["verify", p(&out)]);
     assert_eq!(r.code, 1, "{}", r.all());
-    assert!(r.stdout.contains("check `loss <= 1 W` fails"), "{}", r.stdout);
+    assert!(
+        r.stdout.contains("check `loss <= 1 W` fails"),
+        "{}",
+        r.stdout
+    );
     assert!(!r.stdout.contains("does not reproduce"), "{}", r.stdout);
 }
 
@@ -264,7 +278,11 @@ fn a_set_of_a_derived_value_or_the_wrong_kind_is_refused_and_nothing_written() {
     assert!(r.stderr.contains("derived value"), "{}", r.stderr);
     let r = headroom(&["run", p(&path), "--set", "iload=3 V"]);
     assert_eq!(r.code, 2, "{}", r.all());
-    assert!(r.stderr.contains("a current") && r.stderr.contains("a voltage"), "{}", r.stderr);
+    assert!(
+        r.stderr.contains("a current") && r.stderr.contains("a voltage"),
+        "{}",
+        r.stderr
+    );
     assert!(!dir.path().join("rail.run.ipynb").exists());
 }
 
@@ -290,7 +308,11 @@ fn a_notebook_of_another_kernel_is_refused() {
     let (dir, path) = scratch(&nb, "py.ipynb");
     let r = headroom(&["run", p(&path)]);
     assert_eq!(r.code, 2, "{}", r.all());
-    assert!(r.stderr.contains("Python 3") && r.stderr.contains("not for Headroom"), "{}", r.stderr);
+    assert!(
+        r.stderr.contains("Python 3") && r.stderr.contains("not for Headroom"),
+        "{}",
+        r.stderr
+    );
     assert!(!dir.path().join("py.run.ipynb").exists());
 }
 
@@ -304,37 +326,42 @@ fn json_prints_the_results_data() {
     assert!(close(si(&data, "iload"), 0.1));
 }
 
+#[cfg(unix)]
 #[test]
 fn atomic_write_leaves_no_partial_file_in_a_read_only_directory() {
+    use std::os::unix::fs::PermissionsExt as _;
+    let mode = |m: u32| std::fs::Permissions::from_mode(m);
     let (dir, path) = scratch(&rail(), "rail.ipynb");
     let ro = dir.path().join("archive");
     std::fs::create_dir(&ro).expect("mkdir");
-    let out = ro.join("rail.ipynb");
-    let mut perms = std::fs::metadata(&ro).expect("meta").permissions();
-    perms.set_readonly(true);
-    std::fs::set_permissions(&ro, perms.clone()).expect("chmod");
-    // Root ignores permission bits; then a path under a regular file stands in for a
-    // directory that cannot be written.
-    let enforced = std::fs::write(ro.join("probe"), b"x").is_err();
+    std::fs::set_permissions(&ro, mode(0o555)).expect("chmod");
+    // Root is not stopped by permission bits. A directory path that runs through a regular
+    // file cannot be written by anyone, so as root the test writes there instead.
+    let probe = ro.join("probe");
+    let enforced = std::fs::write(&probe, b"x").is_err();
+    let _ = std::fs::remove_file(&probe);
     let target = if enforced {
-        out.clone()
+        ro.join("rail.ipynb")
     } else {
         dir.path().join("rail.ipynb").join("out.ipynb")
     };
     let r = headroom(&["run", p(&path), "-o", p(&target)]);
-    perms.set_readonly(false);
-    std::fs::set_permissions(&ro, perms).expect("chmod back");
+    std::fs::set_permissions(&ro, mode(0o755)).expect("chmod back");
     assert_eq!(r.code, 2, "{}", r.all());
     assert!(r.stderr.contains("cannot write"), "{}", r.stderr);
     assert!(r.stderr.contains("nothing was written"), "{}", r.stderr);
     assert!(!target.exists());
-    let left: Vec<_> = std::fs::read_dir(&ro)
-        .expect("list")
-        .filter_map(Result::ok)
-        .map(|e| e.file_name())
-        .filter(|n| n != "probe")
-        .collect();
-    assert!(left.is_empty(), "left behind: {left:?}");
+    let listing = |d: &Path| -> Vec<String> {
+        let mut names: Vec<String> = std::fs::read_dir(d)
+            .expect("list")
+            .filter_map(Result::ok)
+            .map(|e| e.file_name().to_string_lossy().into_owned())
+            .collect();
+        names.sort();
+        names
+    };
+    assert!(listing(&ro).is_empty(), "left behind: {:?}", listing(&ro));
+    assert_eq!(listing(dir.path()), ["archive", "rail.ipynb"]);
 }
 
 #[test]
@@ -378,7 +405,11 @@ fn seal_records_the_review_with_digests_anyone_can_recompute() {
             Value::Array(l) => l.iter().filter_map(Value::as_str).collect(),
             _ => String::new(),
         };
-        canonical.push_str(&format!("{}\n{}\n{src}\n", cell["cell_type"].as_str().expect("t"), src.len()));
+        canonical.push_str(&format!(
+            "{}\n{}\n{src}\n",
+            cell["cell_type"].as_str().expect("t"),
+            src.len()
+        ));
     }
     assert_eq!(seal["sources_sha256"], sha256(canonical.as_bytes()));
     assert_eq!(seal["cells"].as_array().map(Vec::len), Some(3));
@@ -426,7 +457,8 @@ fn verify_fails_on_an_edited_code_cell() {
     assert_eq!(r.code, 1, "{}", r.all());
     assert!(r.stdout.contains("DOES NOT HOLD"), "{}", r.stdout);
     assert!(
-        r.stdout.contains("sources changed since the seal by R. Checker"),
+        r.stdout
+            .contains("sources changed since the seal by R. Checker"),
         "{}",
         r.stdout
     );
@@ -454,7 +486,11 @@ fn verify_fails_on_an_edited_stored_result_and_shows_both() {
     write_json(&path, &nb);
     let r = headroom(&["verify", p(&path)]);
     assert_eq!(r.code, 1, "{}", r.all());
-    assert!(r.stdout.contains("`loss` does not reproduce"), "{}", r.stdout);
+    assert!(
+        r.stdout.contains("`loss` does not reproduce"),
+        "{}",
+        r.stdout
+    );
     // Stored 0.5 W as edited; recomputed (12 − 5) V · 0.1 A = 0.7 W.
     assert!(r.stdout.contains("si 0.5 W"), "{}", r.stdout);
     assert!(r.stdout.contains("si 0.7"), "{}", r.stdout);
@@ -468,7 +504,11 @@ fn verify_fails_on_a_seal_digest_that_does_not_match() {
     write_json(&path, &nb);
     let r = headroom(&["verify", p(&path)]);
     assert_eq!(r.code, 1, "{}", r.all());
-    assert!(r.stdout.contains("the results digest does not match"), "{}", r.stdout);
+    assert!(
+        r.stdout.contains("the results digest does not match"),
+        "{}",
+        r.stdout
+    );
     // The results themselves still reproduce; only the seal is wrong.
     assert!(!r.stdout.contains("does not reproduce"), "{}", r.stdout);
 }
@@ -482,7 +522,11 @@ fn verify_reports_a_check_that_flipped() {
     write_json(&path, &nb);
     let r = headroom(&["verify", p(&path)]);
     assert_eq!(r.code, 1, "{}", r.all());
-    assert!(r.stdout.contains("check `loss <= 1 W` flipped"), "{}", r.stdout);
+    assert!(
+        r.stdout.contains("check `loss <= 1 W` flipped"),
+        "{}",
+        r.stdout
+    );
 }
 
 #[test]
@@ -502,7 +546,8 @@ fn verify_passes_on_the_stored_example_notebooks() {
     let r = headroom(&args);
     assert_eq!(r.code, 0, "{}", r.all());
     assert!(
-        r.stdout.contains(&format!("{n} of {n} notebooks hold", n = paths.len())),
+        r.stdout
+            .contains(&format!("{n} of {n} notebooks hold", n = paths.len())),
         "{}",
         r.stdout
     );
@@ -515,5 +560,9 @@ fn verify_of_several_notebooks_fails_when_one_fails_and_names_it() {
     let r = headroom(&["verify", p(&good), p(&bad)]);
     assert_eq!(r.code, 1, "{}", r.all());
     assert!(r.stdout.contains("1 of 2 notebooks hold"), "{}", r.stdout);
-    assert!(r.stdout.contains("never-run.ipynb: DOES NOT HOLD"), "{}", r.stdout);
+    assert!(
+        r.stdout.contains("never-run.ipynb: DOES NOT HOLD"),
+        "{}",
+        r.stdout
+    );
 }

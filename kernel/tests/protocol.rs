@@ -903,7 +903,14 @@ async fn interrupt_stops_a_long_run_and_control_stays_responsive() {
             json!({"code": LONG_CELL, "silent": false, "store_history": true}),
         )
         .await;
-    tokio::time::sleep(Duration::from_millis(300)).await;
+    // Once execute_input is out the cell is running; give it a moment to get deep in.
+    loop {
+        let m = c.iopub_msg(REPLY_TIMEOUT).await.expect("execute_input");
+        if m.parent_id() == id && m.msg_type() == "execute_input" {
+            break;
+        }
+    }
+    tokio::time::sleep(Duration::from_millis(200)).await;
     // Control answers while the cell runs.
     let k = c
         .send(Channel::Control, "kernel_info_request", json!({}))
@@ -995,5 +1002,35 @@ async fn a_bare_expression_is_the_execute_result() {
     let text = result.content["data"]["text/plain"].as_str().unwrap_or("");
     assert!(text.contains('6') && text.contains('V'), "{text}");
     assert!(result.content["metadata"].is_object());
+    shut_down(&mut kernel, &mut c).await;
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn a_sweep_adds_its_chart_as_a_display_of_its_own() {
+    let mut kernel = Kernel::start(Transport::Tcp, "k");
+    let mut c = kernel.connect().await;
+    let (r, out) = c
+        .execute_meta(
+            "given i = 100 mA\nsweep i over 10 mA .. 100 mA steps 5: i * 10 Ω",
+            json!({}),
+            json!({"cellId": "s1"}),
+        )
+        .await;
+    assert_eq!(r.content["status"], "ok", "{:?}", r.content);
+    let displays: Vec<&Msg> = out
+        .iter()
+        .filter(|m| m.msg_type() == "display_data")
+        .collect();
+    assert_eq!(
+        displays[0].content["transient"]["display_id"],
+        "headroom-s1"
+    );
+    let chart = displays
+        .iter()
+        .find(|m| m.content["transient"]["display_id"] == "headroom-s1-chart-0")
+        .expect("a chart display");
+    // Untrusted notebooks do not show SVG, so a PNG comes along.
+    assert!(chart.content["data"].get("image/svg+xml").is_some());
+    assert!(chart.content["data"].get("image/png").is_some());
     shut_down(&mut kernel, &mut c).await;
 }

@@ -100,7 +100,26 @@ function prepareExample() {
   }
   fs.writeFileSync(file, JSON.stringify(nb, null, 1));
   const codeCells = nb.cells.filter((c) => c.cell_type === 'code').length;
-  return { name: chosen, codeCells };
+  return { name: chosen, codeCells, edit: givenToEdit(nb) };
+}
+
+// The first `given NAME = NUMBER UNIT` (a single value, optionally with a ± tolerance) of the
+// notebook, and the same cell with that number made 25 % larger.
+function givenToEdit(nb) {
+  const line = /^(\s*given\s+[^\s=\[]+\s*(?:\[[^\]]*\])?\s*=\s*)(\d+(?:\.\d+)?)(\s*[^\s.±"]+\s*(?:±[^"]*)?(?:"[^"]*")?\s*)$/;
+  for (let i = 0; i < nb.cells.length; i += 1) {
+    const c = nb.cells[i];
+    if (c.cell_type !== 'code') continue;
+    const lines = sourceOf(c).split('\n');
+    for (let j = 0; j < lines.length; j += 1) {
+      const m = lines[j].match(line);
+      if (!m) continue;
+      const edited = [...lines];
+      edited[j] = `${m[1]}${Number((Number(m[2]) * 1.25).toPrecision(6))}${m[3]}`;
+      return { cell: i, before: lines[j].trim(), after: edited[j].trim(), source: edited.join('\n') };
+    }
+  }
+  return null;
 }
 
 // ---------------------------------------------------------------- page helpers
@@ -180,12 +199,15 @@ async function runOnly(page, c) {
   await page.keyboard.press('Control+Enter');
 }
 
-async function addCellBelow(page, nb) {
+// Appends a cell at the end of the notebook and returns a locator fixed to its position.
+async function appendCell(page, nb) {
+  const cells = nb.locator('.jp-Notebook .jp-Cell');
+  const n = await cells.count();
+  await cells.nth(n - 1).locator('.jp-InputPrompt').click();
   await page.keyboard.press('Escape');
   await page.keyboard.press('b');
-  const active = nb.locator('.jp-Cell.jp-mod-active');
-  await active.waitFor();
-  return active;
+  await cells.nth(n).waitFor();
+  return cells.nth(n);
 }
 
 async function executionCount(c) {
@@ -194,8 +216,10 @@ async function executionCount(c) {
   return m ? Number(m[1]) : null;
 }
 
+// The output as read on the page, table cells and line breaks folded to single spaces.
 async function outputText(c) {
-  return (await c.locator('.jp-OutputArea').innerText().catch(() => '')) || '';
+  const t = (await c.locator('.jp-OutputArea').innerText().catch(() => '')) || '';
+  return t.replace(/\s+/g, ' ').trim();
 }
 
 // Polls until the cell's output satisfies `ok`; returns the last text seen.
@@ -264,9 +288,70 @@ async function stepRunAll(page, example) {
     hasText: 'error',
   }).count();
   check('1 the example runs without errors', errors === 0, `${errors} error outputs`);
-  await page.locator('.jp-NotebookPanel .jp-WindowedPanel-outer, .jp-NotebookPanel .jp-Notebook').first()
-    .evaluate((el) => el.scrollTo(0, 0)).catch(() => {});
   await screenshot(page, 'example-run-all');
+  await worksheetView(page);
+}
+
+// In the example: a `given` made 25 % larger and only its cell re-run; some other cell's
+// block changes while its execution count stays.
+async function stepExampleGiven(page, example) {
+  if (!example.edit) throw new Error(`no single-valued \`given\` in ${example.name} to edit`);
+  const nb = notebook(page);
+  const cells = nb.locator('.jp-Notebook .jp-Cell');
+  const n = await cells.count();
+  const before = [];
+  for (let i = 0; i < n; i += 1) {
+    before.push({ text: await outputText(cells.nth(i)), count: await executionCount(cells.nth(i)) });
+  }
+  const c = cells.nth(example.edit.cell);
+  console.log(`        editing \`${example.edit.before}\` to \`${example.edit.after}\``);
+  await setSource(page, c, example.edit.source);
+  await runOnly(page, c);
+  const deadline = Date.now() + CELL_TIMEOUT;
+  let changed = [];
+  while (Date.now() < deadline) {
+    changed = [];
+    for (let i = 0; i < n; i += 1) {
+      if (i === example.edit.cell || before[i].count === null) continue;
+      const text = await outputText(cells.nth(i));
+      if (text !== before[i].text) changed.push({ i, same: (await executionCount(cells.nth(i))) === before[i].count });
+    }
+    if (changed.length) break;
+    await page.waitForTimeout(250);
+  }
+  check(
+    `2 example: after re-running only the edited \`given\`, a dependent block elsewhere updates`,
+    changed.length >= 1,
+    'no other block changed: the kernel\'s live updates (update_display_data) did not arrive',
+  );
+  check(
+    '2 example: the updated blocks were not re-run (their execution counts are unchanged)',
+    changed.length >= 1 && changed.every((x) => x.same),
+    JSON.stringify(changed),
+  );
+  await screenshot(page, 'example-given-edited');
+}
+
+// A clean view of the example's worksheet for the README: no side bar, the first block with
+// checks at the top.
+async function worksheetView(page) {
+  const nb = notebook(page);
+  await page.keyboard.press('Escape');
+  await page.keyboard.press('Control+b');
+  await page.waitForTimeout(500);
+  const cells = nb.locator('.jp-Notebook .jp-Cell');
+  const n = await cells.count();
+  let target = 0;
+  for (let i = 0; i < n; i += 1) {
+    if ((await outputText(cells.nth(i))).includes('Checks')) {
+      target = i > 0 ? i - 1 : i;
+      break;
+    }
+  }
+  await cells.nth(target).evaluate((el) => el.scrollIntoView({ block: 'start' }));
+  await page.waitForTimeout(300);
+  await screenshot(page, 'worksheet');
+  await page.keyboard.press('Control+b');
 }
 
 // A new notebook from the launcher's Headroom card; returns its panel.
@@ -288,7 +373,7 @@ async function stepLiveUpdate(page, state) {
   // The dependent cell stands above the `given` it reads.
   const dependent = cell(nb, 0);
   await setSource(page, dependent, 'p = iload * 5 V\ncheck p <= 1.2 W "within the budget"');
-  const givenCell = await addCellBelow(page, nb);
+  const givenCell = await appendCell(page, nb);
   await setSource(page, givenCell, 'given iload = 180 mA ± 20 %');
   await runOnly(page, givenCell);
   await waitForOutput(page, givenCell, (t) => t.includes('iload'));
@@ -329,13 +414,14 @@ async function stepLiveUpdate(page, state) {
 }
 
 async function stepUnitError(page, nb) {
-  const c = await addCellBelow(page, nb);
+  const c = await appendCell(page, nb);
   // A typo a person makes: mV where mA was meant, so the product is not a power.
   const line = 'pr [W] = 5 V * 20 mV';
   const span = '5 V * 20 mV';
   await setSource(page, c, line);
   await runOnly(page, c);
   const text = await waitForOutput(page, c, (t) => t.includes('DimensionMismatch'));
+  const raw = (await c.locator('.jp-OutputArea').innerText().catch(() => '')) || '';
   check('3 the unit mistake is reported as DimensionMismatch', text.includes('DimensionMismatch'), JSON.stringify(text));
   check(
     '3 the message names the declared unit and its dimension',
@@ -343,7 +429,7 @@ async function stepUnitError(page, nb) {
     JSON.stringify(text),
   );
   // The caret excerpt: the source line, and under it one caret per character of the span.
-  const lines = text.split('\n');
+  const lines = raw.split('\n');
   const at = lines.findIndex((l) => l.includes(line));
   let caretOk = false;
   let caretDetail = 'no source line in the excerpt';
@@ -361,7 +447,7 @@ async function stepUnitError(page, nb) {
 }
 
 async function stepCompleteInspect(page, nb) {
-  const c = await addCellBelow(page, nb);
+  const c = await appendCell(page, nb);
   await setSource(page, c, 'u = reg.');
   await page.keyboard.press('Tab');
   const completer = page.locator('.jp-Completer');
@@ -395,26 +481,21 @@ async function stepCompleteInspect(page, nb) {
 // ---------------------------------------------------------------- main
 
 async function main() {
-  const watchdog = setTimeout(() => {
-    check('the whole browser run finished in time', false, `over ${WHOLE_RUN / 1000} s`);
-    process.exitCode = 1;
-    summary();
-    process.exit(1);
-  }, WHOLE_RUN);
-
   const example = prepareExample();
   console.log(`example notebook: ${example.name} (${example.codeCells} code cells)`);
-  const browser = await chromium.launch({
+  // A browser server, so that its pid is known: the runner kills its process group if this
+  // script is itself killed. Playwright gives every launch a fresh, empty profile
+  // (--user-data-dir) of its own.
+  const server = await chromium.launchServer({
     executablePath: env.CHROMIUM || '/usr/bin/chromium',
     headless: true,
-    // Playwright gives every launch a fresh, empty profile (--user-data-dir) of its own.
     args: [
       '--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run',
       '--disable-background-networking', '--disable-component-update', '--disable-sync',
     ],
   });
-  const pid = browser.process() && browser.process().pid;
-  if (pid && env.BROWSER_PID_FILE) fs.writeFileSync(env.BROWSER_PID_FILE, String(pid));
+  if (env.BROWSER_PID_FILE) fs.writeFileSync(env.BROWSER_PID_FILE, String(server.process().pid));
+  const browser = await chromium.connect(server.wsEndpoint());
   // The scratch notebook that step 2 opens and steps 3 and 4 go on in.
   const state = { nb: null };
   try {
@@ -423,6 +504,7 @@ async function main() {
     page.setDefaultTimeout(CELL_TIMEOUT);
     const steps = [
       ['1 run all in the example notebook', () => stepRunAll(page, example)],
+      ['2 live update in the example', () => stepExampleGiven(page, example)],
       ['2 live update of a block above', () => stepLiveUpdate(page, state)],
       ['3 unit error with its caret', () => stepUnitError(page, state.nb)],
       ['4 completion and inspection', () => stepCompleteInspect(page, state.nb)],
@@ -441,12 +523,19 @@ async function main() {
     }
   } finally {
     await browser.close().catch(() => {});
-    clearTimeout(watchdog);
+    await server.close().catch(() => {});
   }
 }
+
+const watchdog = setTimeout(() => {
+  check('the whole browser run finished in time', false, `over ${WHOLE_RUN / 1000} s`);
+  summary();
+  process.exit(1);
+}, WHOLE_RUN);
 
 main()
   .catch((e) => check('the browser test started', false, short(e)))
   .finally(() => {
+    clearTimeout(watchdog);
     process.exitCode = summary() === 0 ? 0 : 1;
   });

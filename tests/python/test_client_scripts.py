@@ -117,7 +117,12 @@ def test_interrupt_stops_a_long_sweep_and_the_kernel_lives_on(kernel):
     kc.get_shell_msg(timeout=TIMEOUT)
     long_cell = "given a = 1 V ± 1 %\nsweep a over 1 V .. 2 V steps 10000000: a * a * a"
     msg_id = kc.execute(long_cell)
-    time.sleep(0.3)
+    # Once execute_input is out the cell is running; give it a moment to get deep in.
+    while True:
+        msg = kc.get_iopub_msg(timeout=TIMEOUT)
+        if msg["parent_header"].get("msg_id") == msg_id and msg["msg_type"] == "execute_input":
+            break
+    time.sleep(0.2)
     started = time.monotonic()
     km.interrupt_kernel()  # interrupt_mode "message": an interrupt_request on control
     reply = kc.get_shell_msg(timeout=TIMEOUT)

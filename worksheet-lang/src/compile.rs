@@ -400,7 +400,11 @@ impl Compiler<'_> {
             Some(&i) => i,
             None => {
                 let i = self.inputs.len() as u32;
-                self.inputs.push(TapeInput { nominal: 0.0, lo, hi });
+                self.inputs.push(TapeInput {
+                    nominal: 0.0,
+                    lo,
+                    hi,
+                });
                 self.sites.insert(key, i);
                 i
             }
@@ -410,7 +414,11 @@ impl Compiler<'_> {
 
     /// A tolerance's size: a known number; a lone °C/°F literal is a difference here.
     fn spread(&mut self, e: &Expr) -> Option<f64> {
-        if let ExprKind::Number { value, unit: Some(u) } = &e.kind {
+        if let ExprKind::Number {
+            value,
+            unit: Some(u),
+        } = &e.kind
+        {
             let unit = units::parse_unit(&u.text).ok()?;
             return Some(unit.to_si(*value, false));
         }
@@ -456,7 +464,9 @@ impl Compiler<'_> {
                     BinOp::Pow => {
                         let p = self.konst(b);
                         match p {
-                            Some(p) if p.fract() == 0.0 && p.abs() <= 64.0 => self.push(Op::Powi(a, p as i32)),
+                            Some(p) if p.fract() == 0.0 && p.abs() <= 64.0 => {
+                                self.push(Op::Powi(a, p as i32))
+                            }
                             Some(p) if (2.0 * p).fract() == 0.0 && p.abs() <= 64.0 => {
                                 let s = self.push(Op::Sqrt(a));
                                 self.push(Op::Powi(s, (2.0 * p) as i32))
@@ -489,7 +499,9 @@ impl Compiler<'_> {
             ExprKind::Call { callee, args } => self.call(callee, args, e),
             ExprKind::Field { base, field } => {
                 // A field of a record that does not move with the sweep and is exactly known.
-                let ExprKind::Name(n) = &base.kind else { return None };
+                let ExprKind::Name(n) = &base.kind else {
+                    return None;
+                };
                 let (d, de) = self.src.definition(n)?;
                 if self.affected_by_name(d, de) {
                     return None;
@@ -510,8 +522,14 @@ impl Compiler<'_> {
             if self.depth >= MAX_CALL_DEPTH || args.len() != f.params.len() {
                 return None;
             }
-            let regs = args.iter().map(|a| self.expr(&a.value)).collect::<Option<Vec<_>>>()?;
-            let saved = std::mem::replace(&mut self.locals, f.params.iter().cloned().zip(regs).collect());
+            let regs = args
+                .iter()
+                .map(|a| self.expr(&a.value))
+                .collect::<Option<Vec<_>>>()?;
+            let saved = std::mem::replace(
+                &mut self.locals,
+                f.params.iter().cloned().zip(regs).collect(),
+            );
             self.depth += 1;
             let r = self.expr(&f.body);
             self.depth -= 1;
@@ -546,7 +564,11 @@ impl Compiler<'_> {
                 let mut acc = self.expr(first)?;
                 for x in rest {
                     let r = self.expr(x)?;
-                    acc = self.push(if path == "min" { Op::Min(acc, r) } else { Op::Max(acc, r) });
+                    acc = self.push(if path == "min" {
+                        Op::Min(acc, r)
+                    } else {
+                        Op::Max(acc, r)
+                    });
                 }
                 Some(acc)
             }
@@ -645,7 +667,13 @@ impl<'t> Bands<'t> {
 
     /// The (min, max) of output `o` at the swept values `at`; None where unproven.
     /// `regs` must come from `Tape::prepare`.
-    pub fn at(&self, o: usize, at: &[f64], inputs: &mut Vec<f64>, regs: &mut [f64]) -> Option<(f64, f64)> {
+    pub fn at(
+        &self,
+        o: usize,
+        at: &[f64],
+        inputs: &mut Vec<f64>,
+        regs: &mut [f64],
+    ) -> Option<(f64, f64)> {
         let (lo, hi) = self.corners.get(o)?.as_ref()?;
         let r = self.tape.outputs[o] as usize;
         let mut run = |corner: &[f64]| {

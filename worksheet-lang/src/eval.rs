@@ -91,9 +91,21 @@ pub struct Registry {
     pub known: HashMap<String, Vec<Option<Interval>>>,
     /// Set when a built-in asked for an argument range that was not known yet.
     pub wanted_ranges: std::cell::Cell<bool>,
+    units: Vec<(String, Result<units::Unit, units::UnitError>)>,
 }
 
 impl Registry {
+    /// A unit by its text, parsed once per evaluation (a worksheet uses few distinct units,
+    /// so a short list beats hashing).
+    pub fn unit(&mut self, text: &str) -> Result<units::Unit, units::UnitError> {
+        if let Some((_, u)) = self.units.iter().find(|(t, _)| t == text) {
+            return u.clone();
+        }
+        let u = units::parse_unit(text);
+        self.units.push((text.to_string(), u.clone()));
+        u
+    }
+
     pub fn scalar_id(&mut self, key: &str) -> usize {
         if let Some(&i) = self.scalar_index.get(key) {
             return i;
@@ -409,7 +421,7 @@ impl<'a> Evaluator<'a> {
         let Some(u) = unit else {
             return Ok(Value::Num(Num::constant(value, Dim::NONE)));
         };
-        let parsed = units::parse_unit(&u.text).map_err(|err| {
+        let parsed = self.reg.unit(&u.text).map_err(|err| {
             let mut e = EvalError::new(DiagKind::UnknownUnit, &u.span, err.message);
             e.hint = err.hint;
             e
@@ -731,7 +743,8 @@ impl<'a> Evaluator<'a> {
             .hint(b.doc.signature));
         }
         let call_key = format!("{}#{}", self.stmt_key, span.start);
-        if matches!(self.pass.mode, Mode::Box { .. }) && !self.reg.observed.contains_key(&call_key) {
+        if matches!(self.pass.mode, Mode::Box { .. }) && !self.reg.observed.contains_key(&call_key)
+        {
             let ranges = slots
                 .iter()
                 .map(|v| match v {
@@ -1065,7 +1078,12 @@ impl CallHost for Host<'_, '_> {
     }
     fn arg_range(&self, param: usize) -> Option<Interval> {
         let key = format!("{}#{}", self.ev.stmt_key, self.call_key);
-        let r = self.ev.reg.known.get(&key).and_then(|v| v.get(param).copied().flatten());
+        let r = self
+            .ev
+            .reg
+            .known
+            .get(&key)
+            .and_then(|v| v.get(param).copied().flatten());
         if r.is_none() {
             self.ev.reg.wanted_ranges.set(true);
         }
@@ -1416,7 +1434,10 @@ pub fn has_error(e: &Expr) -> bool {
             }
             ExprKind::Field { base, .. } => stack.push(base),
             ExprKind::List(items) => stack.extend(items.iter()),
-            ExprKind::Number { .. } | ExprKind::Code { .. } | ExprKind::Str(_) | ExprKind::Name(_) => {}
+            ExprKind::Number { .. }
+            | ExprKind::Code { .. }
+            | ExprKind::Str(_)
+            | ExprKind::Name(_) => {}
         }
     }
     false

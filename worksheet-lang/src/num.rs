@@ -201,6 +201,11 @@ impl Dual {
             d: if seed { Interval::ONE } else { Interval::ZERO },
         }
     }
+    /// Exactly the constant one (the unit conversion factor `uom` multiplies by).
+    pub fn is_one(self) -> bool {
+        self.v.lo == 1.0 && self.v.hi == 1.0 && self.d.lo == 0.0 && self.d.hi == 0.0
+    }
+
     /// The value of a point evaluation (the low end; equal to the high end for points).
     pub fn value(self) -> f64 {
         self.v.lo
@@ -316,6 +321,9 @@ impl Neg for Dual {
 impl Mul for Dual {
     type Output = Dual;
     fn mul(self, o: Dual) -> Dual {
+        if o.is_one() {
+            return self;
+        }
         Dual {
             v: self.v * o.v,
             d: self.d * o.v + self.v * o.d,
@@ -325,6 +333,9 @@ impl Mul for Dual {
 impl Div for Dual {
     type Output = Dual;
     fn div(self, o: Dual) -> Dual {
+        if o.is_one() {
+            return self;
+        }
         let v = self.v / o.v;
         // d(a/b) = (da - (a/b)·db) / b
         Dual {
@@ -380,6 +391,11 @@ impl num_traits::Num for Dual {
 // units, so every conversion coefficient is one.
 impl uom::ConversionFactor<Dual> for Dual {
     fn powi(self, e: i32) -> Dual {
+        // `uom` raises each base unit's coefficient (always exactly one here) to the power
+        // of the dimension's exponent on every multiplication; keep that free.
+        if self.is_one() {
+            return self;
+        }
         Dual::powi(self, e)
     }
     fn value(self) -> Dual {

@@ -21,6 +21,36 @@ pub struct CellReport {
     pub sweeps: Vec<SweepTable>,
     /// Values of bare expressions (`EXPR`, `EXPR as UNIT`), shown as the execute result.
     pub shown: Vec<ValueRow>,
+    /// For a block updated by another cell's run: the changes that caused it.
+    pub updated_by: Vec<Change>,
+    /// For the cell that was run: the other cells it updated, each summarised by what it
+    /// holds (`p, check p <= 1 W`).
+    pub updated_cells: Vec<String>,
+}
+
+impl CellReport {
+    /// A short description of what the cell holds, for "updated …" notes.
+    pub fn summary(&self) -> String {
+        let mut parts: Vec<String> = Vec::new();
+        for v in &self.values {
+            let name = v.name.split('.').next().unwrap_or(&v.name).to_string();
+            if !parts.contains(&name) {
+                parts.push(name);
+            }
+        }
+        parts.extend(self.checks.iter().map(|c| format!("check {}", c.text)));
+        parts.extend(self.sweeps.iter().map(|s| format!("sweep over {}", s.over)));
+        if parts.len() > 4 {
+            let more = parts.len() - 3;
+            parts.truncate(3);
+            parts.push(format!("{more} more"));
+        }
+        if parts.is_empty() {
+            self.cell.clone()
+        } else {
+            parts.join(", ")
+        }
+    }
 }
 
 impl CellReport {

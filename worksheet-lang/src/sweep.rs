@@ -2,9 +2,9 @@
 //! re-evaluated, with their worst cases, while one definition takes a series of values.
 
 use crate::ast::{Expr, ExprKind, Stmt, StmtKind, SweepStep, SweepVar};
+use crate::compile::{Bands, Tape};
 use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::eval::EvalError;
-use crate::compile::{Bands, Tape};
 use crate::num::{Dual, Interval};
 use crate::results::{SweepLimit, SweepSeries, SweepTable};
 use crate::value::Num;
@@ -244,7 +244,15 @@ pub(crate) fn run(
         swept.push(o.def);
     }
     let fast = match host.compile(&swept, exprs) {
-        Some(tape) => fast_sweep(host, &tape, &inner, outer.as_ref(), &family, exprs, &mut series)?,
+        Some(tape) => fast_sweep(
+            host,
+            &tape,
+            &inner,
+            outer.as_ref(),
+            &family,
+            exprs,
+            &mut series,
+        )?,
         None => false,
     };
     for (fi, b) in family.iter().enumerate() {
@@ -406,7 +414,8 @@ fn fast_sweep(
             }
             if whole.is_none() && i % CHUNK == 0 {
                 let hi = inner.points[(i + CHUNK - 1).min(n - 1)];
-                chunk_bands = Bands::prove(tape, &sweep_box(x, hi), &mut dregs).filter(Bands::exact);
+                chunk_bands =
+                    Bands::prove(tape, &sweep_box(x, hi), &mut dregs).filter(Bands::exact);
             }
             let point_bands;
             let bands = match whole.as_ref().or(chunk_bands.as_ref()) {

@@ -162,26 +162,68 @@ impl Worksheet {
         }
         let old = self.reports.iter().find(|r| r.cell == key);
         let changes = changes(old, &report);
-        let mut updated = Vec::new();
-        for r in &reports {
-            if r.cell == key {
-                continue;
-            }
-            let before = self.reports.iter().find(|o| o.cell == r.cell);
-            if before != Some(r) {
-                updated.push(CellUpdate {
-                    report: r.clone(),
-                    changed_by: changes.clone(),
-                });
-            }
-        }
-        self.cells = cells;
-        self.reports = reports;
+        let updated = self.commit(cells, reports, Some(&key), &changes);
+        let mut report = report;
+        report.updated_cells = updated.iter().map(|u| u.report.summary()).collect();
         Execution {
             report,
             updated,
             interrupted: false,
         }
+    }
+
+    /// Replaces the worksheet by a new evaluation and returns the other cells whose results
+    /// changed, each marked with `changes`.
+    fn commit(
+        &mut self,
+        cells: Vec<Cell>,
+        reports: Vec<CellReport>,
+        run: Option<&str>,
+        changes: &[Change],
+    ) -> Vec<CellUpdate> {
+        let mut updated = Vec::new();
+        for r in &reports {
+            if Some(r.cell.as_str()) == run {
+                continue;
+            }
+            let before = self.reports.iter().find(|o| o.cell == r.cell);
+            if before != Some(r) {
+                let mut report = r.clone();
+                report.updated_by = changes.to_vec();
+                updated.push(CellUpdate {
+                    report,
+                    changed_by: changes.to_vec(),
+                });
+            }
+        }
+        self.cells = cells;
+        self.reports = reports;
+        updated
+    }
+
+    /// Forgets cells that no longer exist in the notebook (a front end's deleted cells):
+    /// their definitions are gone, and the cells that used them are returned updated.
+    /// Unknown keys are ignored. Interrupted: nothing changes and None is returned.
+    pub fn forget(&mut self, keys: &[&str], interrupt: &Interrupt) -> Option<Vec<CellUpdate>> {
+        if !self.cells.iter().any(|c| keys.contains(&c.key.as_str())) {
+            return Some(Vec::new());
+        }
+        let cells: Vec<Cell> = self
+            .cells
+            .iter()
+            .filter(|c| !keys.contains(&c.key.as_str()))
+            .cloned()
+            .collect();
+        let reports = evaluate(&cells, &self.overrides, &self.options, interrupt)?;
+        let mut changes = Vec::new();
+        for r in self
+            .reports
+            .iter()
+            .filter(|r| keys.contains(&r.cell.as_str()))
+        {
+            changes.extend(crate::worksheet::changes(Some(r), &CellReport::default()));
+        }
+        Some(self.commit(cells, reports, None, &changes))
     }
 
     /// A cell without an id is the earlier cell that defined the same names, if any.
@@ -1255,7 +1297,12 @@ fn lead_with_minimum(row: Option<&mut ValueRow>) {
         bounds: Some(b),
     } = &row.shown
     {
-        let min = fmt_value(b.min, value.dim, value.absolute, row.unit.as_ref().or(row.preferred.as_ref()));
+        let min = fmt_value(
+            b.min,
+            value.dim,
+            value.absolute,
+            row.unit.as_ref().or(row.preferred.as_ref()),
+        );
         row.text = format!("{min} at worst (nominal {})", row.text);
     }
 }
@@ -1493,7 +1540,9 @@ fn evaluate(
             };
             let id = format!("{}\u{0}{}", p.stmt, p.rule.label);
             match fired.iter_mut().find(|f| same(f)) {
-                Some(f) if (above && limit > f.2) || (!above && limit < f.2) => *f = (ci, id, limit, row),
+                Some(f) if (above && limit > f.2) || (!above && limit < f.2) => {
+                    *f = (ci, id, limit, row)
+                }
                 Some(_) => {}
                 None => fired.push((ci, id, limit, row)),
             }
@@ -1592,7 +1641,12 @@ impl crate::compile::TapeSource for SweepHost<'_> {
         if bounds.get(id).is_some_and(|b| b.is_some()) {
             return None;
         }
-        nominal.scalars.get(id).copied().flatten().map(|n| n.x.value())
+        nominal
+            .scalars
+            .get(id)
+            .copied()
+            .flatten()
+            .map(|n| n.x.value())
     }
 }
 

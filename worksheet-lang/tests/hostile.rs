@@ -1,53 +1,365 @@
-use std::time::Instant;
-use worksheet_lang::{Interrupt, Worksheet};
+//! Hostile worksheets: random bytes, token soups, deep nesting, huge inputs, and the caps of
+//! the language reference (section 8: nesting depth 256, call depth 32, lists of 10 000
+//! items, sweeps of 10⁷ points), each of which must end in a clear error, never in a panic,
+//! a hang, a stack overflow or exhausted memory.
+//!
+//! The property tests run the very bodies of the `cargo fuzz` targets (fuzz/src/bodies.rs),
+//! bounded, so the normal test run covers what the fuzzers explore at length.
 
-fn run(label: &str, src: &str) {
-    let mut ws = Worksheet::new();
-    let t = Instant::now();
-    let ex = ws.execute(None, src, &Interrupt::new());
-    let r = &ex.report;
-    let shown: usize = r.shown.iter().map(|v| format!("{:?}", v).len()).sum();
-    let vals: usize = r.values.iter().map(|v| format!("{:?}", v).len()).sum();
-    println!("{label}: {:?} diags={:?} shown_bytes={shown} value_bytes={vals}", t.elapsed(),
-        r.diagnostics.iter().map(|d| format!("{:?}: {}", d.kind, d.message)).take(3).collect::<Vec<_>>());
+#[path = "../../fuzz/src/bodies.rs"]
+mod bodies;
+
+use proptest::prelude::*;
+use std::sync::mpsc;
+use std::time::{Duration, Instant};
+use worksheet_lang::results::Shown;
+use worksheet_lang::{CellReport, DiagKind, Execution, Interrupt, Worksheet};
+
+/// A generous ceiling for work that takes milliseconds on a healthy build (debug, 2 cores).
+const GENEROUS: Duration = Duration::from_secs(30);
+
+/// Runs one cell on a thread of its own with a deadline, so that a hang fails the test
+/// instead of stalling the run. The thread is left behind if it never returns.
+fn run_within(source: &str, within: Duration) -> Result<(Execution, Duration), String> {
+    let (tx, rx) = mpsc::channel();
+    let src = source.to_string();
+    std::thread::Builder::new()
+        // The default 2 MiB test stack: a recursive descent over a deep input overflows it.
+        .stack_size(2 << 20)
+        .spawn(move || {
+            let started = Instant::now();
+            let ex = Worksheet::new().execute(None, &src, &Interrupt::new());
+            let _ = tx.send((ex, started.elapsed()));
+        })
+        .map_err(|e| e.to_string())?;
+    rx.recv_timeout(within).map_err(|_| {
+        format!(
+            "no result within {within:?} for a cell of {} bytes starting {:?}",
+            source.len(),
+            source.chars().take(60).collect::<String>()
+        )
+    })
+}
+
+fn run(source: &str) -> (Execution, Duration) {
+    run_within(source, GENEROUS).unwrap_or_else(|e| panic!("{e}"))
+}
+
+fn error_kinds(r: &CellReport) -> Vec<DiagKind> {
+    r.diagnostics
+        .iter()
+        .filter(|d| d.is_error())
+        .map(|d| d.kind)
+        .collect()
+}
+
+fn first_error(r: &CellReport) -> String {
+    r.diagnostics
+        .iter()
+        .find(|d| d.is_error())
+        .map(|d| d.message.clone())
+        .unwrap_or_default()
+}
+
+/// Everything a report would put on screen, in bytes.
+fn shown_bytes(r: &CellReport) -> usize {
+    let text = |s: &Shown| match s {
+        Shown::Text(t) | Shown::Other(t) => t.len(),
+        Shown::Number { .. } => 0,
+    };
+    r.values
+        .iter()
+        .chain(&r.shown)
+        .map(|v| v.text.len() + text(&v.shown) + v.range_text.as_ref().map_or(0, String::len))
+        .sum()
+}
+
+// ---------------------------------------------------------------------------------------
+// Property tests over the fuzz targets' bodies
+
+/// Fragments of the language, valid and not, for token soups.
+const FRAGMENTS: &[&str] = &[
+    "given", "check", "sweep", "over", "steps", "by", "as", "x", "y", "iload", "θ", "R1",
+    "u1", "f", "g", "=", "+", "-", "*", "/", "^", "||", "±", "+/-", "..", ",", ":", "<", "<=",
+    "≥", ">", "(", ")", "[", "]", ".", "·", "×", "−", "12", "0.47", "4.7e-3", "1_000", "1e308",
+    "1e-308", "0", "-0", "4k7", "2R2", "0R47", "100n", "2µ2", "10K", "V", "mA", "kΩ", "K/W",
+    "W/(m·K)", "°C", "℃", "degF", "%", "ppm", "mm²", "m^2", "\"note\"", "\"", "# c", "\n",
+    "\n  ", " ", "\t", "reg.linear(", "heat.junction(", "res.pick(", "power.", "E24", "tol(",
+    "sqrt(", "ln(", "exp(", "min(", "max(", "kelvin(", "vout:", "iout:", "iq:", "dropout:",
+    "\u{feff}", "\u{200b}", "\u{a0}", "µ", "Ω", "\u{0}",
+];
+
+fn soup() -> impl Strategy<Value = String> {
+    proptest::collection::vec(
+        (proptest::sample::select(FRAGMENTS), prop_oneof![Just(""), Just(" "), Just("\n")]),
+        0..60,
+    )
+    .prop_map(|parts| parts.into_iter().map(|(a, b)| format!("{a}{b}")).collect())
+}
+
+/// Plausible worksheets: definitions over earlier names, tolerances, checks, sweeps and
+/// user functions, so that evaluation and worst-case analysis are reached, not only the
+/// parser.
+fn worksheet() -> impl Strategy<Value = String> {
+    let number = prop_oneof![
+        (1u32..500).prop_map(|n| format!("{n}")),
+        (1u32..500).prop_map(|n| format!("0.{n}")),
+        Just("1e-12".to_string()),
+        Just("1e12".to_string()),
+        Just("0".to_string()),
+    ];
+    let unit = proptest::sample::select(vec!["V", "mA", "A", "Ω", "kΩ", "W", "K/W", "°C", "K", "%", ""]);
+    let tol = proptest::sample::select(vec!["", " ± 5 %", " ± 1 %", " ± 20 mV", " ± 2 K"]);
+    let op = proptest::sample::select(vec![" + ", " - ", " * ", " / ", " || "]);
+    let given = (number.clone(), unit.clone(), tol).prop_map(|(n, u, t)| format!("{n} {u}{t}"));
+    let line = (
+        0usize..6,
+        given,
+        op,
+        0usize..6,
+        0usize..6,
+        number,
+        unit,
+    )
+        .prop_map(|(kind, lit, op, a, b, n, u)| match kind {
+            0 | 1 => format!("given g{a} = {lit}"),
+            2 => format!("d{a} = g{a}{op}g{b}"),
+            3 => format!("check d{a} <= {n} {u}"),
+            4 => format!("sweep g{a} over 1 {u} .. {n} {u} steps {}: d{b}", b + 2),
+            _ => format!("h{a}(p) = p{op}g{b}\nd{b} = h{a}({lit})"),
+        });
+    proptest::collection::vec(line, 1..14).prop_map(|ls| ls.join("\n"))
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 256, ..ProptestConfig::default() })]
+
+    #[test]
+    fn random_bytes_never_panic(data in proptest::collection::vec(any::<u8>(), 0..600)) {
+        bodies::parse(&data);
+        bodies::execute(&data);
+        bodies::units(&data);
+    }
+
+    #[test]
+    fn token_soups_never_panic(src in soup()) {
+        bodies::parse(src.as_bytes());
+        bodies::execute(src.as_bytes());
+        bodies::units(src.as_bytes());
+    }
+
+    #[test]
+    fn unit_texts_never_panic(src in "[A-Za-zµΩ°²³⁻¹·*/^()0-9.-]{0,24}", x in any::<f64>()) {
+        let mut data = x.to_le_bytes().to_vec();
+        data.extend_from_slice(src.as_bytes());
+        bodies::units(&data);
+    }
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig { cases: 96, ..ProptestConfig::default() })]
+
+    #[test]
+    fn generated_worksheets_hold_their_invariants(cells in proptest::collection::vec(worksheet(), 1..4)) {
+        let joined = cells.join(&bodies::CELL_SEPARATOR.to_string());
+        bodies::parse(joined.as_bytes());
+        bodies::execute(joined.as_bytes());
+    }
+
+    #[test]
+    fn deep_nesting_is_one_clear_error(depth in 200usize..6000, kind in 0usize..7) {
+        let (open, close) = [("(", ")"), ("[", "]"), ("-", ""), ("sqrt(", ")"), ("2^", ""),
+                             ("min(1 V, ", ")"), ("((", "))")][kind];
+        let src = format!("x = {}1 V{}", open.repeat(depth), close.repeat(depth));
+        bodies::parse(src.as_bytes());
+        let (ex, _) = run(&src);
+        bodies::assert_report(&ex.report);
+        let levels = depth * open.matches(['(', '[', '-', '^']).count().max(1);
+        if levels > 300 {
+            prop_assert!(error_kinds(&ex.report).contains(&DiagKind::TooDeep),
+                "{levels} levels: {:?}", error_kinds(&ex.report));
+        }
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// Huge inputs
+
+#[test]
+fn huge_inputs_are_parsed_in_bounded_time_and_stack() {
+    let mega = 1 << 20;
+    let cases: Vec<(&str, String)> = vec![
+        ("1 MiB of opening parentheses", format!("x = {}", "(".repeat(mega))),
+        ("1 MiB of brackets", "[".repeat(mega)),
+        ("1 MiB of minus signs", format!("x = {}1 V", "-".repeat(mega))),
+        ("a 1 MiB comment", format!("# {}", "c".repeat(mega))),
+        ("a 1 MiB name", format!("{} = 1 V", "n".repeat(mega))),
+        ("a 1 MiB note", format!("given a = 1 V \"{}\"", "n".repeat(mega))),
+        ("an unterminated 1 MiB string", format!("given a = 1 V \"{}", "s".repeat(mega))),
+        ("1 MiB of operators", "+*".repeat(mega / 2)),
+        ("100 000 empty lines", "\n".repeat(100_000)),
+        ("20 000 definitions", (0..20_000).map(|i| format!("v{i} = {i} V\n")).collect()),
+        ("a 1 MiB number", format!("x = {} V", "9".repeat(mega))),
+    ];
+    for (what, src) in cases {
+        let parse_started = Instant::now();
+        bodies::parse(src.as_bytes());
+        let parsed = parse_started.elapsed();
+        let (ex, ran) = run(&src);
+        bodies::assert_report(&ex.report);
+        println!(
+            "{what}: parse {parsed:?}, execute {ran:?}, {} diagnostics, first: {:?}",
+            ex.report.diagnostics.len(),
+            first_error(&ex.report).chars().take(100).collect::<String>()
+        );
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// Resource caps
+
+#[test]
+fn a_sweep_over_the_point_cap_is_a_clear_error() {
+    // Ten million points are allowed (the language reference, section 8); one more is not.
+    for src in [
+        "given x = 1 V\nsweep x over 0 V .. 1 V steps 10000001: x * 2",
+        // 1 V in steps of 1 nV is 10⁹ + 1 points.
+        "given x = 1 V\nsweep x over 0 V .. 1 V by 1 nV: x * 2",
+        "given x = 1 V\nsweep x over 0 V .. 1 V steps 1e300: x * 2",
+    ] {
+        let (ex, took) = run(src);
+        let kinds = error_kinds(&ex.report);
+        println!("{src:?}: {took:?}, {:?}", first_error(&ex.report));
+        assert!(kinds.contains(&DiagKind::Limit), "{kinds:?}");
+        assert!(first_error(&ex.report).contains("10000000"), "the message names the cap");
+        assert!(took < Duration::from_secs(10), "refused up front, not after running: {took:?}");
+    }
 }
 
 #[test]
-fn explore() {
-    let which = std::env::var("EXPLORE").unwrap_or_default();
-    if which.contains('a') {
-        run("rec8", "f(x) = x\ng(x) = f(x) + f(x)\ny = g(1 V)");
-        for d in [10, 14, 16, 18] {
-            let mut s = String::from("f0(x) = x\n");
-            for i in 1..=d { s += &format!("f{i}(x) = f{}(x) + f{}(x)\n", i-1, i-1); }
-            s += &format!("y = f{d}(1 V)\n");
-            run(&format!("fanout{d}"), &s);
+fn a_list_over_the_item_cap_is_a_clear_error() {
+    let list = |n: usize| {
+        let items: Vec<String> = (0..n).map(|i| format!("{i} mA")).collect();
+        format!("l = [{}]", items.join(", "))
+    };
+    let (ok, _) = run(&list(10_000));
+    assert!(!ok.report.has_errors(), "10 000 items are allowed: {}", first_error(&ok.report));
+    let (ex, _) = run(&list(10_001));
+    assert!(error_kinds(&ex.report).contains(&DiagKind::Limit));
+    assert!(first_error(&ex.report).contains("10000"), "{}", first_error(&ex.report));
+}
+
+#[test]
+fn direct_and_mutual_recursion_end_at_the_call_depth() {
+    for src in [
+        "f(x) = f(x) + 1 V\ny = f(1 V)",
+        "f(x) = g(x) * 2\ng(x) = f(x) - 1 V\ny = f(1 V)",
+        "f(x) = f(f(x))\ny = f(1 V)",
+    ] {
+        let (ex, took) = run(src);
+        let msg = first_error(&ex.report);
+        println!("{src:?}: {took:?}, {msg:?}");
+        assert!(error_kinds(&ex.report).contains(&DiagKind::Limit), "{msg}");
+        assert!(msg.contains("32"), "the message names the cap: {msg}");
+    }
+}
+
+/// A chain of functions each calling the one below twice stays inside the call depth of
+/// 32, yet makes 2^depth calls: the depth cap alone does not bound the work.
+fn fan_out(depth: usize) -> String {
+    let mut s = String::from("f0(x) = x\n");
+    for i in 1..=depth {
+        s += &format!("f{i}(x) = f{j}(x) + f{j}(x)\n", j = i - 1);
+    }
+    s + &format!("y = f{depth}(1 V)\n")
+}
+
+#[test]
+fn recursion_that_fans_out_is_capped() {
+    // The cost doubles with each level: measure it small, then ask for 2^30 calls.
+    let (small, t12) = run(&fan_out(12));
+    assert!(!small.report.has_errors(), "{}", first_error(&small.report));
+    let (_, t14) = run(&fan_out(14));
+    println!(
+        "fan-out: 2^12 calls {t12:?}, 2^14 calls {t14:?}; 2^30 calls would take about {:?}",
+        t14 * (1 << 16)
+    );
+    match run_within(&fan_out(30), Duration::from_secs(20)) {
+        Ok((ex, took)) => {
+            println!("2^30 calls: {took:?}, {:?}", first_error(&ex.report));
+            assert!(
+                error_kinds(&ex.report).contains(&DiagKind::Limit),
+                "a bounded evaluation must end in a LimitExceeded error"
+            );
         }
-        run("selfrec", "f(x) = f(x) + 1 V\ny = f(1 V)");
-        run("selfrec2", "f(x) = f(x) + f(x)\ny = f(1 V)");
+        Err(e) => panic!("the evaluation is not bounded: {e}"),
     }
-    if which.contains('b') {
-        let items: Vec<String> = (0..1000).map(|i| format!("{i} V")).collect();
-        let a = format!("a = [{}]", items.join(", "));
-        let bs: Vec<&str> = (0..1000).map(|_| "a").collect();
-        let b = format!("b = [{}]", bs.join(", "));
-        run("list1000", &a);
-        run("nested1000x1000", &format!("{a}\n{b}"));
-    }
-    if which.contains('c') {
-        for n in [100, 400, 1000] {
-            let mut s = String::new();
-            for i in 0..n { s += &format!("given g{i} = 1 V ± 1 %\n"); }
-            let sum: Vec<String> = (0..n).map(|i| format!("g{i}")).collect();
-            s += &format!("t = {}\n", sum.join(" + "));
-            run(&format!("givens{n}"), &s);
-        }
-    }
-    if which.contains('d') {
-        for n in [1000, 100000] {
-            run(&format!("parens{n}"), &format!("x = {}1 V{}", "(".repeat(n), ")".repeat(n)));
-            run(&format!("neg{n}"), &format!("x = {}1 V", "-".repeat(n)));
-            run(&format!("pow{n}"), &format!("x = {}2", "2^".repeat(n)));
+}
+
+#[test]
+fn nested_lists_cannot_multiply_the_output() {
+    // Each list holds 100 items, well under the cap of 10 000; nested three deep they stand
+    // for 10⁶ numbers, from a cell of under 1 KiB. Four deep (10⁸) would exhaust memory when
+    // shown, so the cap must count every item a value holds (or bound what is shown).
+    let inner: Vec<String> = (0..100).map(|i| format!("{i} V")).collect();
+    let a = format!("a = [{}]", inner.join(", "));
+    let b = format!("b = [{}]", vec!["a"; 100].join(", "));
+    let c = format!("c = [{}]", vec!["b"; 100].join(", "));
+    let src = format!("{a}\n{b}\n{c}");
+    let (ex, took) = run(&src);
+    let bytes = shown_bytes(&ex.report);
+    println!(
+        "a cell of {} bytes: {took:?}, {bytes} bytes shown, errors {:?}",
+        src.len(),
+        error_kinds(&ex.report)
+    );
+    let capped = error_kinds(&ex.report).contains(&DiagKind::Limit);
+    assert!(
+        capped || bytes <= 1 << 20,
+        "{bytes} bytes of output from {} bytes of source, and no LimitExceeded error",
+        src.len()
+    );
+}
+
+#[test]
+fn an_interrupt_stops_a_long_sweep_promptly_and_changes_nothing() {
+    let mut ws = Worksheet::new();
+    let setup = "given r = 10 Ω ± 1 %\ngiven x = 0.5 V\ny = x * x / r";
+    assert!(!ws.execute(Some("a"), setup, &Interrupt::new()).report.has_errors());
+    let before = ws.reports().to_vec();
+    let interrupt = Interrupt::new();
+    let raiser = interrupt.clone();
+    let raised_at = std::thread::spawn(move || {
+        std::thread::sleep(Duration::from_millis(300));
+        raiser.raise();
+        Instant::now()
+    });
+    let started = Instant::now();
+    let ex = ws.execute(
+        Some("b"),
+        "sweep x over 0 V .. 1 V steps 10000000: y",
+        &interrupt,
+    );
+    let ended = Instant::now();
+    let raised_at = raised_at.join().expect("the raiser thread");
+    let latency = ended.saturating_duration_since(raised_at);
+    println!("interrupt latency in the library: {latency:?} (run {:?})", ended - started);
+    assert!(ex.interrupted, "the sweep ran to its end in {:?}", ended - started);
+    assert!(error_kinds(&ex.report).contains(&DiagKind::Interrupted));
+    assert_eq!(ws.reports(), before.as_slice(), "the worksheet is as it was");
+    assert!(latency < Duration::from_secs(5), "{latency:?}");
+}
+
+#[test]
+fn zz_probe() {
+    for kind in [5] {
+        for depth in [25, 50, 75, 100, 125, 150, 175, 200, 255] {
+            let (open, close) = [("(", ")"), ("[", "]"), ("-", ""), ("sqrt(", ")"), ("2^", ""),
+                                 ("min(1 V, ", ")"), ("((", "))")][kind];
+            let src = format!("x = {}1 V{}", open.repeat(depth), close.repeat(depth));
+            eprintln!("probe kind {kind} depth {depth}");
+            let (ex, _) = run(&src);
+            eprintln!("  -> {:?}", error_kinds(&ex.report));
         }
     }
 }

@@ -411,7 +411,12 @@ fn compiled_sweeps_agree_with_the_general_path() {
         slow.set_fast_sweeps(false);
         let f = fast.execute(Some("c"), src, &Interrupt::new()).report;
         let s = slow.execute(Some("c"), src, &Interrupt::new()).report;
-        assert!(!f.has_errors() && !s.has_errors(), "{src}: {:?} {:?}", f.diagnostics, s.diagnostics);
+        assert!(
+            !f.has_errors() && !s.has_errors(),
+            "{src}: {:?} {:?}",
+            f.diagnostics,
+            s.diagnostics
+        );
         assert_eq!(f.sweeps.len(), 1);
         let (ft, st) = (&f.sweeps[0], &s.sweeps[0]);
         assert_eq!(ft.points, st.points, "{src}");
@@ -427,7 +432,14 @@ fn compiled_sweeps_agree_with_the_general_path() {
                         // Both enclose; for monotone cases both are exact and equal.
                         assert!(amin[k] <= a.nominal[k] + 1e-12 && amax[k] >= a.nominal[k] - 1e-12);
                         if src.contains("steps 40") || src.contains("steps 7") {
-                            assert!(close(amin[k], bmin[k]) && close(amax[k], bmax[k]), "{src}: {k}: {} {} vs {} {}", amin[k], amax[k], bmin[k], bmax[k]);
+                            assert!(
+                                close(amin[k], bmin[k]) && close(amax[k], bmax[k]),
+                                "{src}: {k}: {} {} vs {} {}",
+                                amin[k],
+                                amax[k],
+                                bmin[k],
+                                bmax[k]
+                            );
                         }
                     }
                 }
@@ -454,4 +466,36 @@ fn a_million_point_sweep_finishes() {
     // y3 = (2x + 1)² − x at x = 1 V: 9 − 1 = 8.
     let last = *r.sweeps[0].series[0].nominal.last().expect("points");
     assert!(close(last, 8.0));
+}
+
+#[test]
+fn updates_say_what_changed_them_and_forgotten_cells_take_their_names() {
+    let mut ws = Worksheet::new();
+    let i = Interrupt::new();
+    ws.execute(Some("a"), "given x = 1 V\n", &i);
+    ws.execute(Some("b"), "y = x * 2\n", &i);
+    let ex = ws.execute(Some("a"), "given x = 2 V\n", &i);
+    assert_eq!(ex.report.updated_cells, ["y"]);
+    let b = &ex.updated[0].report;
+    assert_eq!(b.updated_by.len(), 1);
+    assert_eq!(
+        (b.updated_by[0].old.as_str(), b.updated_by[0].new.as_str()),
+        ("1.00 V", "2.00 V")
+    );
+    // The stored report carries no such note: running `a` again changes nothing.
+    assert!(ws
+        .execute(Some("a"), "given x = 2 V\n", &i)
+        .updated
+        .is_empty());
+    let gone = ws.forget(&["a"], &i).expect("not interrupted");
+    assert_eq!(gone.len(), 1);
+    assert!(gone[0]
+        .report
+        .diagnostics
+        .iter()
+        .any(|d| d.kind == DiagKind::UnknownName));
+    assert!(ws
+        .forget(&["nope"], &i)
+        .expect("not interrupted")
+        .is_empty());
 }

@@ -14,6 +14,9 @@ use serde_json::Value;
 /// Relative tolerance of a number that still counts as reproduced.
 pub(crate) const RELATIVE: f64 = 1e-9;
 
+/// The side of a difference where the item does not exist.
+pub(crate) const ABSENT: &str = "(absent)";
+
 /// What one code cell shows, as data.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub(crate) struct CellResults {
@@ -78,13 +81,21 @@ impl CellResults {
         [&self.block, &self.shown]
             .into_iter()
             .flatten()
-            .flat_map(|d| d.get("values").and_then(Value::as_array).into_iter().flatten())
+            .flat_map(|d| {
+                d.get("values")
+                    .and_then(Value::as_array)
+                    .into_iter()
+                    .flatten()
+            })
     }
 
     pub fn checks(&self) -> impl Iterator<Item = &Value> {
-        self.block
-            .iter()
-            .flat_map(|d| d.get("checks").and_then(Value::as_array).into_iter().flatten())
+        self.block.iter().flat_map(|d| {
+            d.get("checks")
+                .and_then(Value::as_array)
+                .into_iter()
+                .flatten()
+        })
     }
 }
 
@@ -113,6 +124,8 @@ pub(crate) struct Diff {
     pub recomputed: String,
     /// The display texts of a value (old, new), for a short "old → new" line.
     pub texts: Option<(String, String)>,
+    /// A value's `si` or a check's margin (old, new) in `unit`, when both sides have one.
+    pub numbers: Option<(f64, f64, String)>,
 }
 
 pub(crate) fn close(a: f64, b: f64) -> bool {
@@ -130,6 +143,7 @@ pub(crate) fn diff_cell(stored: &CellResults, now: &CellResults) -> Vec<Diff> {
                 stored: "none (the cell was not run)".into(),
                 recomputed: summary(now),
                 texts: None,
+                numbers: None,
             });
         }
         return out;
@@ -141,6 +155,7 @@ pub(crate) fn diff_cell(stored: &CellResults, now: &CellResults) -> Vec<Diff> {
             stored: stored.error.clone().unwrap_or_else(|| "no error".into()),
             recomputed: now.error.clone().unwrap_or_else(|| "no error".into()),
             texts: None,
+            numbers: None,
         });
     }
     diff_data(stored.block.as_ref(), now.block.as_ref(), &mut out);
@@ -257,15 +272,19 @@ fn diff_values(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
                         stored: describe_value(o),
                         recomputed: describe_value(n),
                         texts: Some((text_of(o, "text").into(), text_of(n, "text").into())),
+                        numbers: num_of(o, "si")
+                            .zip(num_of(n, "si"))
+                            .map(|(a, b)| (a, b, text_of(n, "unit").to_string())),
                     });
                 }
             }
             None => out.push(Diff {
                 kind: DiffKind::Value,
                 subject: name.clone(),
-                stored: "(absent)".into(),
+                stored: ABSENT.into(),
                 recomputed: describe_value(n),
                 texts: Some(("(new)".into(), text_of(n, "text").into())),
+                numbers: None,
             }),
         }
     }
@@ -275,8 +294,9 @@ fn diff_values(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
                 kind: DiffKind::Value,
                 subject: name.clone(),
                 stored: describe_value(o),
-                recomputed: "(absent)".into(),
+                recomputed: ABSENT.into(),
                 texts: Some((text_of(o, "text").into(), "(gone)".into())),
+                numbers: None,
             });
         }
     }
@@ -307,9 +327,10 @@ fn diff_checks(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
             out.push(Diff {
                 kind: DiffKind::Check,
                 subject: text.clone(),
-                stored: "(absent)".into(),
+                stored: ABSENT.into(),
                 recomputed: describe_check(n),
                 texts: None,
+                numbers: None,
             });
             continue;
         };
@@ -332,6 +353,9 @@ fn diff_checks(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
             stored: describe_check(o),
             recomputed: describe_check(n),
             texts: None,
+            numbers: num_of(o, "margin")
+                .zip(num_of(n, "margin"))
+                .map(|(a, b)| (a, b, text_of(n, "unit").to_string())),
         });
     }
     for (text, o) in &old {
@@ -340,8 +364,9 @@ fn diff_checks(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
                 kind: DiffKind::Check,
                 subject: text.clone(),
                 stored: describe_check(o),
-                recomputed: "(absent)".into(),
+                recomputed: ABSENT.into(),
                 texts: None,
+                numbers: None,
             });
         }
     }
@@ -355,9 +380,10 @@ fn diff_warnings(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
         out.push(Diff {
             kind: DiffKind::Warning,
             subject: "warning".into(),
-            stored: "(absent)".into(),
+            stored: ABSENT.into(),
             recomputed: w.clone(),
             texts: None,
+            numbers: None,
         });
     }
     for w in old.iter().filter(|w| !new.contains(w)) {
@@ -365,8 +391,9 @@ fn diff_warnings(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
             kind: DiffKind::Warning,
             subject: "warning".into(),
             stored: w.clone(),
-            recomputed: "(absent)".into(),
+            recomputed: ABSENT.into(),
             texts: None,
+            numbers: None,
         });
     }
 }
@@ -385,6 +412,7 @@ fn diff_sweeps(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
             stored,
             recomputed,
             texts: None,
+            numbers: None,
         });
     }
 }
@@ -393,11 +421,10 @@ fn diff_sweeps(old: &[Value], new: &[Value], out: &mut Vec<Diff>) {
 fn first_difference(a: Option<&Value>, b: Option<&Value>) -> (String, String) {
     fn walk(a: Option<&Value>, b: Option<&Value>, path: &str) -> Option<(String, String)> {
         match (a, b) {
-            (Some(Value::Object(x)), Some(Value::Object(y))) => {
-                x.keys().chain(y.keys()).find_map(|k| {
-                    walk(x.get(k), y.get(k), &format!("{path}.{k}"))
-                })
-            }
+            (Some(Value::Object(x)), Some(Value::Object(y))) => x
+                .keys()
+                .chain(y.keys())
+                .find_map(|k| walk(x.get(k), y.get(k), &format!("{path}.{k}"))),
             (Some(Value::Array(x)), Some(Value::Array(y))) if x.len() == y.len() => x
                 .iter()
                 .zip(y)
@@ -440,10 +467,14 @@ mod tests {
 
     #[test]
     fn a_changed_value_and_a_flipped_check_are_both_reported() {
-        let old = cell(json!({"values": [{"name": "t", "si": 3600.0, "text": "1.00 h"}],
-            "checks": [{"text": "t >= 2 h", "passed": false, "margin": -3600.0}]}));
-        let new = cell(json!({"values": [{"name": "t", "si": 10800.0, "text": "3.00 h"}],
-            "checks": [{"text": "t >= 2 h", "passed": true, "margin": 3600.0}]}));
+        let old = cell(
+            json!({"values": [{"name": "t", "si": 3600.0, "text": "1.00 h"}],
+            "checks": [{"text": "t >= 2 h", "passed": false, "margin": -3600.0}]}),
+        );
+        let new = cell(
+            json!({"values": [{"name": "t", "si": 10800.0, "text": "3.00 h"}],
+            "checks": [{"text": "t >= 2 h", "passed": true, "margin": 3600.0}]}),
+        );
         let d = diff_cell(&old, &new);
         assert_eq!(d.len(), 2, "{d:?}");
         assert_eq!(d[0].texts, Some(("1.00 h".into(), "3.00 h".into())));

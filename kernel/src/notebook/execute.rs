@@ -66,7 +66,11 @@ pub(crate) fn run_cells(nb: &Notebook) -> Vec<CellRun> {
     let mut runs: Vec<CellRun> = Vec::new();
     for (index, key) in cell_keys(nb).into_iter().enumerate() {
         let Some(key) = key else { continue };
-        let source = nb.cells().get(index).map(ipynb::source_of).unwrap_or_default();
+        let source = nb
+            .cells()
+            .get(index)
+            .map(ipynb::source_of)
+            .unwrap_or_default();
         if source.trim().is_empty() {
             runs.push(CellRun {
                 index,
@@ -120,7 +124,7 @@ pub(crate) fn store(nb: &mut Notebook, runs: &[CellRun]) {
             .iter()
             .map(|o| o.to_nbformat(r.execution_count))
             .collect();
-        cell.insert("outputs".into(), serde_json::Value::Array(outputs));
-        cell.insert("execution_count".into(), r.execution_count.into());
+        ipynb::insert(cell, "outputs", serde_json::Value::Array(outputs));
+        ipynb::insert(cell, "execution_count", r.execution_count.into());
     }
 }

@@ -141,12 +141,14 @@ impl Notebook {
     pub fn ensure_kernel_metadata(&mut self) {
         let meta = object_entry(&mut self.root, "metadata");
         if !meta.contains_key("kernelspec") && !meta.contains_key("language_info") {
-            meta.insert(
-                "kernelspec".into(),
+            insert(
+                meta,
+                "kernelspec",
                 json!({"display_name": "Headroom", "language": KERNEL_NAME, "name": KERNEL_NAME}),
             );
-            meta.insert(
-                "language_info".into(),
+            insert(
+                meta,
+                "language_info",
                 json!({"file_extension": ".hrw", "mimetype": "text/x-headroom", "name": KERNEL_NAME}),
             );
         }
@@ -165,17 +167,32 @@ impl Notebook {
     }
 }
 
-/// The object at `key`, replacing a non-object (which no valid notebook has there).
+/// The object at `key`, created (or replacing a non-object, which no valid notebook has
+/// there) with [`insert`].
 fn object_entry<'a>(map: &'a mut Map<String, Value>, key: &str) -> &'a mut Map<String, Value> {
-    let slot = map
-        .entry(key.to_string())
-        .or_insert_with(|| Value::Object(Map::new()));
-    if !slot.is_object() {
-        *slot = Value::Object(Map::new());
+    if !map.get(key).is_some_and(Value::is_object) {
+        insert(map, key, Value::Object(Map::new()));
     }
-    match slot {
-        Value::Object(m) => m,
+    match map.get_mut(key) {
+        Some(Value::Object(m)) => m,
         _ => unreachable!("just made an object"),
+    }
+}
+
+/// Sets `key`: in place when it exists; a new key goes where Jupyter would put it when the
+/// keys are in sorted order (as Jupyter writes them), else at the end. Saving the notebook
+/// again in Jupyter then moves nothing.
+pub(crate) fn insert(map: &mut Map<String, Value>, key: &str, value: Value) {
+    if let Some(slot) = map.get_mut(key) {
+        *slot = value;
+        return;
+    }
+    let sorted = map.keys().zip(map.keys().skip(1)).all(|(a, b)| a <= b);
+    map.insert(key.to_string(), value);
+    if sorted {
+        let mut entries: Vec<(String, Value)> = std::mem::take(map).into_iter().collect();
+        entries.sort_by(|a, b| a.0.cmp(&b.0));
+        map.extend(entries);
     }
 }
 
@@ -212,7 +229,7 @@ pub(crate) fn set_source(cell: &mut Value, text: &str) {
         } else {
             Value::String(text.to_string())
         };
-        obj.insert("source".into(), v);
+        insert(obj, "source", v);
     }
 }
 
@@ -301,8 +318,10 @@ mod tests {
 
     #[test]
     fn a_python_notebook_is_refused_by_name() {
-        let err = nb(json!({"kernelspec": {"name": "python3", "display_name": "Python 3",
-            "language": "python"}}))
+        let err = nb(
+            json!({"kernelspec": {"name": "python3", "display_name": "Python 3",
+            "language": "python"}}),
+        )
         .expect_err("refused");
         let msg = format!("{err:#}");
         assert!(msg.contains("Python 3") && msg.contains("python"), "{msg}");
@@ -325,6 +344,24 @@ mod tests {
         let mut flat = json!({"cell_type": "code", "source": "x = 1 A\n"});
         set_source(&mut flat, "x = 2 A\n");
         assert_eq!(flat["source"], json!("x = 2 A\n"));
+    }
+
+    #[test]
+    fn a_new_key_goes_in_sorted_place_only_among_sorted_keys() {
+        let mut sorted = json!({"a": 1, "kernelspec": {}, "z": 2});
+        insert(
+            sorted.as_object_mut().expect("object"),
+            "headroom",
+            json!({}),
+        );
+        let keys: Vec<&String> = sorted.as_object().expect("object").keys().collect();
+        assert_eq!(keys, ["a", "headroom", "kernelspec", "z"]);
+        let mut unsorted = json!({"z": 2, "a": 1});
+        insert(unsorted.as_object_mut().expect("object"), "m", json!(0));
+        insert(unsorted.as_object_mut().expect("object"), "z", json!(3));
+        let keys: Vec<&String> = unsorted.as_object().expect("object").keys().collect();
+        assert_eq!(keys, ["z", "a", "m"]);
+        assert_eq!(unsorted["z"], 3);
     }
 
     #[test]

@@ -8,6 +8,19 @@
 //! - `compare` holds stored results against recomputed ones (relative 1e-9);
 //! - `digest` defines the canonical sources and results a seal hashes.
 //!
+//! How a notebook runs: code cells in order, with one worksheet keyed by cell id, as a front end
+//! running all cells against a fresh kernel. A blank cell is skipped, as JupyterLab and nbclient
+//! skip it. A cell that errs does not stop the run, so one run shows every problem. When a later
+//! cell changes an earlier cell's results (a name defined again), the earlier block is updated
+//! in place, as front ends apply `update_display_data`.
+//!
+//! The cell sources are the truth: `--set` rewrites the `given` line, so `verify` and `seal`
+//! rerun the sources as stored. The overrides recorded in the metadata are the record of what
+//! was set from outside, and `verify` reports them.
+//!
+//! Only a notebook where everything holds can be sealed: outputs that reproduce, no error and
+//! no failing check. `verify` holds a notebook to the same standard.
+//!
 //! Exit status of `run` and `verify`: 0 when everything holds, 1 when a check fails or a
 //! result does not hold, 2 on an error (a cell that errs, an unreadable or foreign notebook).
 
@@ -29,7 +42,7 @@ use serde_json::{json, Value};
 use std::fmt::Write as _;
 use std::io::{IsTerminal as _, Write as _};
 use std::path::{Path, PathBuf};
-use worksheet_lang::diagnostic;
+use worksheet_lang::{diagnostic, units};
 
 const EXIT_OK: u8 = 0;
 const EXIT_FAILED: u8 = 1;
@@ -91,11 +104,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<u8> {
     let reports: Vec<_> = runs.iter().filter_map(|r| r.report.as_ref()).collect();
     let mut s = String::new();
     let ran = runs.iter().filter(|r| r.execution_count.is_some()).count();
-    let _ = writeln!(
-        s,
-        "Wrote {} ({ran} code cells run)",
-        out_path.display()
-    );
+    let _ = writeln!(s, "Wrote {} ({ran} code cells run)", out_path.display());
     if !rewrites.is_empty() {
         let _ = writeln!(s, "\nSet from outside");
         for r in &rewrites {
@@ -191,13 +200,15 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-/// Values that changed against the stored outputs (old → new) and checks that flipped.
+/// Values that changed against the stored outputs (old → new), checks that flipped or whose
+/// margin changed, and any other difference in the results data.
 fn change_summary(original: &Notebook, runs: &[CellRun]) -> String {
     let mut s = String::new();
     let mut stored_any = false;
     let mut changes: Vec<(String, String, String)> = Vec::new();
     let mut flips: Vec<String> = Vec::new();
-    let mut other = 0usize;
+    let mut margins: Vec<String> = Vec::new();
+    let mut other: Vec<String> = Vec::new();
     for r in runs {
         let Some(cell) = original.cells().get(r.index) else {
             continue;
@@ -210,13 +221,18 @@ fn change_summary(original: &Notebook, runs: &[CellRun]) -> String {
         for d in compare::diff_cell(&stored, &CellResults::recomputed(r)) {
             match (&d.kind, &d.texts) {
                 (DiffKind::Value, Some((old, new))) => {
-                    // Beyond the display precision the texts agree; say so with the numbers.
-                    let (old, new) = if old == new {
-                        (d.stored.clone(), d.recomputed.clone())
-                    } else {
-                        (old.clone(), new.clone())
+                    let line = match &d.numbers {
+                        // Beyond the display precision the texts agree; show the numbers.
+                        Some((a, b, unit)) if old == new => {
+                            let n = |x: f64| match unit.as_str() {
+                                "1" | "" => units::format_number(x, 6),
+                                u => format!("{} {u}", units::format_number(x, 6)),
+                            };
+                            format!("{old} → {new} ({} → {})", n(*a), n(*b))
+                        }
+                        _ => format!("{old} → {new}"),
                     };
-                    changes.push((d.subject.clone(), old, new));
+                    changes.push((d.subject.clone(), line, String::new()));
                 }
                 (DiffKind::Flipped { now_passes }, _) => {
                     let verdict = if *now_passes {
@@ -224,9 +240,41 @@ fn change_summary(original: &Notebook, runs: &[CellRun]) -> String {
                     } else {
                         "✗ now fails "
                     };
-                    flips.push(format!("  {verdict}  {}   ({})", d.subject, r.label()));
+                    flips.push(format!(
+                        "  {verdict}  {}{}   ({})",
+                        d.subject,
+                        margin_change(r, &d),
+                        r.label()
+                    ));
                 }
-                _ => other += 1,
+                (DiffKind::Check, _) if d.numbers.is_some() => {
+                    margins.push(format!(
+                        "  {}{}   ({})",
+                        d.subject,
+                        margin_change(r, &d),
+                        r.label()
+                    ));
+                }
+                (DiffKind::Sweep, _) => {
+                    other.push(format!(
+                        "  {}: results changed   ({})",
+                        d.subject,
+                        r.label()
+                    ));
+                }
+                (DiffKind::Warning, _) if d.stored == compare::ABSENT => {
+                    other.push(format!("  new warning: {}   ({})", d.recomputed, r.label()));
+                }
+                (DiffKind::Warning, _) => {
+                    other.push(format!("  warning gone: {}   ({})", d.stored, r.label()));
+                }
+                _ => other.push(format!(
+                    "  {}: {}: {} → {}",
+                    r.label(),
+                    d.subject,
+                    d.stored,
+                    d.recomputed
+                )),
             }
         }
     }
@@ -234,7 +282,7 @@ fn change_summary(original: &Notebook, runs: &[CellRun]) -> String {
         let _ = writeln!(s, "\nNo stored outputs to compare with (first run)");
         return s;
     }
-    if changes.is_empty() && flips.is_empty() && other == 0 {
+    if changes.is_empty() && flips.is_empty() && margins.is_empty() && other.is_empty() {
         let _ = writeln!(s, "\nEvery result as stored");
         return s;
     }
@@ -245,24 +293,43 @@ fn change_summary(original: &Notebook, runs: &[CellRun]) -> String {
             .map(|c| c.0.chars().count())
             .max()
             .unwrap_or(0);
-        for (name, old, new) in &changes {
+        for (name, line, _) in &changes {
             let pad = " ".repeat(w - name.chars().count());
-            let _ = writeln!(s, "  {name}{pad}  {old} → {new}");
+            let _ = writeln!(s, "  {name}{pad}  {line}");
         }
     }
-    if !flips.is_empty() {
-        let _ = writeln!(s, "\nChecks that flipped");
-        for f in &flips {
-            let _ = writeln!(s, "{f}");
+    for (title, lines) in [
+        ("Checks that flipped", &flips),
+        ("Check margins that changed", &margins),
+        ("Other changes", &other),
+    ] {
+        if !lines.is_empty() {
+            let _ = writeln!(s, "\n{title}");
+            for l in lines {
+                let _ = writeln!(s, "{l}");
+            }
         }
-    }
-    if other > 0 {
-        let _ = writeln!(
-            s,
-            "\n{other} other difference(s) in checks, warnings or sweeps (`headroom verify` lists them)"
-        );
     }
     s
+}
+
+/// "   margin +142 h → -51.7 h", in the unit the check's dimension is shown in.
+fn margin_change(r: &CellRun, d: &Diff) -> String {
+    let Some((old, new, _)) = d.numbers else {
+        return String::new();
+    };
+    let row = r
+        .report
+        .as_ref()
+        .and_then(|rep| rep.checks.iter().find(|c| c.text == d.subject));
+    match row {
+        Some(c) => format!(
+            "   margin {} → {}",
+            units::format_difference(old, c.dim, 3),
+            units::format_difference(new, c.dim, 3)
+        ),
+        None => String::new(),
+    }
 }
 
 fn warnings_and_errors(runs: &[CellRun]) -> String {
@@ -475,7 +542,12 @@ pub fn seal(args: &SealArgs) -> anyhow::Result<u8> {
         .to_rfc3339_opts(chrono::SecondsFormat::Secs, true);
     let mut seal = serde_json::Map::new();
     seal.insert("reviewer".into(), reviewer.into());
-    if let Some(note) = args.note.as_deref().map(str::trim).filter(|n| !n.is_empty()) {
+    if let Some(note) = args
+        .note
+        .as_deref()
+        .map(str::trim)
+        .filter(|n| !n.is_empty())
+    {
         seal.insert("note".into(), note.into());
     }
     seal.insert("sealed_at".into(), sealed_at.into());
@@ -486,7 +558,7 @@ pub fn seal(args: &SealArgs) -> anyhow::Result<u8> {
     seal.insert("cells".into(), Value::Array(cells));
     let previous = nb.headroom().and_then(|h| h.get("seal")).map(seal_by);
     let text = seal_summary(path, &Value::Object(seal.clone()));
-    nb.headroom_mut().insert("seal".into(), Value::Object(seal));
+    ipynb::insert(nb.headroom_mut(), "seal", Value::Object(seal));
     ipynb::write_atomic(path, nb.to_text()?.as_bytes())?;
     let mut s = text;
     if let Some(p) = previous {
@@ -589,10 +661,7 @@ fn verify_one(path: &Path) -> anyhow::Result<(bool, String)> {
         .partition(|(_, d)| matches!(d.kind, DiffKind::Flipped { .. }));
     problems.extend(flips.iter().chain(&rest).map(|(c, d)| diff_line(c, d)));
     for (c, t) in &found.failing {
-        if !flips
-            .iter()
-            .any(|(fc, d)| fc == c && &d.subject == t)
-        {
+        if !flips.iter().any(|(fc, d)| fc == c && &d.subject == t) {
             problems.push(format!("{c}: check `{t}` fails"));
         }
     }
@@ -686,14 +755,20 @@ fn changed_cells(nb: &Notebook, seal: &Value) -> String {
             .or_else(|| keys.get(i).cloned().flatten())
             .unwrap_or_else(|| format!("#{}", i + 1))
     };
-    let sealed_id = |v: &Value| v.get("id").and_then(Value::as_str).unwrap_or("").to_string();
+    let sealed_id = |v: &Value| {
+        v.get("id")
+            .and_then(Value::as_str)
+            .unwrap_or("")
+            .to_string()
+    };
     let mut out = Vec::new();
     let mut current_ids = Vec::new();
     for (i, cell) in nb.cells().iter().enumerate() {
         let id = id_of(i, cell);
         let label = execute::label(i, &id);
         match sealed.iter().find(|s| sealed_id(s) == id) {
-            Some(s) if s.get("sha256").and_then(Value::as_str) == now.get(i).map(String::as_str) => {}
+            Some(s)
+                if s.get("sha256").and_then(Value::as_str) == now.get(i).map(String::as_str) => {}
             Some(_) => out.push(format!("{label} edited")),
             None => out.push(format!("{label} added")),
         }

@@ -20,7 +20,7 @@ pub(crate) fn display_id(cell_key: &str) -> String {
 
 /// The display id of a cell's `n`-th sweep chart (from 0), updated with its result block.
 pub(crate) fn chart_display_id(cell_key: &str, n: usize) -> String {
-    format!("headroom-{cell_key}-chart-{}", n + 1)
+    format!("headroom-{cell_key}-chart-{n}")
 }
 
 /// One output of a cell, in Jupyter's terms.
@@ -67,9 +67,7 @@ pub(crate) fn cell_outputs(ex: &Execution) -> CellOutputs {
         }],
         updates: Vec::new(),
     };
-    if let Some((ename, evalue, traceback)) = render::error_traceback(report) {
-        return failed(ename, evalue, traceback);
-    }
+    // An interrupted run has no place in the source to point at.
     if ex.interrupted {
         let evalue = "the run was interrupted; the worksheet and its results are unchanged";
         return failed(
@@ -77,6 +75,9 @@ pub(crate) fn cell_outputs(ex: &Execution) -> CellOutputs {
             evalue.into(),
             vec![format!("Interrupted: {evalue}")],
         );
+    }
+    if let Some((ename, evalue, traceback)) = render::error_traceback(report) {
+        return failed(ename, evalue, traceback);
     }
     let mut outputs = Vec::new();
     let block = render::bundle(report);
@@ -170,17 +171,40 @@ impl CellOutput {
     }
 }
 
-/// A MIME bundle with its `text/*` strings as lists of lines (JSON data stays as it is).
+/// A MIME bundle with its `text/*` and SVG strings as lists of lines, and every object's keys in
+/// sorted order, as Jupyter saves a notebook (so saving it again there changes nothing).
 fn split_text(data: &Map<String, Value>) -> Value {
+    let mut keys: Vec<&String> = data.keys().collect();
+    keys.sort();
     let mut out = Map::new();
-    for (k, v) in data {
-        let v = match v {
-            Value::String(s) if k.starts_with("text/") => super::ipynb::lines_value(s),
-            other => other.clone(),
+    for k in keys {
+        let v = match &data[k] {
+            // nbformat also splits SVG (`_non_text_split_mimes`), not base64 images.
+            Value::String(s) if k.starts_with("text/") || k == "image/svg+xml" => {
+                super::ipynb::lines_value(s)
+            }
+            other => sorted(other),
         };
         out.insert(k.clone(), v);
     }
     Value::Object(out)
+}
+
+/// A JSON value with the keys of every object in it sorted.
+fn sorted(v: &Value) -> Value {
+    match v {
+        Value::Object(m) => {
+            let mut keys: Vec<&String> = m.keys().collect();
+            keys.sort();
+            Value::Object(
+                keys.into_iter()
+                    .map(|k| (k.clone(), sorted(&m[k])))
+                    .collect(),
+            )
+        }
+        Value::Array(xs) => Value::Array(xs.iter().map(sorted).collect()),
+        other => other.clone(),
+    }
 }
 
 #[cfg(test)]

@@ -128,18 +128,18 @@ pub(crate) fn apply(nb: &mut Notebook, sets: &[SetValue]) -> Result<Vec<Rewrite>
             }
         }
     }
+    if rewrites.is_empty() {
+        return Ok(rewrites);
+    }
     let meta = nb.headroom_mut();
-    let recorded = meta
-        .entry("overrides")
-        .or_insert_with(|| Value::Object(Default::default()));
-    if !recorded.is_object() {
-        *recorded = Value::Object(Default::default());
+    let mut recorded = match meta.get("overrides") {
+        Some(Value::Object(m)) => m.clone(),
+        _ => Default::default(),
+    };
+    for r in &rewrites {
+        ipynb::insert(&mut recorded, &r.name, Value::String(r.text.clone()));
     }
-    if let Value::Object(m) = recorded {
-        for r in &rewrites {
-            m.insert(r.name.clone(), Value::String(r.text.clone()));
-        }
-    }
+    ipynb::insert(meta, "overrides", Value::Object(recorded));
     Ok(rewrites)
 }
 
@@ -193,7 +193,10 @@ mod tests {
         assert_eq!(r[0].old, "180 mA ± 20 %");
         assert_eq!(
             nb.cells()[0]["source"],
-            json!(["given iload = 250mA   \"logic\"  # measured\n", "p = iload * 5 V\n"])
+            json!([
+                "given iload = 250mA   \"logic\"  # measured\n",
+                "p = iload * 5 V\n"
+            ])
         );
         assert_eq!(
             nb.headroom().and_then(|h| h.get("overrides")),

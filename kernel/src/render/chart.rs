@@ -11,31 +11,47 @@
 //! small palette of mid-tone colours picked for this program, distinguishable on white and on
 //! a dark page around the card. Text is laid out with DejaVu Sans (shipped beside this file,
 //! licence in `fonts/LICENSE-DejaVu.txt`), so the PNG needs no system fonts; the SVG names the
-//! generic "sans-serif" family and the viewer's own font draws it.
+//! generic "sans-serif" family and the viewer's own font draws it. The PNG is the SVG
+//! rasterised by resvg with the embedded font.
 
 use super::html::capped_note;
 use super::sweep::{base_name, family_member, limit_applies, series_scale, Scale};
 use base64::Engine as _;
 use html_escape::encode_text;
+use plotters::coord::ranged1d::{DefaultFormatting, KeyPointHint};
+use plotters::coord::types::RangedCoordf64;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use plotters::style::{register_font, FontStyle};
+use resvg::{tiny_skia, usvg};
 use serde_json::{Map, Value};
 use std::panic::{catch_unwind, AssertUnwindSafe};
-use std::sync::OnceLock;
+use std::sync::{Arc, OnceLock};
+use usvg::fontdb;
 use worksheet_lang::results::{CellReport, SweepLimit, SweepSeries, SweepTable};
 use worksheet_lang::units::{format_si, Dim};
 
+/// The chart's size as shown, in pixels.
 const WIDTH: u32 = 760;
+/// The height of a chart whose legend fits beside it; a longer legend makes the chart taller.
 const HEIGHT: u32 = 420;
+/// The legend's first row and the spacing of its rows, in pixels.
+const LEGEND_TOP: f64 = 54.0;
+const LEGEND_ROW: f64 = 20.0;
+/// plotters draws at whole pixels; drawing at this many times the size keeps straight runs of
+/// a curve from showing steps.
+const SCALE: u32 = 4;
 /// Series with at most this many points get a small marker at each point; longer ones are
 /// drawn as lines alone, which keeps the SVG small.
 const MARKERS_UP_TO: usize = 30;
 /// Legend labels longer than this are shortened with "…".
 const LEGEND_CHARS: usize = 30;
 
+/// The family plotters lays text out with and the SVG names.
 const FONT_NAME: &str = "sans-serif";
+/// The embedded font's own family name, for resvg.
+const FONT_FAMILY: &str = "DejaVu Sans";
 const FONT: &[u8] = include_bytes!("fonts/DejaVuSans.ttf");
 
 const BACKGROUND: RGBColor = RGBColor(0xff, 0xff, 0xff);
@@ -125,18 +141,17 @@ pub(super) fn bundles(report: &CellReport, budget: usize) -> Vec<Map<String, Val
                 );
                 out.push(m);
             }
-            Err(e) => out.push(note(&format!("The chart of {} could not be drawn: {e}", c.title))),
+            Err(e) => out.push(note(&format!(
+                "The chart of {} could not be drawn: {e}",
+                c.title
+            ))),
         }
     }
     if !left_out.is_empty() {
         let what = if left_out.len() == 1 {
             format!("The chart of {} is", left_out[0])
         } else {
-            format!(
-                "{} charts ({}) are",
-                left_out.len(),
-                left_out.join("; ")
-            )
+            format!("{} charts ({}) are", left_out.len(), left_out.join("; "))
         };
         out.push(note(&capped_note(&what)));
     }
@@ -209,7 +224,8 @@ fn chart_of(s: &SweepTable, dim: Dim, absolute: bool, series: &[&SweepSeries]) -
         .iter()
         .enumerate()
         .map(|(k, se)| {
-            let take = |xs: &[f64]| -> Vec<f64> { xs.iter().take(n).map(|&y| yscale.show(y)).collect() };
+            let take =
+                |xs: &[f64]| -> Vec<f64> { xs.iter().take(n).map(|&y| yscale.show(y)).collect() };
             let nominal = take(&se.nominal);
             let band = (se.min.is_some() || se.max.is_some()).then(|| {
                 (
@@ -223,7 +239,7 @@ fn chart_of(s: &SweepTable, dim: Dim, absolute: bool, series: &[&SweepSeries]) -
             };
             Curve {
                 label: shorten(&label),
-                colour: PALETTE[k % PALETTE.len()],
+                colour: curve_colour(k, series.len()),
                 nominal,
                 band,
             }
@@ -250,7 +266,11 @@ fn chart_of(s: &SweepTable, dim: Dim, absolute: bool, series: &[&SweepSeries]) -
     let mut applying: Vec<&SweepLimit> = Vec::new();
     for l in &s.limits {
         let applies = series.iter().any(|se| limit_applies(l, &se.name));
-        if applies && !applying.iter().any(|a| a.limit == l.limit && a.text == l.text) {
+        if applies
+            && !applying
+                .iter()
+                .any(|a| a.limit == l.limit && a.text == l.text)
+        {
             applying.push(l);
         }
     }
@@ -322,8 +342,28 @@ fn chart_of(s: &SweepTable, dim: Dim, absolute: bool, series: &[&SweepSeries]) -
         has_band: curves.iter().any(|c| c.band.is_some()),
         curves,
         limits,
-        legend_title: if one_family { Some(bases[0].to_string()) } else { None },
+        legend_title: if one_family {
+            Some(bases[0].to_string())
+        } else {
+            None
+        },
     })
+}
+
+/// The colour of curve `k` of `n`: the palette in order; for more curves than it holds (a long
+/// family) a ramp from deep teal blue over moss to amber, so that neighbouring values of the
+/// family get neighbouring colours.
+fn curve_colour(k: usize, n: usize) -> RGBColor {
+    if n <= PALETTE.len() {
+        return PALETTE[k % PALETTE.len()];
+    }
+    let stops = [PALETTE[0], PALETTE[3], PALETTE[1]];
+    let t = k as f64 / (n - 1) as f64 * (stops.len() - 1) as f64;
+    let i = (t.floor() as usize).min(stops.len() - 2);
+    let f = t - i as f64;
+    let mix = |a: u8, b: u8| (f64::from(a) + (f64::from(b) - f64::from(a)) * f).round() as u8;
+    let (a, b) = (stops[i], stops[i + 1]);
+    RGBColor(mix(a.0, b.0), mix(a.1, b.1), mix(a.2, b.2))
 }
 
 /// "power", "absolute temperature": the kind of quantity, for a y axis holding several names.
@@ -345,14 +385,75 @@ fn shorten(label: &str) -> String {
     }
 }
 
-/// Tick label: as many decimals as a tenth of the axis span needs, no "-0".
-fn tick(v: f64, span: f64) -> String {
-    let step = span / 10.0;
-    let decimals = if step > 0.0 && step.is_finite() {
-        (-step.log10().floor()).clamp(0.0, 9.0) as usize
-    } else {
-        3
+/// Evenly spaced axis ticks at 1, 2 or 5 times a power of ten, at most `max` of them, and
+/// the decimals their step needs.
+fn ticks(lo: f64, hi: f64, max: usize) -> (Vec<f64>, usize) {
+    let span = hi - lo;
+    if !(span > 0.0 && span.is_finite()) {
+        return (vec![lo], 3);
+    }
+    // Tick indices k with lo ≤ k·step ≤ hi, allowing for rounding (-0.3 / 0.1 is a hair
+    // above -3).
+    let indices = |step: f64| {
+        (
+            (lo / step - 1e-9).ceil() as i64,
+            (hi / step + 1e-9).floor() as i64,
+        )
     };
+    let raw = span / max.max(1) as f64;
+    let mag = 10f64.powf(raw.log10().floor());
+    let step = [1.0, 2.0, 5.0, 10.0, 20.0]
+        .iter()
+        .map(|m| m * mag)
+        .find(|&st| {
+            let (a, b) = indices(st);
+            b - a < max.max(1) as i64
+        })
+        .unwrap_or(20.0 * mag);
+    let (first, last) = indices(step);
+    let values = (first..=last).map(|k| k as f64 * step).collect();
+    // A step of 0.05 needs two decimals, 20 none: the decimals of its leading digit.
+    let decimals = (-(step.log10() + 1e-9).floor()).clamp(0.0, 9.0) as usize;
+    (values, decimals)
+}
+
+/// A linear axis whose ticks are the ones [`ticks`] chose, so their labels can be written with
+/// the decimals of that step. plotters' own key-point combinator offers no formatter for its
+/// labels through the mesh; this is the axis trait with the ticks fixed.
+struct TickedAxis {
+    linear: RangedCoordf64,
+    ticks: Vec<f64>,
+}
+
+impl TickedAxis {
+    fn new(lo: f64, hi: f64, ticks: Vec<f64>) -> Self {
+        TickedAxis {
+            linear: (lo..hi).into(),
+            ticks,
+        }
+    }
+}
+
+impl Ranged for TickedAxis {
+    type FormatOption = DefaultFormatting;
+    type ValueType = f64;
+
+    fn map(&self, value: &f64, limit: (i32, i32)) -> i32 {
+        self.linear.map(value, limit)
+    }
+
+    /// The ticks, for bold and light mesh lines alike (the light ones are not drawn).
+    fn key_points<Hint: KeyPointHint>(&self, _hint: Hint) -> Vec<f64> {
+        self.ticks.clone()
+    }
+
+    fn range(&self) -> std::ops::Range<f64> {
+        self.linear.range()
+    }
+}
+
+/// A tick label with `decimals` decimals, without a "-0".
+fn tick(v: f64, decimals: usize) -> String {
     let s = format!("{v:.decimals$}");
     match s.strip_prefix('-') {
         Some(rest) if rest.chars().all(|c| c == '0' || c == '.') => rest.to_string(),
@@ -360,52 +461,93 @@ fn tick(v: f64, span: f64) -> String {
     }
 }
 
+/// Pixel lengths of the design, at the chart's logical size.
+fn px(v: f64) -> i32 {
+    (v * f64::from(SCALE)).round() as i32
+}
+
+fn stroke(colour: RGBColor, width: f64) -> ShapeStyle {
+    colour.stroke_width(px(width).max(1) as u32)
+}
+
 /// The chart as SVG text and as PNG bytes.
 fn draw_both(c: &Chart) -> Result<(String, Vec<u8>), String> {
     if !font_ready() {
         return Err("the chart font could not be loaded".into());
     }
+    let height = HEIGHT.max(legend_rows(c) * LEGEND_ROW as u32 + LEGEND_TOP as u32 + 16);
+    let canvas = (WIDTH * SCALE, height * SCALE);
     // plotters may panic on coordinates it cannot handle; a chart is not worth the kernel.
     catch_unwind(AssertUnwindSafe(|| {
         let mut svg = String::new();
         {
-            let root = SVGBackend::with_string(&mut svg, (WIDTH, HEIGHT)).into_drawing_area();
+            let root = SVGBackend::with_string(&mut svg, canvas).into_drawing_area();
             draw(&root, c)?;
             root.present().map_err(|e| e.to_string())?;
         }
-        let mut rgb = vec![0u8; (WIDTH * HEIGHT * 3) as usize];
-        {
-            let root = BitMapBackend::with_buffer(&mut rgb, (WIDTH, HEIGHT)).into_drawing_area();
-            draw(&root, c)?;
-            root.present().map_err(|e| e.to_string())?;
-        }
-        Ok((svg, encode_png(&rgb, WIDTH, HEIGHT)?))
+        // plotters writes integer coordinates: it draws on a canvas SCALE times the size,
+        // and the SVG is shown at the logical size through its viewBox.
+        let drawn = format!(r#"<svg width="{}" height="{}""#, canvas.0, canvas.1);
+        let shown = format!(r#"<svg width="{WIDTH}" height="{height}""#);
+        let svg = svg.replacen(&drawn, &shown, 1);
+        let png = rasterise(&svg)?;
+        Ok((svg, png))
     }))
     .unwrap_or_else(|_| Err("the charting library failed".into()))
 }
 
-fn encode_png(rgb: &[u8], width: u32, height: u32) -> Result<Vec<u8>, String> {
-    let mut out = Vec::new();
-    {
-        let mut enc = png::Encoder::new(&mut out, width, height);
-        enc.set_color(png::ColorType::Rgb);
-        enc.set_depth(png::BitDepth::Eight);
-        let mut w = enc.write_header().map_err(|e| e.to_string())?;
-        w.write_image_data(rgb).map_err(|e| e.to_string())?;
-        w.finish().map_err(|e| e.to_string())?;
+/// The rows of a chart's legend: its title, a row per curve and one for the bands; none when
+/// a single curve without a band needs no legend.
+fn legend_rows(c: &Chart) -> u32 {
+    if c.curves.len() < 2 && !c.has_band {
+        return 0;
     }
-    Ok(out)
+    (usize::from(c.legend_title.is_some()) + c.curves.len() + usize::from(c.has_band)) as u32
 }
 
-fn font(size: f64, colour: RGBColor) -> TextStyle<'static> {
-    (FONT_NAME, size).into_font().color(&colour)
+/// The fonts resvg may use: the embedded DejaVu Sans alone, standing for "sans-serif".
+fn font_database() -> Arc<fontdb::Database> {
+    static DB: OnceLock<Arc<fontdb::Database>> = OnceLock::new();
+    DB.get_or_init(|| {
+        let mut db = fontdb::Database::new();
+        db.load_font_data(FONT.to_vec());
+        db.set_sans_serif_family(FONT_FAMILY);
+        Arc::new(db)
+    })
+    .clone()
 }
+
+/// The SVG drawn as a PNG at its shown size.
+fn rasterise(svg: &str) -> Result<Vec<u8>, String> {
+    let options = usvg::Options {
+        fontdb: font_database(),
+        font_family: FONT_FAMILY.to_string(),
+        ..usvg::Options::default()
+    };
+    let tree = usvg::Tree::from_str(svg, &options).map_err(|e| e.to_string())?;
+    let size = tree.size().to_int_size();
+    let mut pixmap = tiny_skia::Pixmap::new(size.width(), size.height())
+        .ok_or_else(|| "the chart has no area".to_string())?;
+    resvg::render(&tree, tiny_skia::Transform::default(), &mut pixmap.as_mut());
+    pixmap.encode_png().map_err(|e| e.to_string())
+}
+
+/// A font whose em is `size` logical pixels. plotters writes an SVG font size of its own
+/// size divided by 1.24, hence the factor.
+fn font(size: f64, colour: RGBColor) -> TextStyle<'static> {
+    (FONT_NAME, size * 1.24 * f64::from(SCALE))
+        .into_font()
+        .color(&colour)
+}
+
+/// A rectangle in canvas pixels: left, top, right, bottom.
+type BoxPx = (i32, i32, i32, i32);
 
 fn draw<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, c: &Chart) -> Result<(), String> {
     let err = |e: DrawingAreaErrorKind<DB::ErrorType>| e.to_string();
     root.fill(&BACKGROUND).map_err(err)?;
 
-    let legend_font = font(12.5, TEXT);
+    let legend_font = font(12.0, TEXT);
     let mut entries: Vec<(String, Swatch)> = Vec::new();
     if c.curves.len() > 1 || c.has_band {
         for cv in &c.curves {
@@ -420,63 +562,71 @@ fn draw<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, c: &Chart) -> Result<
             entries.push(("worst case".into(), Swatch::Band(colour)));
         }
     }
-    let mut legend_width = 0u32;
+    let mut legend_width = 0i32;
     if !entries.is_empty() {
-        let mut widest = 0u32;
-        for (label, _) in entries.iter().chain(
-            c.legend_title
-                .as_ref()
-                .map(|t| (t.clone(), Swatch::Line(TEXT)))
-                .iter(),
-        ) {
+        let mut widest = 0i32;
+        let title = c.legend_title.iter().map(String::as_str);
+        for label in entries.iter().map(|e| e.0.as_str()).chain(title) {
             let (w, _) = root.estimate_text_size(label, &legend_font).map_err(err)?;
-            widest = widest.max(w);
+            widest = widest.max(w as i32);
         }
-        legend_width = (widest + 46).clamp(110, 280);
+        legend_width = (widest + px(52.0)).clamp(px(110.0), px(280.0));
     }
-    let (plot, legend) = root.split_horizontally(WIDTH - legend_width);
+    let full_width = root.dim_in_pixel().0 as i32;
+    let (plot, legend) = root.split_horizontally(full_width - legend_width);
 
-    // Title, top left over the plot.
-    root.draw_text(&c.title, &font(15.0, TEXT), (14, 12))
+    root.draw_text(&c.title, &font(14.5, TEXT), (px(16.0), px(12.0)))
         .map_err(err)?;
 
     let (x0, x1) = c.x_range;
     let (y0, y1) = c.y_range;
+    let (xticks, xdec) = ticks(x0, x1, 8);
+    let (yticks, ydec) = ticks(y0, y1, 7);
+    // Room left of the plot for the widest tick label, the tick marks and the rotated axis
+    // label, so the axis label stays close to its numbers.
+    let tick_font = font(11.5, TICKS);
+    let mut widest_tick = 0i32;
+    for &v in &yticks {
+        let (w, _) = root
+            .estimate_text_size(&tick(v, ydec), &tick_font)
+            .map_err(err)?;
+        widest_tick = widest_tick.max(w as i32);
+    }
     let mut chart = ChartBuilder::on(&plot)
-        .margin_top(40)
-        .margin_left(8)
-        .margin_right(if legend_width > 0 { 8 } else { 22 })
-        .margin_bottom(8)
-        .x_label_area_size(46)
-        .y_label_area_size(66)
-        .build_cartesian_2d(x0..x1, y0..y1)
+        .margin_top(px(44.0))
+        .margin_left(px(8.0))
+        .margin_right(px(if legend_width > 0 { 10.0 } else { 24.0 }))
+        .margin_bottom(px(6.0))
+        .x_label_area_size(px(44.0))
+        .y_label_area_size(widest_tick + px(36.0))
+        .build_cartesian_2d(
+            TickedAxis::new(x0, x1, xticks),
+            TickedAxis::new(y0, y1, yticks),
+        )
         .map_err(err)?;
-    let xspan = x1 - x0;
-    let yspan = y1 - y0;
-    let xfmt = |v: &f64| tick(*v, xspan);
-    let yfmt = |v: &f64| tick(*v, yspan);
+    let xfmt = |v: &f64| tick(*v, xdec);
+    let yfmt = |v: &f64| tick(*v, ydec);
     chart
         .configure_mesh()
         .disable_x_mesh()
-        .bold_line_style(GRID.stroke_width(1))
+        .bold_line_style(stroke(GRID, 1.0))
         .light_line_style(TRANSPARENT)
-        .axis_style(AXIS.stroke_width(1))
-        .x_labels(8)
-        .y_labels(7)
+        .axis_style(stroke(AXIS, 1.0))
         .x_label_formatter(&xfmt)
         .y_label_formatter(&yfmt)
-        .label_style(font(12.0, TICKS))
-        .axis_desc_style(font(13.0, TEXT))
+        .label_style(tick_font)
+        .axis_desc_style(font(12.5, TEXT))
         .x_desc(c.x_label.clone())
         .y_desc(c.y_label.clone())
-        .set_all_tick_mark_size(4)
+        .set_all_tick_mark_size(px(4.0))
         .draw()
         .map_err(err)?;
 
     // Bands under everything else.
     for cv in &c.curves {
         if let Some((lo, hi)) = &cv.band {
-            let mut outline: Vec<(f64, f64)> = c.xs.iter().copied().zip(hi.iter().copied()).collect();
+            let mut outline: Vec<(f64, f64)> =
+                c.xs.iter().copied().zip(hi.iter().copied()).collect();
             outline.extend(c.xs.iter().copied().zip(lo.iter().copied()).rev());
             chart
                 .draw_series(std::iter::once(Polygon::new(
@@ -487,86 +637,146 @@ fn draw<DB: DrawingBackend>(root: &DrawingArea<DB, Shift>, c: &Chart) -> Result<
         }
     }
 
-    // Limits: a dashed line across the plot, its text above it at the right end (below it
-    // when the line runs along the top of the plot).
-    let limit_font = font(12.0, LIMIT);
-    for l in &c.limits {
-        match l.off_chart {
-            None => {
-                chart
-                    .draw_series(DashedLineSeries::new(
-                        [(x0, l.y), (x1, l.y)],
-                        7,
-                        5,
-                        LIMIT.stroke_width(2),
-                    ))
-                    .map_err(err)?;
-                let near_top = (y1 - l.y) < 0.08 * yspan;
-                let (w, h) = plot.estimate_text_size(&l.label, &limit_font).map_err(err)?;
-                let (w, h) = (w as i32, h as i32);
-                let (top, anchor) = if near_top {
-                    (4, VPos::Top)
-                } else {
-                    (-h - 5, VPos::Bottom)
-                };
-                let text_y = if near_top { 5 } else { -4 };
-                let backdrop = Rectangle::new(
-                    [(-w - 10, top), (-2, top + h + 2)],
-                    BACKGROUND.mix(0.85).filled(),
-                );
-                let label = Text::new(
-                    l.label.clone(),
-                    (-6, text_y),
-                    limit_font.pos(Pos::new(HPos::Right, anchor)),
-                );
-                chart
-                    .draw_series(std::iter::once(
-                        EmptyElement::at((x1, l.y)) + backdrop + label,
-                    ))
-                    .map_err(err)?;
-            }
-            Some(above) => {
-                let (y, anchor, dy) = if above {
-                    (y1, VPos::Top, 4)
-                } else {
-                    (y0, VPos::Bottom, -4)
-                };
-                chart
-                    .draw_series(std::iter::once(
-                        EmptyElement::at((x1, y))
-                            + Text::new(
-                                l.label.clone(),
-                                (-6, dy),
-                                limit_font.pos(Pos::new(HPos::Right, anchor)),
-                            ),
-                    ))
-                    .map_err(err)?;
-            }
-        }
+    // Limit lines: dashed, across the plot.
+    for l in c.limits.iter().filter(|l| l.off_chart.is_none()) {
+        chart
+            .draw_series(DashedLineSeries::new(
+                [(x0, l.y), (x1, l.y)],
+                px(7.0),
+                px(4.0),
+                stroke(LIMIT, 1.75),
+            ))
+            .map_err(err)?;
     }
 
-    // Nominal curves on top.
+    // Nominal curves over the bands and limits.
     for cv in &c.curves {
-        let points: Vec<(f64, f64)> = c.xs.iter().copied().zip(cv.nominal.iter().copied()).collect();
-        let markers = points.len() <= MARKERS_UP_TO;
+        let points: Vec<(f64, f64)> =
+            c.xs.iter()
+                .copied()
+                .zip(cv.nominal.iter().copied())
+                .collect();
         chart
-            .draw_series(LineSeries::new(points.iter().copied(), cv.colour.stroke_width(2)))
+            .draw_series(LineSeries::new(
+                points.iter().copied(),
+                stroke(cv.colour, 2.25),
+            ))
             .map_err(err)?;
-        if markers {
+        if points.len() <= MARKERS_UP_TO {
             chart
                 .draw_series(
                     points
                         .iter()
-                        .map(|&p| Circle::new(p, 2, cv.colour.filled())),
+                        .map(|&p| Circle::new(p, px(2.75), cv.colour.filled())),
                 )
                 .map_err(err)?;
         }
+    }
+
+    // Limit labels last, each on a light backdrop where it covers the least of the curves.
+    let to_px = |x: f64, y: f64| chart.backend_coord(&(x, y));
+    let (left, top) = to_px(x0, y1);
+    let (right, bottom) = to_px(x1, y0);
+    let obstacles = curve_pixels(&to_px, c);
+    let limit_font = font(11.5, LIMIT);
+    let mut placed: Vec<BoxPx> = Vec::new();
+    for l in &c.limits {
+        let (w, h) = root
+            .estimate_text_size(&l.label, &limit_font)
+            .map_err(err)?;
+        let (w, h) = (w as i32 + px(6.0), h as i32 + px(4.0));
+        let ly = to_px(x0, l.y).1;
+        let rows: Vec<i32> = match l.off_chart {
+            None => vec![ly - px(4.0) - h, ly + px(4.0)],
+            Some(true) => vec![top + px(3.0)],
+            Some(false) => vec![bottom - px(3.0) - h],
+        };
+        let near = px(2.0);
+        let mut best: Option<(f64, BoxPx)> = None;
+        for &by in &rows {
+            if by < top || by + h > bottom {
+                continue;
+            }
+            for bx in [right - px(6.0) - w, left + px(6.0)] {
+                let b = (bx, by, bx + w, by + h);
+                let inside = |x: i32, y: i32| {
+                    x >= b.0 - near && x <= b.2 + near && y >= b.1 - near && y <= b.3 + near
+                };
+                let mut score: f64 = obstacles
+                    .iter()
+                    .filter(|(x, y, _)| inside(*x, *y))
+                    .map(|(_, _, weight)| weight)
+                    .sum();
+                if placed
+                    .iter()
+                    .any(|p| p.0 < b.2 && b.0 < p.2 && p.1 < b.3 && b.1 < p.3)
+                {
+                    score += 1e6;
+                }
+                if best.is_none_or(|(s, _)| score < s) {
+                    best = Some((score, b));
+                }
+            }
+        }
+        // A plot too short for the label above or below the line: on the line itself.
+        let b = best.map_or_else(
+            || {
+                let y = ly.clamp(top, bottom) - h / 2;
+                (right - px(6.0) - w, y, right - px(6.0), y + h)
+            },
+            |(_, b)| b,
+        );
+        root.draw(&Rectangle::new(
+            [(b.0, b.1), (b.2, b.3)],
+            BACKGROUND.mix(0.85).filled(),
+        ))
+        .map_err(err)?;
+        root.draw_text(
+            &l.label,
+            &limit_font.pos(Pos::new(HPos::Left, VPos::Center)),
+            (b.0 + px(3.0), (b.1 + b.3) / 2),
+        )
+        .map_err(err)?;
+        placed.push(b);
     }
 
     if !entries.is_empty() {
         draw_legend(&legend, c.legend_title.as_deref(), &entries, &legend_font).map_err(err)?;
     }
     Ok(())
+}
+
+/// Points along every curve in canvas pixels, a few pixels apart, with how much covering
+/// them hurts: a nominal curve more than a band's edge.
+fn curve_pixels(to_px: &dyn Fn(f64, f64) -> (i32, i32), c: &Chart) -> Vec<(i32, i32, f64)> {
+    let mut out = Vec::new();
+    let gap = px(3.0).max(1);
+    let mut trace = |ys: &[f64], weight: f64| {
+        let pts: Vec<(i32, i32)> = c.xs.iter().zip(ys).map(|(&x, &y)| to_px(x, y)).collect();
+        for pair in pts.windows(2) {
+            let ((ax, ay), (bx, by)) = (pair[0], pair[1]);
+            let steps = ((bx - ax).abs().max((by - ay).abs()) / gap).clamp(1, 400);
+            for k in 0..steps {
+                let t = f64::from(k) / f64::from(steps);
+                out.push((
+                    ax + (f64::from(bx - ax) * t) as i32,
+                    ay + (f64::from(by - ay) * t) as i32,
+                    weight,
+                ));
+            }
+        }
+        if let Some(&(x, y)) = pts.last() {
+            out.push((x, y, weight));
+        }
+    };
+    for cv in &c.curves {
+        trace(&cv.nominal, 3.0);
+        if let Some((lo, hi)) = &cv.band {
+            trace(lo, 1.0);
+            trace(hi, 1.0);
+        }
+    }
+    out
 }
 
 enum Swatch {
@@ -580,23 +790,28 @@ fn draw_legend<DB: DrawingBackend>(
     entries: &[(String, Swatch)],
     style: &TextStyle<'_>,
 ) -> Result<(), DrawingAreaErrorKind<DB::ErrorType>> {
-    let left = 4;
-    let mut y = 52;
+    let left = px(4.0);
+    let mut y = px(LEGEND_TOP);
+    let row = px(LEGEND_ROW);
     if let Some(t) = title {
-        area.draw_text(t, &font(12.5, TICKS), (left, y - 6))?;
-        y += 20;
+        area.draw_text(
+            t,
+            &font(12.0, TICKS).pos(Pos::new(HPos::Left, VPos::Center)),
+            (left, y),
+        )?;
+        y += row;
     }
     for (label, swatch) in entries {
         match swatch {
             Swatch::Line(colour) => {
                 area.draw(&PathElement::new(
-                    vec![(left, y), (left + 24, y)],
-                    colour.stroke_width(2),
+                    vec![(left, y), (left + px(24.0), y)],
+                    stroke(*colour, 2.25),
                 ))?;
             }
             Swatch::Band(colour) => {
                 area.draw(&Rectangle::new(
-                    [(left, y - 6), (left + 24, y + 6)],
+                    [(left, y - px(6.0)), (left + px(24.0), y + px(6.0))],
                     colour.mix(BAND_ALPHA * 1.6).filled(),
                 ))?;
             }
@@ -604,14 +819,19 @@ fn draw_legend<DB: DrawingBackend>(
         area.draw_text(
             label,
             &style.pos(Pos::new(HPos::Left, VPos::Center)),
-            (left + 32, y),
+            (left + px(32.0), y),
         )?;
-        y += 20;
+        y += row;
     }
     Ok(())
 }
 
 #[cfg(test)]
-pub(super) fn tick_text(v: f64, span: f64) -> String {
-    tick(v, span)
+pub(super) fn tick_values(lo: f64, hi: f64, max: usize) -> (Vec<f64>, usize) {
+    ticks(lo, hi, max)
+}
+
+#[cfg(test)]
+pub(super) fn tick_text(v: f64, decimals: usize) -> String {
+    tick(v, decimals)
 }

@@ -1,7 +1,7 @@
 //! Sweep tables and charts of hand-built sweeps. Every expected number is worked out by hand
 //! from the formulas written beside the data, not taken from the renderer's output.
 
-use super::chart::tick_text;
+use super::chart::{tick_text, tick_values};
 use super::*;
 use base64::Engine as _;
 use worksheet_lang::results::{SweepLimit, SweepSeries, SweepTable, ValueRow};
@@ -85,13 +85,13 @@ fn family_sweep() -> SweepTable {
 }
 
 /// 50 points, i = 10 mA … 500 mA in steps of 10 mA (k = 0 … 49, i = 10 mA · (k + 1)):
-/// tj = 350.15 K − |k − 24| K (a peak of 77.0 °C at k = 24, i = 250 mA), band ±2 K, so the
-/// band's maximum is at k = 24 and its minimum at k = 49 (325.15 − 2 K; k = 0 gives 326.15 − 2);
+/// tj = 350.15 K − |k − 23| K (a peak of 77.0 °C at k = 23, i = 240 mA), band ±2 K, so the
+/// band's maximum is at k = 23 and its minimum at k = 49 (324.15 − 2 K; k = 0 gives 327.15 − 2);
 /// loss = 1 W + 10 mW · |k − 10| without a band: smallest (1.00 W) at k = 10, largest (1.39 W)
 /// at k = 49.
 fn long_sweep() -> SweepTable {
     let k: Vec<f64> = (0..50).map(f64::from).collect();
-    let tj: Vec<f64> = k.iter().map(|k| 350.15 - (k - 24.0).abs()).collect();
+    let tj: Vec<f64> = k.iter().map(|k| 350.15 - (k - 23.0).abs()).collect();
     let mut tj = series("tj", Dim::TEMPERATURE, true, tj);
     tj.min = Some(tj.nominal.iter().map(|t| t - 2.0).collect());
     tj.max = Some(tj.nominal.iter().map(|t| t + 2.0).collect());
@@ -138,12 +138,8 @@ fn points_of(node: roxmltree::Node<'_, '_>) -> Vec<(f64, f64)> {
 fn one_chart_per_dimension_and_absoluteness() {
     let mut s = power_sweep();
     // pin = 12 V · i is a power too: it joins p's chart.
-    s.series.push(series(
-        "pin",
-        Dim::POWER,
-        false,
-        vec![1.2, 2.4, 3.6],
-    ));
+    s.series
+        .push(series("pin", Dim::POWER, false, vec![1.2, 2.4, 3.6]));
     // A temperature rise is a temperature difference, not an absolute temperature: a chart
     // of its own, apart from tj.
     s.series.push(series(
@@ -172,7 +168,7 @@ fn one_chart_per_dimension_and_absoluteness() {
             ["image/svg+xml", "image/png", "text/plain"]
         );
     }
-    assert!(charts(&cell(vec![])).is_empty());
+    assert!(super::charts(&cell(vec![])).is_empty());
 }
 
 #[test]
@@ -216,7 +212,11 @@ fn chart_svg_has_band_limit_and_axis_units() {
         .filter(|n| n.attribute("stroke") == Some("#C43D33"))
         .flat_map(|n| {
             if n.has_tag_name("line") {
-                let a = |k| n.attribute(k).and_then(|v| v.parse().ok()).unwrap_or(f64::NAN);
+                let a = |k| {
+                    n.attribute(k)
+                        .and_then(|v| v.parse().ok())
+                        .unwrap_or(f64::NAN)
+                };
                 vec![(a("x1"), a("y1")), (a("x2"), a("y2"))]
             } else {
                 points_of(n)
@@ -227,13 +227,22 @@ fn chart_svg_has_band_limit_and_axis_units() {
     let y = dashes[0].1;
     assert!(dashes.iter().all(|p| p.1 == y), "horizontal: {dashes:?}");
     let (right_top, right_bottom) = (band[2].1, band[3].1);
-    assert!(right_top < y && y < right_bottom, "{right_top} < {y} < {right_bottom}");
+    assert!(
+        right_top < y && y < right_bottom,
+        "{right_top} < {y} < {right_bottom}"
+    );
 
     // Axis labels with units: i up to 0.3 A is shown in mA, p up to 2.31 W in W.
     assert!(t.contains(&"i [mA]"), "{t:?}");
-    assert!(t.contains(&"p, pin [W]") || t.contains(&"p [W]"), "{t:?}");
-    assert!(t.contains(&"100") && t.contains(&"300"), "x ticks in mA: {t:?}");
-    assert!(t.contains(&"worst case"), "the band is named in the legend: {t:?}");
+    assert!(t.contains(&"p [W]"), "{t:?}");
+    assert!(
+        t.contains(&"100") && t.contains(&"300"),
+        "x ticks in mA: {t:?}"
+    );
+    assert!(
+        t.contains(&"worst case"),
+        "the band is named in the legend: {t:?}"
+    );
 
     // The temperature chart has no limit and is labelled in °C (53 … 109 °C).
     let doc = parse(svg_of(&charts[1]));
@@ -256,12 +265,20 @@ fn a_family_gets_a_legend_and_one_limit() {
     let doc = parse(svg);
     let t = texts(&doc);
     for member in ["vin = 10.0 V", "vin = 12.0 V", "vin = 14.0 V"] {
-        assert_eq!(t.iter().filter(|s| **s == member).count(), 1, "{member}: {t:?}");
+        assert_eq!(
+            t.iter().filter(|s| **s == member).count(),
+            1,
+            "{member}: {t:?}"
+        );
     }
     assert!(t.contains(&"loss"), "legend title: {t:?}");
     assert!(t.contains(&"loss [W]"), "{t:?}");
     // One limit for the whole family, however many members it applies to.
-    assert_eq!(t.iter().filter(|s| **s == "loss <= 2 W").count(), 1, "{t:?}");
+    assert_eq!(
+        t.iter().filter(|s| **s == "loss <= 2 W").count(),
+        1,
+        "{t:?}"
+    );
     // Three bands and three nominal curves, each member in its own colour.
     let bands = doc
         .descendants()
@@ -276,6 +293,101 @@ fn a_family_gets_a_legend_and_one_limit() {
     colours.sort_unstable();
     colours.dedup();
     assert_eq!(colours.len(), 3, "{colours:?}");
+}
+
+/// Sweeps at the edges: one point, a flat zero, negative, huge and tiny values, and a limit
+/// far above the data.
+fn odd_sweeps() -> Vec<SweepTable> {
+    let one = |name: &str, points: Vec<f64>, ys: Vec<f64>| SweepTable {
+        over: "x".into(),
+        dim: Dim::VOLTAGE,
+        absolute: false,
+        points,
+        series: vec![series(name, Dim::POWER, false, ys)],
+        limits: Vec::new(),
+    };
+    let mut far = one("far", vec![1.0, 2.0, 3.0], vec![1.0, 1.1, 1.2]);
+    // 1 kW against data of about 1 W: named at the top edge, not drawn across.
+    far.limits.push(limit("far", 1000.0, "far <= 1 kW"));
+    vec![
+        one("single", vec![5.0], vec![2.0]),
+        one("flat", vec![1.0, 2.0, 3.0], vec![0.0, 0.0, 0.0]),
+        one("negative", vec![-3.0, -2.0, -1.0], vec![-5e-3, -2e-3, 1e-3]),
+        one("huge", vec![1e9, 2e9], vec![3e12, 4e12]),
+        one("tiny", vec![1e-12, 2e-12], vec![1e-15, 3e-15]),
+        far,
+    ]
+}
+
+#[test]
+fn odd_sweeps_still_draw() {
+    let sweeps = odd_sweeps();
+    let charts = charts(&cell(sweeps));
+    assert_eq!(charts.len(), 6);
+    for b in &charts {
+        let svg = b
+            .get("image/svg+xml")
+            .and_then(Value::as_str)
+            .unwrap_or_else(|| panic!("no chart: {:?}", b.get("text/plain")));
+        parse(svg);
+    }
+    let far = parse(svg_of(&charts[5]));
+    let t = texts(&far);
+    assert!(
+        t.iter()
+            .any(|s| s.starts_with("▲ far <= 1 kW") && s.contains("off the chart")),
+        "{t:?}"
+    );
+}
+
+/// A family of 20 members, the most a family may have.
+fn long_family() -> SweepTable {
+    let members: Vec<SweepSeries> = (0..20)
+        .map(|k| {
+            series(
+                &format!("loss (vin = {} V)", 10 + k),
+                Dim::POWER,
+                false,
+                vec![0.1 * f64::from(k), 0.2 * f64::from(k)],
+            )
+        })
+        .collect();
+    SweepTable {
+        over: "i".into(),
+        dim: Dim::CURRENT,
+        absolute: false,
+        points: vec![0.1, 0.2],
+        series: members,
+        limits: Vec::new(),
+    }
+}
+
+#[test]
+fn a_long_family_fits_its_legend() {
+    // Each member is named in the legend, which makes the chart taller than usual
+    // (54 + 21 rows of 20 px + 16 > 420).
+    let s = long_family();
+    let charts = charts(&cell(vec![s]));
+    let doc = parse(svg_of(&charts[0]));
+    let height: f64 = doc
+        .root_element()
+        .attribute("height")
+        .and_then(|h| h.parse().ok())
+        .unwrap_or(0.0);
+    assert_eq!(height, 54.0 + 21.0 * 20.0 + 16.0);
+    let t = texts(&doc);
+    for k in 0..20 {
+        let member = format!("vin = {} V", 10 + k);
+        assert!(t.contains(&member.as_str()), "{member}: {t:?}");
+    }
+    let mut colours: Vec<&str> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("polyline") && points_of(*n).len() == 2)
+        .filter_map(|n| n.attribute("stroke"))
+        .collect();
+    colours.sort_unstable();
+    colours.dedup();
+    assert!(colours.len() >= 20, "{colours:?}");
 }
 
 #[test]
@@ -297,11 +409,14 @@ fn png_fallback_is_a_png_of_the_chart_size() {
             .attribute(k)
             .and_then(|v| v.parse::<u32>().ok())
     };
-    assert_eq!((Some(info.width), Some(info.height)), (size("width"), size("height")));
+    assert_eq!(
+        (Some(info.width), Some(info.height)),
+        (size("width"), size("height"))
+    );
     // Drawn on, not a blank page: well over 1 % of the pixels are not white.
     let pixels = &buf[..info.buffer_size()];
     let inked = pixels
-        .chunks(3)
+        .chunks(info.color_type.samples())
         .filter(|p| p.iter().any(|&c| c < 200))
         .count();
     assert!(inked * 100 > (info.width * info.height) as usize, "{inked}");
@@ -320,10 +435,16 @@ fn charts_past_the_cap_become_a_note() {
     let note = &capped[1];
     assert!(!note.contains_key("image/svg+xml") && !note.contains_key("image/png"));
     let plain = note["text/plain"].as_str().unwrap_or_default();
-    assert!(plain.contains("tj over i") && plain.contains("left out"), "{plain}");
+    assert!(
+        plain.contains("tj over i") && plain.contains("left out"),
+        "{plain}"
+    );
     assert!(plain.contains("2 MiB"), "{plain}");
     let html = note["text/html"].as_str().unwrap_or_default();
-    assert!(html.starts_with("<div") && html.ends_with("</div>"), "{html}");
+    assert!(
+        html.starts_with("<div") && html.ends_with("</div>"),
+        "{html}"
+    );
 }
 
 #[test]
@@ -348,7 +469,10 @@ fn oversize_html_drops_sweep_tables_first_then_the_block() {
     assert!(!h.contains("Sweep: i from"));
     assert!(h.ends_with("</div>"));
     // The plain text keeps the table.
-    assert!(b["text/plain"].as_str().unwrap_or_default().contains("▲ max tj"));
+    assert!(b["text/plain"]
+        .as_str()
+        .unwrap_or_default()
+        .contains("▲ max tj"));
     // No room left for charts: a note instead.
     let c = charts(&r);
     assert_eq!(c.len(), 1);
@@ -362,16 +486,30 @@ fn oversize_html_drops_sweep_tables_first_then_the_block() {
     r.values = vec![v];
     let b = bundle(&r);
     let h = b["text/html"].as_str().unwrap_or_default();
-    assert!(h.len() < 1000 && h.contains("The result block is left out"), "{}", h.len());
+    assert!(
+        h.len() < 1000 && h.contains("The result block is left out"),
+        "{}",
+        h.len()
+    );
 }
 
 #[test]
 fn tick_labels() {
-    // A span of 250 (mA) ticks in whole numbers; 0.2 (A) in hundredths.
-    assert_eq!(tick_text(150.0, 250.0), "150");
-    assert_eq!(tick_text(0.15, 0.2), "0.15");
-    assert_eq!(tick_text(-0.00001, 1.0), "0.0");
-    assert_eq!(tick_text(-0.5, 1.0), "-0.5");
+    // 100 … 300 (mA), at most 8 ticks: a step of 50 (20 would give 11), no decimals.
+    assert_eq!(
+        tick_values(100.0, 300.0, 8),
+        (vec![100.0, 150.0, 200.0, 250.0, 300.0], 0)
+    );
+    // 0.97 … 1.42 (W), at most 7: a step of 0.1 (0.05 would give 1.00 … 1.40, 9), one decimal.
+    let (v, d) = tick_values(0.97, 1.42, 7);
+    assert_eq!(d, 1);
+    let shown: Vec<String> = v.iter().map(|&x| tick_text(x, d)).collect();
+    assert_eq!(shown, ["1.0", "1.1", "1.2", "1.3", "1.4"]);
+    // Across zero: no "-0.0".
+    let (v, d) = tick_values(-0.3, 0.25, 7);
+    let shown: Vec<String> = v.iter().map(|&x| tick_text(x, d)).collect();
+    assert_eq!(shown, ["-0.3", "-0.2", "-0.1", "0.0", "0.1", "0.2"]);
+    assert_eq!(tick_text(-0.00001, 1), "0.0");
 }
 
 // ---- sweep tables ----
@@ -395,64 +533,134 @@ Sweeps
 fn text_table_of_a_long_sweep_keeps_the_extremes() {
     let t = text(&cell(vec![long_sweep()]));
     let lines: Vec<&str> = t.lines().collect();
+    let first_cell = |l: &&str| l.split_whitespace().next().map(str::to_string);
     let row = |i_ma: &str| {
         lines
             .iter()
-            .find(|l| l.split_whitespace().next() == Some(i_ma))
+            .find(|l| first_cell(l).as_deref() == Some(i_ma))
             .unwrap_or_else(|| panic!("no row for {i_ma} mA in\n{t}"))
             .to_string()
     };
     assert_eq!(lines[1], "  i from 10.0 mA to 500 mA, 50 points");
     // Header: i, tj with its range, loss.
-    let header: Vec<&str> = lines[2].split("  ").map(str::trim).filter(|s| !s.is_empty()).collect();
+    let header: Vec<&str> = lines[2]
+        .split("  ")
+        .map(str::trim)
+        .filter(|s| !s.is_empty())
+        .collect();
     assert_eq!(header, ["i [mA]", "tj [°C]", "worst case", "loss [W]"]);
-    // The first row (k = 0): i 10.0 mA, tj 350.15 − 24 = 326.15 K = 53.0 °C (51.0 … 55.0),
-    // loss 1 + 0.10 = 1.10 W; no extreme there.
+    // The extremes (k = 10, 23, 49) leave room for 12 − 4 + 2 = 10 evenly spaced rows
+    // including the first: a stride of ⌈49 / 9⌉ = 6, rows k = 0, 6, …, 48. With the
+    // extremes and the last row: k = 0, 6, 10, 12, 18, 23, 24, 30, 36, 42, 48, 49.
+    let shown: Vec<String> = lines[3..]
+        .iter()
+        .take_while(|l| !l.trim().starts_with('('))
+        .filter_map(first_cell)
+        .collect();
+    assert_eq!(
+        shown,
+        ["10.0", "70.0", "110", "130", "190", "240", "250", "310", "370", "430", "490", "500"]
+    );
+    // The first row (k = 0): tj 350.15 − 23 = 327.15 K = 54.0 °C (52.0 … 56.0), loss
+    // 1 + 0.10 = 1.10 W; no extreme there.
     let first: Vec<String> = row("10.0").split_whitespace().map(String::from).collect();
-    assert_eq!(first, ["10.0", "53.0", "51.0", "…", "55.0", "1.10"]);
-    // The peak (k = 24, 250 mA): 77.0 °C, band 75.0 … 79.0; loss 1.14 W.
-    let peak = row("250");
-    assert!(peak.contains("77.0") && peak.contains("75.0 … 79.0") && peak.contains("1.14"));
+    assert_eq!(first, ["10.0", "54.0", "52.0", "…", "56.0", "1.10"]);
+    // The peak (k = 23, 240 mA), off the stride: 77.0 °C, band 75.0 … 79.0; loss 1.13 W.
+    let peak = row("240");
+    assert!(
+        peak.contains("77.0") && peak.contains("75.0 … 79.0") && peak.contains("1.13"),
+        "{peak}"
+    );
     assert!(peak.trim_end().ends_with("▲ max tj"), "{peak}");
-    // loss is smallest at k = 10 (110 mA): 1.00 W; tj there 350.15 − 14 K = 63.0 °C.
+    // Its neighbour on the stride (k = 24) carries no mark: 76.0 °C.
+    assert!(row("250").trim_end().ends_with("1.14"), "{t}");
+    // loss is smallest at k = 10 (110 mA): 1.00 W; tj there 350.15 − 13 K = 64.0 °C.
     let dip = row("110");
-    assert!(dip.contains("63.0") && dip.contains("1.00"), "{dip}");
+    assert!(dip.contains("64.0") && dip.contains("1.00"), "{dip}");
     assert!(dip.trim_end().ends_with("▼ min loss"), "{dip}");
-    // The last row (k = 49, 500 mA) holds tj's band minimum (52.0 − 2 = 50.0 °C) and the
+    // The last row (k = 49, 500 mA) holds tj's band minimum (51.0 − 2 = 49.0 °C) and the
     // largest loss (1.39 W).
     let last = row("500");
-    assert!(last.contains("50.0 … 54.0") && last.contains("1.39"), "{last}");
-    assert!(last.trim_end().ends_with("▼ min tj, ▲ max loss"), "{last}");
-    // Four rows shown (k = 0, 10, 24, 49), three gaps, and the count of the rest.
-    let gaps = lines.iter().filter(|l| l.trim() == "⋮").count();
-    assert_eq!(gaps, 3, "{t}");
     assert!(
-        t.contains("(46 of 50 rows left out: shown are the first and last rows"),
+        last.contains("49.0 … 53.0") && last.contains("1.39"),
+        "{last}"
+    );
+    assert!(last.trim_end().ends_with("▼ min tj, ▲ max loss"), "{last}");
+    assert!(
+        t.contains("(38 of 50 rows left out: shown are one row in 6, the last row and each"),
         "{t}"
     );
-    let data_rows = lines
-        .iter()
-        .skip(3)
-        .take_while(|l| !l.trim().starts_with('('))
-        .filter(|l| l.trim() != "⋮")
-        .count();
-    assert_eq!(data_rows, 4, "{t}");
 }
 
 #[test]
 fn html_table_of_sweeps() {
     let h = html::report(&cell(vec![power_sweep(), long_sweep()]));
-    assert!(h.contains(">Sweep: i from 100 mA to 300 mA, 3 points</th>"), "{h}");
-    assert!(h.contains(">i [mA]</th>") && h.contains(">worst case</th>"), "{h}");
+    assert!(
+        h.contains(">Sweep: i from 100 mA to 300 mA, 3 points</th>"),
+        "{h}"
+    );
+    assert!(
+        h.contains(">i [mA]</th>") && h.contains(">worst case</th>"),
+        "{h}"
+    );
     assert!(h.contains(">0.630 … 0.770</td>"), "{h}");
     assert!(h.contains(">109</td>"), "{h}");
     // The long sweep: marks and the left-out count.
     assert!(h.contains(">▲ max tj</td>"), "{h}");
     assert!(h.contains(">▼ min tj, ▲ max loss</td>"), "{h}");
-    assert_eq!(h.matches(">⋮</td>").count(), 3);
-    assert!(h.contains("46 of 50 rows left out"), "{h}");
+    assert_eq!(
+        h.matches("<tr><td style=").count(),
+        3 + 12,
+        "3 + 12 rows of values"
+    );
+    assert!(h.contains("38 of 50 rows left out"), "{h}");
     let lower = h.to_lowercase();
     assert!(!lower.contains("<style") && !lower.contains("<script"));
+}
+
+#[test]
+fn sweep_table_styles_survive_the_sanitizer() {
+    // The same allow-list as the result block's (JupyterLab's sanitizer keeps these).
+    const ALLOWED: &[&str] = &[
+        "color",
+        "background",
+        "border",
+        "border-bottom",
+        "border-left",
+        "border-collapse",
+        "padding",
+        "padding-left",
+        "margin",
+        "text-align",
+        "font-weight",
+        "font-style",
+        "font-family",
+        "white-space",
+        "opacity",
+    ];
+    let h = html::report(&cell(vec![power_sweep(), long_sweep()]));
+    for style in h
+        .split("style=\"")
+        .skip(1)
+        .filter_map(|s| s.split('"').next())
+    {
+        let decls: Vec<(&str, &str)> = style
+            .split(';')
+            .filter_map(|d| d.split_once(':'))
+            .map(|(p, v)| (p.trim(), v.trim()))
+            .collect();
+        for (i, (prop, value)) in decls.iter().enumerate() {
+            assert!(ALLOWED.contains(prop), "{prop} in {style}");
+            if value.contains("var(") {
+                assert!(
+                    decls[..i]
+                        .iter()
+                        .any(|(p, v)| p == prop && !v.contains("var(")),
+                    "{prop}: {value} without a fallback in {style}"
+                );
+            }
+        }
+    }
 }
 
 #[test]
@@ -466,25 +674,57 @@ fn sweep_names_are_escaped_in_html() {
 #[test]
 fn json_keeps_every_point() {
     let data = results_json(&[&cell(vec![long_sweep()])]);
-    assert_eq!(data["sweeps"][0]["points"].as_array().map(Vec::len), Some(50));
+    assert_eq!(
+        data["sweeps"][0]["points"].as_array().map(Vec::len),
+        Some(50)
+    );
 }
 
-/// Writes the charts of a few sweeps to target/charts/ for a look:
+/// Writes the charts of a few sweeps to target/charts/ for a look, among them those of the
+/// demo worksheet and of a family run through the language:
 /// `cargo test -p headroom --bins dump_charts -- --ignored`.
 #[test]
 #[ignore]
 fn dump_charts() {
     let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../target/charts");
     std::fs::create_dir_all(&dir).expect("target/charts");
-    let sweeps = [
-        ("power", power_sweep()),
-        ("family", family_sweep()),
-        ("long", long_sweep()),
+    let run = |source: &str| {
+        let mut sheet = worksheet_lang::Worksheet::new();
+        let interrupt = worksheet_lang::Interrupt::new();
+        sheet.execute(None, source, &interrupt).report
+    };
+    let demo = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../notebooks/daq-logic-rail.hrw"),
+    )
+    .expect("the demo worksheet");
+    let family = "given vin = 12 V ± 5 %\ngiven i = 0.2 A\nloss = (vin - 5 V) * i\n\
+check loss <= 1.5 W\nsweep i over 50 mA .. 300 mA steps 60, vin over 10 V .. 14 V steps 3: loss";
+    let reports = [
+        ("power", cell(vec![power_sweep()])),
+        ("family", cell(vec![family_sweep()])),
+        ("long", cell(vec![long_sweep()])),
+        ("demo", run(&demo)),
+        ("language-family", run(family)),
+        ("odd", cell(odd_sweeps())),
+        ("long-family", cell(vec![long_family()])),
     ];
-    for (name, s) in sweeps {
-        for (k, b) in charts(&cell(vec![s])).iter().enumerate() {
+    for (name, report) in reports {
+        // The result block and its charts on a page, as a notebook shows them.
+        let mut page = format!(
+            "<html><body style=\"font-family: sans-serif; font-size: 13px\">{}",
+            html::report(&report)
+        );
+        for b in charts(&report) {
+            page.push_str(&format!("<div>{}</div>", svg_of(&b)));
+        }
+        page.push_str("</body></html>");
+        std::fs::write(dir.join(format!("{name}.html")), page).expect("write html");
+        for (k, b) in charts(&report).iter().enumerate() {
+            let Some(png) = b.get("image/png").and_then(Value::as_str) else {
+                panic!("{name}: {:?}", b.get("text/plain"));
+            };
             let png = base64::engine::general_purpose::STANDARD
-                .decode(b["image/png"].as_str().unwrap_or_default())
+                .decode(png)
                 .expect("base64");
             std::fs::write(dir.join(format!("{name}-{k}.png")), png).expect("write png");
             std::fs::write(dir.join(format!("{name}-{k}.svg")), svg_of(b)).expect("write svg");

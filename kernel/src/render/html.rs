@@ -43,14 +43,18 @@ const CAUTION: &str = "margin: 6px 0 2px 0; padding: 4px 8px; font-weight: bold;
 border-left: 3px solid #d9443a; border-left: 3px solid var(--jp-error-color1, #d9443a); \
 background: rgba(217, 68, 58, 0.08)";
 const LIST: &str = "margin: 2px 0; padding-left: 18px";
+const LIVE: &str = "margin: 2px 0 4px 0; padding: 2px 8px; font-size: 90%; \
+border-left: 3px solid #3b7dd8; border-left: 3px solid var(--jp-brand-color1, #3b7dd8); \
+background: rgba(59, 125, 216, 0.08)";
 const HEAD_NUMBER: &str = "text-align: right; padding: 2px 0 2px 12px; white-space: nowrap; \
 font-weight: normal; opacity: 0.75";
-const HEAD_TEXT: &str = "text-align: left; padding: 2px 12px 2px 4px; white-space: nowrap; \
+const HEAD_TEXT: &str = "text-align: left; padding: 2px 12px 2px 10px; white-space: nowrap; \
 font-weight: normal; opacity: 0.75";
+const SWEEP_RANGE: &str = "text-align: left; padding: 2px 12px 2px 10px; white-space: nowrap";
+const SWEEP_NOTE: &str = "margin: 2px 0 4px 4px; font-style: italic; opacity: 0.75";
 const HEAD_RULE: &str = "border-bottom: 1px solid rgba(128, 128, 128, 0.30); \
 border-bottom: 1px solid var(--jp-border-color2, rgba(128, 128, 128, 0.30))";
-const GAP: &str = "text-align: right; padding: 0 0 0 12px; opacity: 0.6";
-const MARK: &str = "text-align: left; padding: 2px 4px; white-space: nowrap; opacity: 0.8";
+const MARK: &str = "text-align: left; padding: 2px 4px 2px 12px; white-space: nowrap; opacity: 0.8";
 const CAPPED: &str = "margin: 6px 0 2px 0; padding: 4px 8px; \
 border-left: 3px solid rgba(128, 128, 128, 0.6); background: rgba(128, 128, 128, 0.10)";
 
@@ -151,6 +155,9 @@ pub(super) fn report(r: &CellReport) -> String {
 
 fn report_with(r: &CellReport, sweep_tables: bool) -> String {
     let mut out = format!(r#"<div style="{BLOCK}">"#);
+    for n in super::live_notes(r) {
+        let _ = write!(out, r#"<div style="{LIVE}">{}</div>"#, esc(&n));
+    }
     let inputs: Vec<&ValueRow> = r.values.iter().filter(|v| v.given).collect();
     let derived: Vec<&ValueRow> = r.values.iter().filter(|v| !v.given).collect();
     if !r.values.is_empty() {
@@ -174,7 +181,11 @@ fn report_with(r: &CellReport, sweep_tables: bool) -> String {
     if sweep_tables {
         r.sweeps.iter().for_each(|s| sweep_table(&mut out, s));
     } else if !r.sweeps.is_empty() {
-        let _ = write!(out, r#"<div style="{CAPPED}">{}</div>"#, esc(&capped_note("The sweep tables are")));
+        let _ = write!(
+            out,
+            r#"<div style="{CAPPED}">{}</div>"#,
+            esc(&capped_note("The sweep tables are"))
+        );
     }
     let mut warnings: Vec<String> = r
         .warnings
@@ -208,8 +219,8 @@ The plain text and the results data hold everything.",
     )
 }
 
-/// A sweep as a table: a heading row, column headings, then the rows (see `sweep::table_rows`),
-/// with a "⋮" row where rows are left out and a closing line saying how many.
+/// A sweep as a table: a heading row, column headings, then the rows (see `sweep::table_rows`)
+/// and, for a shortened table, a closing line saying how many rows are left out.
 fn sweep_table(out: &mut String, s: &SweepTable) {
     let rows = table_rows(s);
     let cols = columns(s, &rows);
@@ -227,32 +238,25 @@ fn sweep_table(out: &mut String, s: &SweepTable) {
     }
     out.push_str("</tr>");
     for (k, row) in rows.rows.iter().enumerate() {
-        if k > 0 && row.index > rows.rows[k - 1].index + 1 {
-            let skipped = row.index - rows.rows[k - 1].index - 1;
-            let _ = write!(
-                out,
-                r#"<tr><td style="{GAP}" title="{skipped} rows left out">⋮</td><td colspan="{}"></td></tr>"#,
-                span - 1
-            );
-        }
         out.push_str("<tr>");
         for c in &cols {
-            let style = if c.is_range { RANGE } else { NUMBER };
+            let style = if c.is_range { SWEEP_RANGE } else { NUMBER };
             let _ = write!(out, r#"<td style="{style}">{}</td>"#, esc(&c.cells[k]));
         }
         if marked {
-            let _ = write!(out, r#"<td style="{MARK}">{}</td>"#, esc(&row.marks.join(", ")));
+            let _ = write!(
+                out,
+                r#"<td style="{MARK}">{}</td>"#,
+                esc(&row.marks.join(", "))
+            );
         }
         out.push_str("</tr>");
     }
-    if let Some(t) = left_out_text(&rows) {
-        let _ = write!(
-            out,
-            r#"<tr><td colspan="{span}" style="{NOTE}">{}</td></tr>"#,
-            esc(&t)
-        );
-    }
     out.push_str("</tbody></table>");
+    // Below the table rather than in a row of it, so its length does not widen the columns.
+    if let Some(t) = left_out_text(&rows) {
+        let _ = write!(out, r#"<div style="{SWEEP_NOTE}">{}</div>"#, esc(&t));
+    }
 }
 
 /// The bare-expression values as a small table without section headers.

@@ -8,6 +8,8 @@
 mod chart;
 mod html;
 mod json;
+#[cfg(test)]
+mod live_tests;
 mod sweep;
 mod text;
 
@@ -132,7 +134,43 @@ pub fn results_json(reports: &[&CellReport]) -> Value {
 /// The aligned plain-text result block of a cell: inputs, values, checks, warnings and,
 /// where it applies, the hot-surface caution. Empty when the cell has nothing to show.
 pub fn text(report: &CellReport) -> String {
-    text::report(report)
+    let notes = live_notes(report);
+    let body = text::report(report);
+    if notes.is_empty() {
+        return body;
+    }
+    let mut out: String = notes.iter().map(|n| format!("{n}\n")).collect();
+    if !body.is_empty() {
+        out.push('\n');
+        out.push_str(&body);
+    }
+    out
+}
+
+/// What a living worksheet says of a block: which change updated it (on a block refreshed by
+/// another cell's run), or which other cells a run updated (on the cell that was run).
+pub(crate) fn live_notes(report: &CellReport) -> Vec<String> {
+    let mut notes = Vec::new();
+    if !report.updated_by.is_empty() {
+        let changes: Vec<String> = report
+            .updated_by
+            .iter()
+            .map(|c| format!("{} {} → {}", c.name, c.old, c.new))
+            .collect();
+        notes.push(format!("↻ updated: {}", changes.join("; ")));
+    }
+    match report.updated_cells.len() {
+        0 => {}
+        1 => notes.push(format!(
+            "↻ this run updated another cell: {}",
+            report.updated_cells[0]
+        )),
+        n => notes.push(format!(
+            "↻ this run updated {n} other cells: {}",
+            report.updated_cells.join(" · ")
+        )),
+    }
+    notes
 }
 
 /// The caution to show with these results, if any: a value, shown value, check side or swept

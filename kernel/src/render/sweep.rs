@@ -5,8 +5,8 @@ use std::collections::BTreeMap;
 use worksheet_lang::results::{SweepLimit, SweepSeries, SweepTable};
 use worksheet_lang::units::{format_number, format_si, parse_unit, Dim, Unit};
 
-/// A table with more rows than this shows only its first and last rows and the rows holding
-/// each series' extremes.
+/// A table with more rows than this is shortened to about this many: evenly spaced rows, the
+/// last row, and the rows holding each series' extremes.
 pub(super) const LONG_TABLE_ROWS: usize = 12;
 
 /// The unit one column or axis shows its numbers in: the unit (with its engineering prefix)
@@ -135,11 +135,12 @@ pub(super) struct Row {
     pub(super) marks: Vec<String>,
 }
 
-/// The rows a sweep table shows. Consecutive rows whose indices are not adjacent have rows
-/// left out between them.
+/// The rows a sweep table shows, in order.
 pub(super) struct TableRows {
     pub(super) rows: Vec<Row>,
     pub(super) total: usize,
+    /// Every `stride`-th row is shown (1 when all are).
+    pub(super) stride: usize,
 }
 
 impl TableRows {
@@ -148,9 +149,10 @@ impl TableRows {
     }
 }
 
-/// Every row of a short table; for a long one the first and last rows and the rows where a
-/// series' band (or its nominal curve, when it has no band) is largest or smallest, each
-/// marked with what it holds.
+/// Every row of a short table. A long one keeps the rows where a series' band (or its nominal
+/// curve, when it has no band) is largest or smallest, each marked with what it holds, the
+/// last row, and every `stride`-th row from the first, the stride chosen so that the table
+/// has about [`LONG_TABLE_ROWS`] rows and still shows the curve's course.
 pub(super) fn table_rows(s: &SweepTable) -> TableRows {
     let n = s.points.len();
     if n <= LONG_TABLE_ROWS {
@@ -162,6 +164,7 @@ pub(super) fn table_rows(s: &SweepTable) -> TableRows {
                 })
                 .collect(),
             total: n,
+            stride: 1,
         };
     }
     let mut marks: BTreeMap<usize, Vec<String>> = BTreeMap::new();
@@ -184,12 +187,19 @@ pub(super) fn table_rows(s: &SweepTable) -> TableRows {
             }
         }
     }
+    // Evenly spaced rows, as many as the extremes leave room for (first and last included).
+    let spaced = LONG_TABLE_ROWS.saturating_sub(marks.len()) + 2;
+    let stride = (n - 1).div_ceil(spaced - 1).max(1);
+    for i in (0..n).step_by(stride) {
+        marks.entry(i).or_default();
+    }
     TableRows {
         rows: marks
             .into_iter()
             .map(|(index, marks)| Row { index, marks })
             .collect(),
         total: n,
+        stride,
     }
 }
 
@@ -208,14 +218,14 @@ pub(super) fn heading(s: &SweepTable) -> String {
     }
 }
 
-/// "44 of 50 rows left out: …", or `None` when the table shows every row.
+/// "39 of 50 rows left out: …", or `None` when the table shows every row.
 pub(super) fn left_out_text(rows: &TableRows) -> Option<String> {
     let left = rows.left_out();
     (left > 0).then(|| {
         format!(
-            "{left} of {} rows left out: shown are the first and last rows and each series' \
-extremes; the results data holds every point",
-            rows.total
+            "{left} of {} rows left out: shown are one row in {}, the last row and each \
+series' extremes (marked); the results data holds every point",
+            rows.total, rows.stride
         )
     })
 }
@@ -238,7 +248,11 @@ pub(super) fn columns(s: &SweepTable, rows: &TableRows) -> Vec<Column> {
         cells: rows
             .rows
             .iter()
-            .map(|r| s.points.get(r.index).map_or(String::new(), |&x| over.number(x)))
+            .map(|r| {
+                s.points
+                    .get(r.index)
+                    .map_or(String::new(), |&x| over.number(x))
+            })
             .collect(),
     }];
     for se in &s.series {

@@ -181,15 +181,21 @@ pub(super) fn report(r: &CellReport) -> String {
 }
 
 /// A sweep as a table under its heading: the swept value, then each series' nominal value
-/// and worst-case range. A long table keeps its first and last rows and each series' extremes
-/// (marked), with "⋮" where rows are left out and a line saying how many.
+/// and worst-case range. A long table is shortened (see `sweep::table_rows`), its extremes
+/// marked, and a closing line says how many rows are left out.
 fn sweep_table(s: &SweepTable) -> String {
     let rows = table_rows(s);
     let cols = columns(s, &rows);
     let marked = rows.rows.iter().any(|r| !r.marks.is_empty());
     let mut align: Vec<Align> = cols
         .iter()
-        .map(|c| if c.is_range { Align::Left } else { Align::Right })
+        .map(|c| {
+            if c.is_range {
+                Align::Left
+            } else {
+                Align::Right
+            }
+        })
         .collect();
     let mut gaps: Vec<&str> = cols
         .iter()
@@ -199,14 +205,8 @@ fn sweep_table(s: &SweepTable) -> String {
         align.push(Align::Left);
         gaps.push("   ");
     }
-    let width = align.len();
     let mut grid_rows: Vec<Vec<String>> = vec![cols.iter().map(|c| c.heading.clone()).collect()];
     for (k, row) in rows.rows.iter().enumerate() {
-        if k > 0 && row.index > rows.rows[k - 1].index + 1 {
-            let mut gap = vec![String::new(); width];
-            gap[0] = "⋮".to_string();
-            grid_rows.push(gap);
-        }
         let mut cells: Vec<String> = cols.iter().map(|c| c.cells[k].clone()).collect();
         if marked {
             cells.push(row.marks.join(", "));

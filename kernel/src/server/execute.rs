@@ -14,6 +14,11 @@ pub(crate) fn display_id(cell_key: &str) -> String {
     format!("headroom-{cell_key}")
 }
 
+/// The display id of the `index`-th sweep chart of a cell.
+pub(crate) fn chart_id(cell_key: &str, index: usize) -> String {
+    format!("headroom-{cell_key}-chart-{index}")
+}
+
 #[derive(Debug)]
 pub(crate) struct Update {
     pub display_id: String,
@@ -31,11 +36,13 @@ pub(crate) enum Outcome {
         display_id: String,
         /// The result block (`display_data`), absent when the cell has nothing to show.
         block: Option<Map<String, Value>>,
+        /// The cell's sweep charts, each a `display_data` of its own, with its display id.
+        charts: Vec<Update>,
         /// The values of bare expressions (`execute_result`).
         shown: Option<Map<String, Value>>,
         /// The cell's warnings, also written to stderr for consoles.
         stderr: Option<String>,
-        /// Blocks of other cells whose results changed.
+        /// Blocks (and charts) of other cells whose results changed.
         updates: Vec<Update>,
     },
 }
@@ -43,13 +50,7 @@ pub(crate) enum Outcome {
 impl Outcome {
     pub fn of(ex: &Execution) -> Outcome {
         let report = &ex.report;
-        if let Some((ename, evalue, traceback)) = render::error_traceback(report) {
-            return Outcome::Failed {
-                ename,
-                evalue,
-                traceback,
-            };
-        }
+        // An interrupted run has no place in the source to point at.
         if ex.interrupted {
             let evalue = "the run was interrupted; the worksheet and its results are unchanged";
             return Outcome::Failed {
@@ -58,26 +59,46 @@ impl Outcome {
                 traceback: vec![format!("Interrupted: {evalue}")],
             };
         }
+        if let Some((ename, evalue, traceback)) = render::error_traceback(report) {
+            return Outcome::Failed {
+                ename,
+                evalue,
+                traceback,
+            };
+        }
         let block = render::bundle(report);
         let has_block = block
             .get("text/plain")
             .and_then(Value::as_str)
             .is_some_and(|t| !t.trim().is_empty());
+        let mut updates = Vec::new();
+        for u in &ex.updated {
+            updates.push(Update {
+                display_id: display_id(&u.report.cell),
+                bundle: render::bundle(&u.report),
+            });
+            updates.extend(charts(&u.report));
+        }
         Outcome::Done {
             display_id: display_id(&report.cell),
             block: has_block.then_some(block),
+            charts: charts(report),
             shown: render::shown_bundle(report),
             stderr: stderr_text(report),
-            updates: ex
-                .updated
-                .iter()
-                .map(|u| Update {
-                    display_id: display_id(&u.report.cell),
-                    bundle: render::bundle(&u.report),
-                })
-                .collect(),
+            updates,
         }
     }
+}
+
+fn charts(report: &CellReport) -> Vec<Update> {
+    render::charts(report)
+        .into_iter()
+        .enumerate()
+        .map(|(i, bundle)| Update {
+            display_id: chart_id(&report.cell, i),
+            bundle,
+        })
+        .collect()
 }
 
 /// The warnings of a cell as console text: the built-ins' warnings and warning diagnostics

@@ -4,7 +4,7 @@
 //! that the control channel (interrupt, shutdown) stays responsive meanwhile.
 
 use super::cursor;
-use super::execute::Outcome;
+use super::execute::{Outcome, Update};
 use super::history::{self, History};
 use super::wire::{self, Incoming, Session, PROTOCOL_VERSION};
 use bytes::Bytes;
@@ -295,6 +295,7 @@ impl Shell {
             return shutdown(&shared, &mut self.replier, &req).await;
         }
         shared.status(&req, true);
+        let started = tokio::time::Instant::now();
         let reply = match req.msg_type.as_str() {
             "execute_request" if abort => json!({"status": "aborted"}),
             "execute_request" => self.execute(&req).await,
@@ -307,7 +308,7 @@ impl Shell {
         };
         let failed = reply["status"] == "error";
         if failed && req.msg_type == "execute_request" && stops_on_error(&req) {
-            self.abort_queued().await;
+            self.abort_queued(started).await;
         }
         self.replier
             .send(&shared, &req, &reply_type(&req.msg_type), &reply)
@@ -320,9 +321,10 @@ impl Shell {
     ///
     /// This happens before the failed cell's reply is sent, so nothing a client sends in
     /// answer to that reply is aborted. A cell can fail faster than the requests sent right
-    /// behind it ("run all") arrive, so stragglers get a short window first.
-    async fn abort_queued(&mut self) {
-        tokio::time::sleep(ABORT_WINDOW).await;
+    /// behind it ("run all") arrive, so stragglers get a short window from the moment the
+    /// failed cell started; a cell that ran longer than that waits no more.
+    async fn abort_queued(&mut self, started: tokio::time::Instant) {
+        tokio::time::sleep_until(started + ABORT_WINDOW).await;
         while let Ok(r) = self.queue.try_recv() {
             self.aborting.push_back(r);
         }
@@ -346,6 +348,10 @@ impl Shell {
                 .record(self.execution_count as u64, &request.code);
         }
         let count = ExecutionCount::new(self.execution_count);
+        // Cleared before execute_input goes out: an interrupt sent by a client that has seen
+        // this cell start is never lost.
+        let interrupt = self.shared.interrupt.clone();
+        interrupt.clear();
         if !silent {
             let input = ExecuteInput {
                 code: request.code.clone(),
@@ -356,12 +362,21 @@ impl Shell {
         }
 
         let cell = cell_key(&req.metadata);
+        let deleted = deleted_cells(&req.metadata);
         let code = request.code.clone();
         let worksheet = self.worksheet.clone();
-        let interrupt = self.shared.interrupt.clone();
-        interrupt.clear();
         let outcome = tokio::task::spawn_blocking(move || {
-            let ex = lock(&worksheet).execute(cell.as_deref(), &code, &interrupt);
+            let mut ws = lock(&worksheet);
+            // Cells deleted in the front end go first: their names are gone, and the cells
+            // that used them say so.
+            let keys: Vec<&str> = deleted.iter().map(String::as_str).collect();
+            let mut gone = ws.forget(&keys, &interrupt).unwrap_or_default();
+            let mut ex = ws.execute(cell.as_deref(), &code, &interrupt);
+            gone.retain(|u| {
+                u.report.cell != ex.report.cell
+                    && !ex.updated.iter().any(|x| x.report.cell == u.report.cell)
+            });
+            ex.updated.splice(0..0, gone);
             Outcome::of(&ex)
         })
         .await
@@ -404,6 +419,7 @@ impl Shell {
             Outcome::Done {
                 display_id,
                 block,
+                charts,
                 shown,
                 stderr,
                 updates,
@@ -412,7 +428,15 @@ impl Shell {
                     self.history.set_output(self.execution_count as u64, text);
                 }
                 if !silent {
-                    self.publish_outputs(req, count, display_id, block, shown, stderr, updates);
+                    let outputs = Outputs {
+                        display_id,
+                        block,
+                        charts,
+                        shown,
+                        stderr,
+                        updates,
+                    };
+                    self.publish_outputs(req, count, outputs);
                 }
                 let reply = ExecuteReply {
                     status: ReplyStatus::Ok,
@@ -426,27 +450,23 @@ impl Shell {
         }
     }
 
-    #[allow(clippy::too_many_arguments)]
-    fn publish_outputs(
-        &self,
-        req: &Incoming,
-        count: ExecutionCount,
-        display_id: String,
-        block: Option<Map<String, Value>>,
-        shown: Option<Map<String, Value>>,
-        stderr: Option<String>,
-        updates: Vec<super::execute::Update>,
-    ) {
+    fn publish_outputs(&self, req: &Incoming, count: ExecutionCount, o: Outputs) {
         let shared = &self.shared;
-        if let Some(data) = block {
+        let display = |msg_type: &str, display_id: &str, data: Map<String, Value>| {
             let content = json!({
                 "data": data,
                 "metadata": {},
                 "transient": {"display_id": display_id},
             });
-            shared.publish("display_data", req, &content);
+            shared.publish(msg_type, req, &content);
+        };
+        if let Some(data) = o.block {
+            display("display_data", &o.display_id, data);
         }
-        if let Some(data) = shown {
+        for c in o.charts {
+            display("display_data", &c.display_id, c.bundle);
+        }
+        if let Some(data) = o.shown {
             let content = json!({
                 "execution_count": count.value(),
                 "data": data,
@@ -454,17 +474,12 @@ impl Shell {
             });
             shared.publish("execute_result", req, &content);
         }
-        if let Some(text) = stderr {
+        if let Some(text) = o.stderr {
             let s = StreamContent::stderr(&text);
             shared.publish("stream", req, &wire::content(&s, &[]));
         }
-        for u in updates {
-            let content = json!({
-                "data": u.bundle,
-                "metadata": {},
-                "transient": {"display_id": u.display_id},
-            });
-            shared.publish("update_display_data", req, &content);
+        for u in o.updates {
+            display("update_display_data", &u.display_id, u.bundle);
         }
     }
 
@@ -542,6 +557,16 @@ impl Shell {
     }
 }
 
+/// What a successful run publishes, in this order.
+struct Outputs {
+    display_id: String,
+    block: Option<Map<String, Value>>,
+    charts: Vec<Update>,
+    shown: Option<Map<String, Value>>,
+    stderr: Option<String>,
+    updates: Vec<Update>,
+}
+
 fn is_complete(req: &Incoming) -> Value {
     let request: IsCompleteRequest = match serde_json::from_value(req.content.clone()) {
         Ok(r) => r,
@@ -573,6 +598,20 @@ fn stops_on_error(req: &Incoming) -> bool {
 
 /// The front end's cell id, where it sends one (JupyterLab and Notebook write `cellId`,
 /// some front ends `cell_id`).
+/// The cells a front end reports deleted (JupyterLab's `deletedCells`).
+fn deleted_cells(metadata: &Value) -> Vec<String> {
+    metadata
+        .get("deletedCells")
+        .and_then(Value::as_array)
+        .map(|a| {
+            a.iter()
+                .filter_map(Value::as_str)
+                .map(str::to_string)
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
 fn cell_key(metadata: &Value) -> Option<String> {
     ["cellId", "cell_id"]
         .iter()

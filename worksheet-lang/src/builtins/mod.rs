@@ -102,10 +102,11 @@ pub enum WarnWhen {
 #[derive(Debug, Clone, PartialEq)]
 pub struct WarnRule {
     pub when: WarnWhen,
-    /// What it means, e.g. "in dropout: the output sags".
-    pub message: String,
+    /// What it means, e.g. "in dropout: the output sags". (Usually a literal: a rule is
+    /// built in every pass, and only the nominal pass keeps it.)
+    pub message: std::borrow::Cow<'static, str>,
     /// What the probed value is called in the text, e.g. "headroom".
-    pub label: String,
+    pub label: std::borrow::Cow<'static, str>,
 }
 
 /// What a built-in may ask of the evaluator during a call.

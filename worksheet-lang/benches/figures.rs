@@ -1,0 +1,91 @@
+//! In-process timings for `tests/bench/run`, which drives this binary and puts its figures in
+//! the results table beside the Python reference:
+//!
+//! - `figures execute FILE REPS`: `Worksheet::execute` of the worksheet in FILE on a fresh
+//!   worksheet, REPS times (the compute time of a cell inside the kernel, without messaging);
+//! - `figures loop POINTS REPS`: the hand-written Rust loop of the sweep chain over POINTS points.
+//!
+//! Each prints one JSON line: `{"median_ns": …, "min_ns": …, "reps": …}`. Run by `cargo bench`
+//! without arguments it does nothing: the criterion benches are in `micro.rs`.
+
+mod shared;
+
+use std::hint::black_box;
+use std::process::ExitCode;
+use std::time::Instant;
+use worksheet_lang::{diagnostic, Interrupt, Worksheet};
+
+fn main() -> ExitCode {
+    let args: Vec<String> = std::env::args().skip(1).filter(|a| a != "--bench").collect();
+    let parsed = match args.as_slice() {
+        [] => return ExitCode::SUCCESS,
+        [what, arg, reps] => reps.parse::<usize>().ok().map(|r| (what.as_str(), arg, r.max(1))),
+        _ => None,
+    };
+    let result = match parsed {
+        Some(("execute", file, reps)) => execute(file, reps),
+        Some(("loop", points, reps)) => match points.parse::<usize>() {
+            Ok(n) if n >= 2 => Ok(rust_loop(n, reps)),
+            _ => Err(format!("POINTS must be a whole number ≥ 2, not `{points}`")),
+        },
+        _ => Err("usage: figures execute FILE REPS | figures loop POINTS REPS".to_string()),
+    };
+    match result {
+        Ok(times) => {
+            println!("{}", summary(times));
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("figures: {e}");
+            ExitCode::from(2)
+        }
+    }
+}
+
+fn execute(file: &str, reps: usize) -> Result<Vec<u128>, String> {
+    let source = std::fs::read_to_string(file).map_err(|e| format!("cannot read {file}: {e}"))?;
+    let mut times = Vec::with_capacity(reps);
+    for _ in 0..reps {
+        let mut sheet = Worksheet::new();
+        let start = Instant::now();
+        let execution = sheet.execute(Some("bench"), black_box(&source), &Interrupt::new());
+        times.push(start.elapsed().as_nanos());
+        let report = &execution.report;
+        if report.has_errors() {
+            let text: Vec<String> = report
+                .diagnostics
+                .iter()
+                .map(|d| diagnostic::render(&report.source, d))
+                .collect();
+            return Err(format!("{file} has errors:\n{}", text.join("\n")));
+        }
+        black_box(execution);
+    }
+    Ok(times)
+}
+
+fn rust_loop(points: usize, reps: usize) -> Vec<u128> {
+    let mut out = vec![0.0; points];
+    (0..reps)
+        .map(|_| {
+            let start = Instant::now();
+            shared::chain::sweep(black_box(7.0), black_box(16.0), &mut out);
+            black_box(&out);
+            start.elapsed().as_nanos()
+        })
+        .collect()
+}
+
+fn summary(mut times: Vec<u128>) -> String {
+    times.sort_unstable();
+    let n = times.len();
+    let median = if n % 2 == 1 {
+        times[n / 2] as f64
+    } else {
+        (times[n / 2 - 1] + times[n / 2]) as f64 / 2.0
+    };
+    format!(
+        "{{\"median_ns\": {median}, \"min_ns\": {}, \"reps\": {n}}}",
+        times[0]
+    )
+}

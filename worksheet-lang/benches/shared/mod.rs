@@ -1,0 +1,3 @@
+//! Code shared by the bench targets of this directory.
+
+pub mod chain;
