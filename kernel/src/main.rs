@@ -2,6 +2,7 @@
 
 mod install;
 mod notebook;
+mod outputs;
 mod render;
 mod run;
 mod server;

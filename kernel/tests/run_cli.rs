@@ -83,17 +83,13 @@ fn non_utf8_file_is_refused_clearly() {
 }
 
 #[test]
-fn notebooks_are_not_supported_yet() {
+fn a_file_that_is_no_notebook_is_refused_by_name() {
     let dir = tempfile::tempdir().expect("tempdir");
     let path = write(dir.path(), "sheet.ipynb", "{}");
     let r = run_file(&path, &[]);
     assert_eq!(r.code, 2);
-    assert!(
-        r.stderr
-            .contains("notebooks (.ipynb) are not supported yet"),
-        "{}",
-        r.stderr
-    );
+    assert!(r.stderr.contains("sheet.ipynb") && r.stderr.contains("not a notebook"), "{}", r.stderr);
+    assert!(!dir.path().join("sheet.run.ipynb").exists());
 }
 
 #[test]

@@ -352,11 +352,11 @@ fn an_interrupt_stops_a_long_sweep_promptly_and_changes_nothing() {
 
 #[test]
 fn zz_probe() {
-    for kind in [5] {
+    for kind in [3] {
         for depth in [25, 50, 75, 100, 125, 150, 175, 200, 255] {
             let (open, close) = [("(", ")"), ("[", "]"), ("-", ""), ("sqrt(", ")"), ("2^", ""),
                                  ("min(1 V, ", ")"), ("((", "))")][kind];
-            let src = format!("x = {}1 V{}", open.repeat(depth), close.repeat(depth));
+            let src = format!("x = {}1{}", open.repeat(depth), close.repeat(depth));
             eprintln!("probe kind {kind} depth {depth}");
             let (ex, _) = run(&src);
             eprintln!("  -> {:?}", error_kinds(&ex.report));

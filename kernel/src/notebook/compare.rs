@@ -7,7 +7,7 @@
 
 use super::execute::CellRun;
 use super::ipynb;
-use super::outputs::CellOutput;
+use crate::outputs::CellOutput;
 use crate::render::RESULTS_MIME;
 use serde_json::Value;
 

@@ -2,7 +2,7 @@
 //! all cells against a fresh kernel would, and collects what each cell shows.
 
 use super::ipynb::{self, Notebook};
-use super::outputs::{cell_outputs, CellOutput};
+use crate::outputs::{cell_outputs, CellOutput};
 use worksheet_lang::results::CellReport;
 use worksheet_lang::{Interrupt, Worksheet};
 

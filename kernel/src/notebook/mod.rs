@@ -27,8 +27,7 @@
 mod compare;
 mod digest;
 mod execute;
-mod ipynb;
-pub(crate) mod outputs;
+pub(crate) mod ipynb;
 mod overrides;
 
 use crate::render;

@@ -303,7 +303,18 @@ fn chart_of(s: &SweepTable, dim: Dim, absolute: bool, series: &[&SweepSeries]) -
             off_chart,
         });
     }
-    let span = (hi - lo).max(hi.abs().max(lo.abs()) * 0.05).max(1e-9);
+    // A flat curve gets a range of ±5 % around its value (±1 around zero).
+    let magnitude = hi.abs().max(lo.abs());
+    if hi - lo <= magnitude * 1e-9 {
+        let pad = if magnitude > 0.0 {
+            magnitude * 0.05
+        } else {
+            1.0
+        };
+        lo -= pad;
+        hi += pad;
+    }
+    let span = hi - lo;
     let pad_top = if limits.iter().any(|l| l.off_chart.is_none()) {
         0.12
     } else {

@@ -86,8 +86,8 @@ fn family_sweep() -> SweepTable {
 
 /// 50 points, i = 10 mA … 500 mA in steps of 10 mA (k = 0 … 49, i = 10 mA · (k + 1)):
 /// tj = 350.15 K − |k − 23| K (a peak of 77.0 °C at k = 23, i = 240 mA), band ±2 K, so the
-/// band's maximum is at k = 23 and its minimum at k = 49 (324.15 − 2 K; k = 0 gives 327.15 − 2);
-/// loss = 1 W + 10 mW · |k − 10| without a band: smallest (1.00 W) at k = 10, largest (1.39 W)
+/// band's maximum is at k = 23 and its minimum at k = 49 (324.15 − 2 K; k = 0 gives
+/// 327.15 − 2); loss = 1 W + 10 mW · |k − 10| without a band: smallest (1.00 W) at k = 10, largest (1.39 W)
 /// at k = 49.
 fn long_sweep() -> SweepTable {
     let k: Vec<f64> = (0..50).map(f64::from).collect();

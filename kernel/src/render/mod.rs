@@ -61,8 +61,6 @@ fn html_block(report: &CellReport) -> String {
 /// with `image/svg+xml`, an `image/png` fallback (base64) and a one-line `text/plain`. Charts
 /// that would take the cell past [`MAX_CELL_OUTPUT_BYTES`], or that fail to draw, are
 /// replaced by a bundle holding a note (`text/plain` and `text/html`). Empty without sweeps.
-// Called by the kernel and the notebook writer after a cell's result block.
-#[allow(dead_code)]
 pub fn charts(report: &CellReport) -> Vec<Map<String, Value>> {
     if report.sweeps.is_empty() {
         return Vec::new();

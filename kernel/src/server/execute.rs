@@ -2,22 +2,9 @@
 //! evaluator thread, before anything is sent: an interrupted or failed run publishes only its
 //! error, so every display stays as it was.
 
-use crate::render;
+use crate::outputs::{cell_outputs, display_id, CellOutput};
 use serde_json::{Map, Value};
-use worksheet_lang::diagnostic;
-use worksheet_lang::results::CellReport;
 use worksheet_lang::Execution;
-
-/// The display id of a cell's result block: stable for one cell key, so later runs of other
-/// cells can update the block in place.
-pub(crate) fn display_id(cell_key: &str) -> String {
-    format!("headroom-{cell_key}")
-}
-
-/// The display id of the `index`-th sweep chart of a cell.
-pub(crate) fn chart_id(cell_key: &str, index: usize) -> String {
-    format!("headroom-{cell_key}-chart-{index}")
-}
 
 #[derive(Debug)]
 pub(crate) struct Update {
@@ -48,76 +35,59 @@ pub(crate) enum Outcome {
 }
 
 impl Outcome {
+    /// What to publish, from the one description of a cell's outputs that `headroom run`
+    /// writes into notebooks too (`crate::outputs`).
     pub fn of(ex: &Execution) -> Outcome {
-        let report = &ex.report;
-        // An interrupted run has no place in the source to point at.
-        if ex.interrupted {
-            let evalue = "the run was interrupted; the worksheet and its results are unchanged";
-            return Outcome::Failed {
-                ename: "Interrupted".into(),
-                evalue: evalue.into(),
-                traceback: vec![format!("Interrupted: {evalue}")],
-            };
-        }
-        if let Some((ename, evalue, traceback)) = render::error_traceback(report) {
-            return Outcome::Failed {
-                ename,
-                evalue,
-                traceback,
-            };
-        }
-        let block = render::bundle(report);
-        let has_block = block
-            .get("text/plain")
-            .and_then(Value::as_str)
-            .is_some_and(|t| !t.trim().is_empty());
-        let mut updates = Vec::new();
-        for u in &ex.updated {
-            updates.push(Update {
-                display_id: display_id(&u.report.cell),
-                bundle: render::bundle(&u.report),
-            });
-            updates.extend(charts(&u.report));
+        let o = cell_outputs(ex);
+        let id = display_id(&ex.report.cell);
+        let mut block = None;
+        let mut charts = Vec::new();
+        let mut shown = None;
+        let mut stderr = None;
+        for out in o.outputs {
+            match out {
+                CellOutput::Error {
+                    ename,
+                    evalue,
+                    traceback,
+                } => {
+                    return Outcome::Failed {
+                        ename,
+                        evalue,
+                        traceback,
+                    }
+                }
+                CellOutput::Display { display_id, data } if display_id == id => block = Some(data),
+                CellOutput::Display { display_id, data } => charts.push(Update {
+                    display_id,
+                    bundle: data,
+                }),
+                CellOutput::Result { data } => shown = Some(data),
+                CellOutput::Stderr { text } => stderr = Some(text),
+            }
         }
         Outcome::Done {
-            display_id: display_id(&report.cell),
-            block: has_block.then_some(block),
-            charts: charts(report),
-            shown: render::shown_bundle(report),
-            stderr: stderr_text(report),
-            updates,
+            display_id: id,
+            block,
+            charts,
+            shown,
+            stderr,
+            updates: o
+                .updates
+                .into_iter()
+                .map(|u| Update {
+                    display_id: u.display_id,
+                    bundle: u.data,
+                })
+                .collect(),
         }
     }
-}
-
-fn charts(report: &CellReport) -> Vec<Update> {
-    render::charts(report)
-        .into_iter()
-        .enumerate()
-        .map(|(i, bundle)| Update {
-            display_id: chart_id(&report.cell, i),
-            bundle,
-        })
-        .collect()
-}
-
-/// The warnings of a cell as console text: the built-ins' warnings and warning diagnostics
-/// (with their caret excerpt), one after another.
-fn stderr_text(report: &CellReport) -> Option<String> {
-    let mut out = String::new();
-    for w in &report.warnings {
-        out.push_str(&format!("warning: {}: {}\n", w.source, w.text));
-    }
-    for d in report.diagnostics.iter().filter(|d| !d.is_error()) {
-        out.push_str(&diagnostic::render(&report.source, d));
-        out.push('\n');
-    }
-    (!out.is_empty()).then_some(out)
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use worksheet_lang::results::CellReport;
     use worksheet_lang::ast::Span;
     use worksheet_lang::results::WarningRow;
     use worksheet_lang::{DiagKind, Diagnostic};

@@ -154,7 +154,7 @@ impl CellOutput {
             CellOutput::Stderr { text } => {
                 m.insert("name".into(), "stderr".into());
                 m.insert("output_type".into(), "stream".into());
-                m.insert("text".into(), super::ipynb::lines_value(text));
+                m.insert("text".into(), crate::notebook::ipynb::lines_value(text));
             }
             CellOutput::Error {
                 ename,
@@ -181,7 +181,7 @@ fn split_text(data: &Map<String, Value>) -> Value {
         let v = match &data[k] {
             // nbformat also splits SVG (`_non_text_split_mimes`), not base64 images.
             Value::String(s) if k.starts_with("text/") || k == "image/svg+xml" => {
-                super::ipynb::lines_value(s)
+                crate::notebook::ipynb::lines_value(s)
             }
             other => sorted(other),
         };
