@@ -605,7 +605,8 @@ impl<'t> Bands<'t> {
         let n = tape.inputs.len();
         let mut signs: Vec<Vec<Option<i8>>> = vec![vec![Some(0); n]; tape.outputs.len()];
         let mut inputs: Vec<Dual> = Vec::with_capacity(n);
-        for k in tape.swept..n {
+        // One box run per tolerance input, its derivative seeded.
+        for k in (0..n).skip(tape.swept) {
             inputs.clear();
             for (i, inp) in tape.inputs.iter().enumerate() {
                 let v = if i < tape.swept {

@@ -457,10 +457,8 @@ fn fast_sweep(
     Some(true)
 }
 
-/// A guaranteed enclosure of output `o` over the tolerance box at one sweep point, where
-/// the monotonicity test fails: interval evaluation on 16 sub-ranges of each undecided
-/// input would be tighter; one interval run is enough to stay safe and is marked nowhere
-/// else, so keep it simple and exact-or-enclosing.
+/// A guaranteed enclosure of output `o` over the tolerance box at one sweep point where the
+/// monotonicity test fails: one run in interval arithmetic (wider than exact, never narrower).
 fn enclose(tape: &Tape, o: usize, at: &[f64], dregs: &mut Vec<Dual>) -> Option<(f64, f64)> {
     let inputs: Vec<Dual> = tape
         .inputs
