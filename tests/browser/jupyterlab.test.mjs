@@ -510,6 +510,7 @@ async function main() {
       ['4 completion and inspection', () => stepCompleteInspect(page, state.nb)],
     ];
     for (const [name, run] of steps) {
+      const t0 = Date.now();
       console.log(`== ${name}`);
       try {
         if ((name.startsWith('3') || name.startsWith('4')) && !state.nb) {
@@ -520,6 +521,7 @@ async function main() {
         check(`${name}: the step ran to its end`, false, short(e));
         await screenshot(page, `failed-step-${name.split(' ')[0]}`);
       }
+      console.log(`   (${((Date.now() - t0) / 1000).toFixed(1)} s)`);
     }
   } finally {
     await browser.close().catch(() => {});

@@ -427,6 +427,10 @@ impl Compiler<'_> {
     }
 
     fn expr(&mut self, e: &Expr) -> Option<u32> {
+        stacker::maybe_grow(128 * 1024, 4 * 1024 * 1024, || self.expr_inner(e))
+    }
+
+    fn expr_inner(&mut self, e: &Expr) -> Option<u32> {
         match &e.kind {
             ExprKind::Number { value, unit } => {
                 let si = match unit {

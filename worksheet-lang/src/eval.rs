@@ -16,6 +16,13 @@ use std::sync::Arc;
 
 /// Deepest nesting of user-function calls.
 pub const MAX_CALL_DEPTH: usize = 32;
+/// When less stack than this is left, evaluation continues on a new segment of this size.
+const STACK_RED_ZONE: usize = 128 * 1024;
+const STACK_GROWTH: usize = 4 * 1024 * 1024;
+
+/// Most user-function calls one statement may make in one evaluation.
+pub const MAX_CALLS: usize = 50_000;
+
 /// Longest list a worksheet may build.
 pub const MAX_LIST_LEN: usize = 10_000;
 
@@ -141,6 +148,8 @@ pub struct Pass {
     pub mode: Mode,
     /// Scalar values by scalar id (None where not reached).
     pub scalars: Vec<Option<Num>>,
+    /// The scalar ids in the order they were set (to see what one statement recorded).
+    pub touched: Vec<usize>,
 }
 
 impl Pass {
@@ -148,13 +157,15 @@ impl Pass {
         Pass {
             mode,
             scalars: vec![None; n_scalars],
+            touched: Vec::new(),
         }
     }
-    fn set_scalar(&mut self, id: usize, n: Num) {
+    pub(crate) fn set_scalar(&mut self, id: usize, n: Num) {
         if id >= self.scalars.len() {
             self.scalars.resize(id + 1, None);
         }
         self.scalars[id] = Some(n);
+        self.touched.push(id);
     }
 }
 
@@ -188,6 +199,9 @@ pub struct Evaluator<'a> {
     pub given: bool,
     pub locals: Vec<(String, Value)>,
     pub depth: usize,
+    /// User-function calls made for this statement in this pass (capped: recursion that
+    /// fans out would otherwise run for ever within the depth cap).
+    pub calls: usize,
     /// Warnings (unit read as a unit although a name exists) met in the nominal pass.
     pub notes: Vec<Diagnostic>,
 }
@@ -292,7 +306,7 @@ impl<'a> Evaluator<'a> {
     }
 
     pub fn eval(&mut self, e: &Expr) -> R<Value> {
-        let v = self.eval_inner(e)?;
+        let v = stacker::maybe_grow(STACK_RED_ZONE, STACK_GROWTH, || self.eval_inner(e))?;
         if let Value::Num(n) = &v {
             if !n.x.is_finite() {
                 return Err(EvalError::new(
@@ -400,6 +414,15 @@ impl<'a> Evaluator<'a> {
                     ));
                 }
                 let vals = items.iter().map(|i| self.eval(i)).collect::<R<Vec<_>>>()?;
+                // Lists of lists multiply: the cap counts every item a list holds.
+                let total: usize = vals.iter().map(weight).sum();
+                if total > MAX_LIST_LEN {
+                    return Err(EvalError::new(
+                        DiagKind::Limit,
+                        &e.span,
+                        format!("a list may hold at most {MAX_LIST_LEN} items in all, nested lists included; this one holds {total}"),
+                    ));
+                }
                 Ok(Value::List(Arc::from(vals)))
             }
             ExprKind::Error => Err(EvalError::new(
@@ -632,6 +655,14 @@ impl<'a> Evaluator<'a> {
     }
 
     fn user_call(&mut self, name: &str, f: &Function, args: &[Arg], span: &Span) -> R<Value> {
+        self.calls += 1;
+        if self.calls > MAX_CALLS {
+            return Err(EvalError::new(
+                DiagKind::Limit,
+                span,
+                format!("more than {MAX_CALLS} function calls for one value (does `{name}` call itself more than once?)"),
+            ));
+        }
         if self.depth >= MAX_CALL_DEPTH {
             return Err(EvalError::new(
                 DiagKind::Limit,
@@ -990,6 +1021,14 @@ pub(crate) fn same_function(a: &Expr, b: &Expr) -> bool {
             f.name == g.name && same_function(x, y)
         }
         _ => false,
+    }
+}
+
+/// How many items a value stands for: one, or for a list all the items it holds.
+fn weight(v: &Value) -> usize {
+    match v {
+        Value::List(items) => items.iter().map(weight).sum::<usize>().max(1),
+        _ => 1,
     }
 }
 

@@ -867,13 +867,44 @@ struct Runner<'m> {
     /// Values of the nominal pass: definitions, and shown expressions by index.
     nominal_values: Vec<Option<Result<Value, String>>>,
     shown: HashMap<usize, Value>,
+    /// For each definition, the inputs its recorded scalars depend on (from box passes),
+    /// and how many box passes it has completed.
+    depends: Vec<Vec<usize>>,
+    boxed: Vec<usize>,
+    /// Definitions evaluated at points: (definition, its inputs' values) → value and scalars.
+    cache: HashMap<(usize, Vec<u64>), CachedDef>,
 }
+
+/// A definition's value at a point, with the scalars its evaluation recorded.
+type CachedDef = (Value, Vec<(usize, Num)>);
 
 fn def_key(name: &str) -> String {
     format!("d:{name}")
 }
 
 impl Runner<'_> {
+    /// The cache key of definition `d` in a pass at a point of the input box: the values of
+    /// the inputs it depends on. None until every box pass has shown those inputs (a
+    /// derivative enclosure of exactly zero over the box proves independence), and for
+    /// passes over intervals.
+    fn cache_key(&self, d: usize, mode: &Mode) -> Option<(usize, Vec<u64>)> {
+        let Mode::Assign { values, seed: None } = mode else {
+            return None;
+        };
+        if self.boxed.get(d).copied() != Some(self.reg.inputs.len()) || self.reg.inputs.is_empty() {
+            return None;
+        }
+        let mut key = Vec::with_capacity(self.depends[d].len());
+        for &k in &self.depends[d] {
+            let v = values.get(k)?;
+            if !v.is_point() {
+                return None;
+            }
+            key.push(v.lo.to_bits());
+        }
+        Some((d, key))
+    }
+
     fn fail(&mut self, id: StmtId, e: EvalError) {
         self.errors.entry(id).or_insert(e);
     }
@@ -895,6 +926,17 @@ impl Runner<'_> {
                 values[d] = Some(Err(e.message.clone()));
                 continue;
             }
+            // At a point of the input box already seen for the inputs this definition
+            // depends on, its value and everything it recorded are known.
+            let cache_key = self.cache_key(d, &pass.mode);
+            if let Some((v, recorded)) = cache_key.as_ref().and_then(|k| self.cache.get(k)) {
+                for (id, n) in recorded {
+                    pass.set_scalar(*id, *n);
+                }
+                values[d] = Some(Ok(v.clone()));
+                continue;
+            }
+            let first_touched = pass.touched.len();
             let result = if let Some((_, pv)) = self.pins.iter().find(|(pd, _)| *pd == d) {
                 Ok(Value::Num(*pv))
             } else {
@@ -911,6 +953,7 @@ impl Runner<'_> {
                     given: def.given,
                     locals: Vec::new(),
                     depth: 0,
+                    calls: 0,
                     notes: Vec::new(),
                 };
                 let r = ev.eval(&def.expr).and_then(|v| {
@@ -940,9 +983,23 @@ impl Runner<'_> {
                         given: def.given,
                         locals: Vec::new(),
                         depth: 0,
+                        calls: 0,
                         notes: Vec::new(),
                     };
                     ev.record_value(&scope_key, &v);
+                    let recorded: Vec<(usize, Num)> = pass.touched[first_touched..]
+                        .iter()
+                        .filter_map(|&id| pass.scalars[id].map(|n| (id, n)))
+                        .collect();
+                    if let Mode::Box { seed: Some(k) } = pass.mode {
+                        if recorded.iter().any(|(_, n)| n.x.d != Interval::ZERO) {
+                            self.depends[d].push(k);
+                        }
+                        self.boxed[d] += 1;
+                    }
+                    if let Some(key) = cache_key {
+                        self.cache.insert(key, (v.clone(), recorded));
+                    }
                     values[d] = Some(Ok(v));
                 }
                 Err(mut e) => {
@@ -972,6 +1029,7 @@ impl Runner<'_> {
                 given: false,
                 locals: Vec::new(),
                 depth: 0,
+                calls: 0,
                 notes: Vec::new(),
             };
             let r = (|| {
@@ -1018,6 +1076,7 @@ impl Runner<'_> {
                 given: false,
                 locals: Vec::new(),
                 depth: 0,
+                calls: 0,
                 notes: Vec::new(),
             };
             let r = ev.eval(&s.expr).and_then(|v| {
@@ -1050,6 +1109,7 @@ impl Runner<'_> {
                 given: false,
                 locals: Vec::new(),
                 depth: 0,
+                calls: 0,
                 notes: Vec::new(),
             };
             if let Ok(v) = ev.eval(e) {
@@ -1081,6 +1141,7 @@ fn same_kind(
         given: true,
         locals: Vec::new(),
         depth: 0,
+        calls: 0,
         notes: Vec::new(),
     };
     let Ok(old) = ev.eval(original) else {
@@ -1132,6 +1193,9 @@ impl<'m> Runner<'m> {
             extra: Vec::new(),
             nominal_values: Vec::new(),
             shown: HashMap::new(),
+            depends: vec![Vec::new(); model.defs.len()],
+            boxed: vec![0; model.defs.len()],
+            cache: HashMap::new(),
         }
     }
 }
@@ -1703,6 +1767,7 @@ impl SweepHost<'_> {
             given: false,
             locals: Vec::new(),
             depth: 0,
+            calls: 0,
             notes: Vec::new(),
         };
         match ev.eval(e)? {
@@ -1758,6 +1823,7 @@ impl SweepHost<'_> {
                     given: false,
                     locals: Vec::new(),
                     depth: 0,
+                    calls: 0,
                     notes: Vec::new(),
                 };
                 return Some(match ev.eval(e) {
