@@ -3,9 +3,11 @@
 //! `cargo bench -p headroom --bench render`.
 //!
 //! The render module belongs to the `headroom` binary (the package has no library target), so
-//! this bench compiles the same source file into itself.
+//! this bench compiles the same source file into itself. Cargo builds bench targets with
+//! `cfg(test)`, so the module's unit-test files come along without their `#[test]` functions:
+//! hence the allowances for what only they and the binary use.
 
-#[allow(dead_code)]
+#[allow(dead_code, unused_imports)]
 #[path = "../src/render/mod.rs"]
 mod render;
 

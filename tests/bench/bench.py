@@ -367,7 +367,7 @@ def fmt(x, unit):
             return f"{x * 1e3:.3g} ms"
         return f"{x:.3g} s"
     if unit == "ns/point":
-        return f"{x:.3g} ns/point"
+        return f"{x:,.0f} ns/point" if x >= 1000 else f"{x:.3g} ns/point"
     if unit == "MiB":
         return f"{x / 2**20:.1f} MiB"
     return f"{x:.3g} {unit}"
@@ -493,7 +493,8 @@ def main():
         "",
         f"Measured {now} on {machine()}; Headroom {revision()}; "
         f"Python {platform.python_version()} with {versions()}. "
-        f"`tests/bench/run` took {elapsed:.0f} s.",
+        f"The measurements took {elapsed:.0f} s"
+        + (" (a `--quick` run: few repetitions, rough figures)." if q else "."),
         "",
         table(rows),
         "",

@@ -211,15 +211,28 @@ async function appendCell(page, nb) {
 }
 
 async function executionCount(c) {
-  const t = (await c.locator('.jp-InputPrompt').textContent()) || '';
+  const prompt = c.locator('.jp-InputPrompt');
+  if ((await prompt.count()) === 0) return null;
+  const t = (await prompt.textContent()) || '';
   const m = t.match(/\[(\d+)\]/);
   return m ? Number(m[1]) : null;
 }
 
 // The output as read on the page, table cells and line breaks folded to single spaces.
 async function outputText(c) {
-  const t = (await c.locator('.jp-OutputArea').innerText().catch(() => '')) || '';
+  // Markdown cells have no output area: do not wait for one.
+  const area = c.locator('.jp-OutputArea');
+  if ((await area.count()) === 0) return '';
+  const t = (await area.innerText().catch(() => '')) || '';
   return t.replace(/\s+/g, ' ').trim();
+}
+
+// Error outputs (JupyterLab renders a kernel's error reply with the stderr MIME type; warnings
+// on stderr do not start with "error").
+function errorOutputs(scope) {
+  return scope
+    .locator('.jp-OutputArea-output[data-mime-type="application/vnd.jupyter.stderr"]')
+    .filter({ hasText: /^\s*error/ });
 }
 
 // Polls until the cell's output satisfies `ok`; returns the last text seen.
@@ -284,12 +297,10 @@ async function stepRunAll(page, example) {
     charts >= 1,
     'no image in any output: the kernel sends no chart for `sweep` yet',
   );
-  const errors = await nb.locator('.jp-OutputArea-output[data-mime-type="application/vnd.jupyter.stderr"]', {
-    hasText: 'error',
-  }).count();
+  const errors = await errorOutputs(nb).count();
   check('1 the example runs without errors', errors === 0, `${errors} error outputs`);
   await screenshot(page, 'example-run-all');
-  await worksheetView(page);
+  await worksheetViews(page);
 }
 
 // In the example: a `given` made 25 % larger and only its cell re-run; some other cell's
@@ -332,25 +343,29 @@ async function stepExampleGiven(page, example) {
   await screenshot(page, 'example-given-edited');
 }
 
-// A clean view of the example's worksheet for the README: no side bar, the first block with
-// checks at the top.
-async function worksheetView(page) {
+// Clean views of the example's worksheet for the README, without the side bar: the first
+// block with checks, and the sweep chart, each with the text cell above it at the top.
+async function worksheetViews(page) {
   const nb = notebook(page);
   await page.keyboard.press('Escape');
   await page.keyboard.press('Control+b');
   await page.waitForTimeout(500);
   const cells = nb.locator('.jp-Notebook .jp-Cell');
   const n = await cells.count();
-  let target = 0;
-  for (let i = 0; i < n; i += 1) {
-    if ((await outputText(cells.nth(i))).includes('Checks')) {
-      target = i > 0 ? i - 1 : i;
-      break;
+  const views = [
+    ['worksheet', async (c) => (await outputText(c)).includes('Checks')],
+    ['worksheet-sweep', async (c) => (await c.locator('.jp-OutputArea-output img, .jp-OutputArea-output svg').count()) > 0],
+  ];
+  for (const [name, wanted] of views) {
+    for (let i = 0; i < n; i += 1) {
+      if (await wanted(cells.nth(i))) {
+        await cells.nth(i > 0 ? i - 1 : i).evaluate((el) => el.scrollIntoView({ block: 'start' }));
+        await page.waitForTimeout(300);
+        await screenshot(page, name);
+        break;
+      }
     }
   }
-  await cells.nth(target).evaluate((el) => el.scrollIntoView({ block: 'start' }));
-  await page.waitForTimeout(300);
-  await screenshot(page, 'worksheet');
   await page.keyboard.press('Control+b');
 }
 
@@ -423,6 +438,8 @@ async function stepUnitError(page, nb) {
   const text = await waitForOutput(page, c, (t) => t.includes('DimensionMismatch'));
   const raw = (await c.locator('.jp-OutputArea').innerText().catch(() => '')) || '';
   check('3 the unit mistake is reported as DimensionMismatch', text.includes('DimensionMismatch'), JSON.stringify(text));
+  // The same selector that finds no error in the example finds this one.
+  check('3 it is shown as an error output', (await errorOutputs(c).count()) === 1);
   check(
     '3 the message names the declared unit and its dimension',
     text.includes('declared as `W`') && text.includes('power'),
@@ -449,23 +466,32 @@ async function stepUnitError(page, nb) {
 async function stepCompleteInspect(page, nb) {
   const c = await appendCell(page, nb);
   await setSource(page, c, 'u = reg.');
+  await page.waitForTimeout(300);
   await page.keyboard.press('Tab');
-  const completer = page.locator('.jp-Completer');
-  await completer.waitFor({ state: 'visible', timeout: CELL_TIMEOUT }).catch(() => {});
-  const items = (await completer.locator('.jp-Completer-item').allInnerTexts().catch(() => []))
-    .map((t) => t.trim());
+  const completer = page.locator('.jp-Completer:not(.lm-mod-hidden)');
+  const wanted = (list) => ['linear', 'switching'].every((w) => list.some((t) => t.startsWith(w)));
+  let items = [];
+  const deadline = Date.now() + CELL_TIMEOUT;
+  while (Date.now() < deadline) {
+    if (await completer.isVisible()) {
+      items = (await completer.locator('.jp-Completer-item').allInnerTexts()).map((t) => t.trim());
+      if (wanted(items)) break;
+    }
+    await page.waitForTimeout(200);
+  }
   // The reg. namespace of the built-in library holds the linear and switching regulators.
   check(
     '4 Tab after `reg.` offers the regulator built-ins (linear, switching)',
-    items.some((t) => t.startsWith('linear')) && items.some((t) => t.startsWith('switching')),
+    wanted(items),
     `completer items: ${JSON.stringify(items)}`,
   );
   await screenshot(page, 'completion');
   await page.keyboard.press('Escape');
 
   await setSource(page, c, 'u = reg.linear');
+  await page.waitForTimeout(300);
   await page.keyboard.press('Shift+Tab');
-  const tooltip = page.locator('.jp-Tooltip');
+  const tooltip = page.locator('.jp-Tooltip:not(.lm-mod-hidden)');
   await tooltip.waitFor({ state: 'visible', timeout: CELL_TIMEOUT }).catch(() => {});
   const help = (await tooltip.innerText().catch(() => '')) || '';
   // Its documentation: the signature with its arguments, and what the part is.

@@ -16,10 +16,16 @@ use std::time::Instant;
 use worksheet_lang::{diagnostic, Interrupt, Worksheet};
 
 fn main() -> ExitCode {
-    let args: Vec<String> = std::env::args().skip(1).filter(|a| a != "--bench").collect();
+    let args: Vec<String> = std::env::args()
+        .skip(1)
+        .filter(|a| a != "--bench")
+        .collect();
     let parsed = match args.as_slice() {
         [] => return ExitCode::SUCCESS,
-        [what, arg, reps] => reps.parse::<usize>().ok().map(|r| (what.as_str(), arg, r.max(1))),
+        [what, arg, reps] => reps
+            .parse::<usize>()
+            .ok()
+            .map(|r| (what.as_str(), arg, r.max(1))),
         _ => None,
     };
     let result = match parsed {

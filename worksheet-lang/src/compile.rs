@@ -596,78 +596,243 @@ impl Compiler<'_> {
 
 /// Per-point bounds of a tape's outputs over its tolerance inputs, with the swept inputs
 /// fixed. Signs of the partial derivatives are proven over `sweep_box` (each swept input's
-/// interval); where every sign is proven, each output's extremes are two corner runs.
+/// interval) and the whole tolerance box. Where an input's sign is not proven over its whole
+/// range, its range is split into pieces on each of which the sign is proven (for every value
+/// of the other inputs); the extremes then lie at piece ends. Each output's minimum and
+/// maximum are therefore the least and greatest of a few runs at candidate points.
 pub struct Bands<'t> {
     tape: &'t Tape,
-    /// For each output: the corner assignment (per tolerance input) of its min and max, or
-    /// None when a sign is not proven over the box.
-    corners: Vec<Option<(Vec<f64>, Vec<f64>)>>,
+    /// For each output: the candidate assignments (per tolerance input) of its min and of
+    /// its max, or None when a sign could not be proven even piecewise.
+    candidates: Vec<Option<Candidates>>,
+}
+
+/// Candidate tolerance assignments of an output's minimum and of its maximum.
+type Candidates = (Vec<Vec<f64>>, Vec<Vec<f64>>);
+
+/// Most candidate points per output and side.
+const MAX_CANDIDATES: usize = 64;
+
+#[derive(Clone, Copy, PartialEq, Debug)]
+enum Sign {
+    Zero,
+    Up,
+    Down,
+}
+
+fn sign_of(d: Interval) -> Option<Sign> {
+    if d.lo == 0.0 && d.hi == 0.0 {
+        Some(Sign::Zero)
+    } else if d.lo >= 0.0 {
+        Some(Sign::Up)
+    } else if d.hi <= 0.0 {
+        Some(Sign::Down)
+    } else {
+        None
+    }
 }
 
 impl<'t> Bands<'t> {
-    pub fn prove(tape: &'t Tape, sweep_box: &[Interval], regs: &mut Vec<Dual>) -> Option<Self> {
-        let n = tape.inputs.len();
-        let mut signs: Vec<Vec<Option<i8>>> = vec![vec![Some(0); n]; tape.outputs.len()];
-        let mut inputs: Vec<Dual> = Vec::with_capacity(n);
-        // One box run per tolerance input, its derivative seeded.
-        for k in (0..n).skip(tape.swept) {
-            inputs.clear();
-            for (i, inp) in tape.inputs.iter().enumerate() {
-                let v = if i < tape.swept {
-                    *sweep_box.get(i)?
-                } else {
-                    Interval::new(inp.lo, inp.hi)
-                };
-                inputs.push(Dual::input(v, i == k));
-            }
-            tape.prepare(regs);
-            tape.run(&inputs, regs);
-            for (o, &r) in tape.outputs.iter().enumerate() {
-                let x = regs[r as usize];
-                if !x.is_finite() || !x.d.lo.is_finite() || !x.d.hi.is_finite() {
-                    return None;
-                }
-                signs[o][k] = if x.d.lo == 0.0 && x.d.hi == 0.0 {
-                    Some(0)
-                } else if x.d.lo >= 0.0 {
-                    Some(1)
-                } else if x.d.hi <= 0.0 {
-                    Some(-1)
-                } else {
-                    None
-                };
-            }
+    /// The derivative sign of output `o` with respect to tolerance input `k`, over the
+    /// tolerance assignment `tol` (intervals; points where fixed) and the sweep box.
+    fn sign(
+        tape: &Tape,
+        sweep_box: &[Interval],
+        tol: &[Interval],
+        k: usize,
+        o: usize,
+        regs: &mut Vec<Dual>,
+    ) -> Option<Option<Sign>> {
+        let mut inputs: Vec<Dual> = Vec::with_capacity(tape.inputs.len());
+        for i in 0..tape.inputs.len() {
+            let v = if i < tape.swept {
+                *sweep_box.get(i)?
+            } else {
+                tol[i - tape.swept]
+            };
+            inputs.push(Dual::input(v, i == k));
         }
-        let corners = signs
-            .iter()
-            .map(|s| {
-                let mut lo = Vec::with_capacity(n);
-                let mut hi = Vec::with_capacity(n);
-                for (k, inp) in tape.inputs.iter().enumerate().skip(tape.swept) {
-                    match s[k]? {
-                        1 => {
-                            lo.push(inp.lo);
-                            hi.push(inp.hi);
-                        }
-                        -1 => {
-                            lo.push(inp.hi);
-                            hi.push(inp.lo);
-                        }
-                        _ => {
-                            lo.push(inp.nominal);
-                            hi.push(inp.nominal);
-                        }
-                    }
-                }
-                Some((lo, hi))
-            })
-            .collect();
-        Some(Bands { tape, corners })
+        tape.prepare(regs);
+        tape.run(&inputs, regs);
+        let x = regs[tape.outputs[o] as usize];
+        if !x.is_finite() || !x.d.lo.is_finite() || !x.d.hi.is_finite() {
+            return None;
+        }
+        Some(sign_of(x.d))
     }
 
-    /// True when every output's corners are proven.
+    pub fn prove(tape: &'t Tape, sweep_box: &[Interval], regs: &mut Vec<Dual>) -> Option<Self> {
+        let n = tape.inputs.len();
+        let tols = &tape.inputs[tape.swept..];
+        let full: Vec<Interval> = tols.iter().map(|t| Interval::new(t.lo, t.hi)).collect();
+        let mut candidates = Vec::with_capacity(tape.outputs.len());
+        for o in 0..tape.outputs.len() {
+            // Signs over the whole box.
+            let mut whole = Vec::with_capacity(tols.len());
+            for k in (0..n).skip(tape.swept) {
+                whole.push(Self::sign(tape, sweep_box, &full, k, o, regs)?);
+            }
+            let mut sides: Vec<Vec<Vec<f64>>> = Vec::with_capacity(2);
+            for want_max in [false, true] {
+                // Inputs of proven sign go to the end their sign asks for (a valid reduction
+                // of the box); the others keep their range and are settled piecewise.
+                let base: Vec<Interval> = tols
+                    .iter()
+                    .zip(&whole)
+                    .map(|(t, s)| match (s, want_max) {
+                        (Some(Sign::Up), false) | (Some(Sign::Down), true) => Interval::point(t.lo),
+                        (Some(Sign::Up), true) | (Some(Sign::Down), false) => Interval::point(t.hi),
+                        (Some(Sign::Zero), _) => Interval::point(t.nominal),
+                        (None, _) => Interval::new(t.lo, t.hi),
+                    })
+                    .collect();
+                let mut points: Vec<Vec<f64>> = vec![Vec::new()];
+                let mut ok = true;
+                for (j, t) in tols.iter().enumerate() {
+                    let values: Vec<f64> = if base[j].is_point() {
+                        vec![base[j].lo]
+                    } else {
+                        match Self::pieces(tape, sweep_box, &base, j, o, want_max, t, regs) {
+                            Some(v) => v,
+                            None => {
+                                ok = false;
+                                break;
+                            }
+                        }
+                    };
+                    points = product(&points, &values);
+                    if points.len() > MAX_CANDIDATES {
+                        ok = false;
+                        break;
+                    }
+                }
+                if !ok {
+                    break;
+                }
+                sides.push(points);
+            }
+            candidates.push(if sides.len() == 2 {
+                let maxs = sides.pop().unwrap_or_default();
+                let mins = sides.pop().unwrap_or_default();
+                Some((mins, maxs))
+            } else {
+                None
+            });
+        }
+        Some(Bands { tape, candidates })
+    }
+
+    /// Candidate values of tolerance input `j` for the min (or max) of output `o`: its range
+    /// split into pieces on each of which the derivative's sign is proven; the extreme on a
+    /// piece is at the end its sign asks for. None when 16 pieces do not suffice.
+    #[allow(clippy::too_many_arguments)]
+    fn pieces(
+        tape: &Tape,
+        sweep_box: &[Interval],
+        base: &[Interval],
+        j: usize,
+        o: usize,
+        want_max: bool,
+        t: &TapeInput,
+        regs: &mut Vec<Dual>,
+    ) -> Option<Vec<f64>> {
+        'split: for p in [4usize, 16] {
+            let w = (t.hi - t.lo) / p as f64;
+            let mut signs: Vec<(f64, f64, Sign)> = Vec::with_capacity(p);
+            let mut tol = base.to_vec();
+            for piece in 0..p {
+                let lo = t.lo + w * piece as f64;
+                let hi = if piece + 1 == p { t.hi } else { lo + w };
+                tol[j] = Interval::new(lo, hi);
+                let mut sg = Self::sign(tape, sweep_box, &tol, tape.swept + j, o, regs)?;
+                if sg.is_none() {
+                    sg = Self::sign_across(tape, sweep_box, &tol, j, o, regs)?;
+                }
+                match sg {
+                    Some(s) => signs.push((lo, hi, s)),
+                    None => continue 'split,
+                }
+            }
+            // Along the range, the extreme is at an end of a run of pieces of one sign: for
+            // the minimum where a falling run meets a rising one (or at the ends).
+            let mut values = Vec::with_capacity(2);
+            let mut push = |v: f64| {
+                if !values.contains(&v) {
+                    values.push(v);
+                }
+            };
+            let rising = |s: Sign| {
+                if want_max {
+                    s == Sign::Down
+                } else {
+                    s == Sign::Up
+                }
+            };
+            for (k, &(lo, hi, s)) in signs.iter().enumerate() {
+                let prev = k.checked_sub(1).map(|i| signs[i].2);
+                let next = signs.get(k + 1).map(|x| x.2);
+                if s == Sign::Zero {
+                    push(lo);
+                } else if rising(s) {
+                    // The run's extreme is at its start.
+                    if prev.is_none_or(|p| p != s) {
+                        push(lo);
+                    }
+                } else if next.is_none_or(|n| n != s) {
+                    push(hi);
+                }
+            }
+            return Some(values);
+        }
+        None
+    }
+
+    /// The sign of output `o` in tolerance input `j` when the other inputs still over a
+    /// range are split in turn into 16 pieces: proven when it is the same on every piece
+    /// (the overestimate of interval arithmetic shrinks with the width of what varies).
+    fn sign_across(
+        tape: &Tape,
+        sweep_box: &[Interval],
+        tol: &[Interval],
+        j: usize,
+        o: usize,
+        regs: &mut Vec<Dual>,
+    ) -> Option<Option<Sign>> {
+        const SPLIT: usize = 16;
+        for (i, r) in tol.iter().enumerate() {
+            if i == j || r.is_point() {
+                continue;
+            }
+            let mut common: Option<Sign> = None;
+            let mut proven = true;
+            let mut sub = tol.to_vec();
+            let w = r.width() / SPLIT as f64;
+            for piece in 0..SPLIT {
+                let lo = r.lo + w * piece as f64;
+                let hi = if piece + 1 == SPLIT { r.hi } else { lo + w };
+                sub[i] = Interval::new(lo, hi);
+                match Self::sign(tape, sweep_box, &sub, tape.swept + j, o, regs)? {
+                    Some(s) if common.is_none() || common == Some(s) || s == Sign::Zero => {
+                        if s != Sign::Zero {
+                            common = Some(s);
+                        }
+                    }
+                    _ => {
+                        proven = false;
+                        break;
+                    }
+                }
+            }
+            if proven {
+                return Some(Some(common.unwrap_or(Sign::Zero)));
+            }
+        }
+        Some(None)
+    }
+
+    /// True when every output's extremes are proven.
     pub fn exact(&self) -> bool {
-        self.corners.iter().all(Option::is_some)
+        self.candidates.iter().all(Option::is_some)
     }
 
     /// The (min, max) of output `o` at the swept values `at`; None where unproven.
@@ -679,7 +844,7 @@ impl<'t> Bands<'t> {
         inputs: &mut Vec<f64>,
         regs: &mut [f64],
     ) -> Option<(f64, f64)> {
-        let (lo, hi) = self.corners.get(o)?.as_ref()?;
+        let (mins, maxs) = self.candidates.get(o)?.as_ref()?;
         let r = self.tape.outputs[o] as usize;
         let mut run = |corner: &[f64]| {
             inputs.clear();
@@ -688,8 +853,24 @@ impl<'t> Bands<'t> {
             self.tape.run(inputs.as_slice(), regs);
             regs[r]
         };
-        let a = run(lo);
-        let b = run(hi);
-        Some((a.min(b), a.max(b)))
+        let lo = mins.iter().map(|c| run(c)).fold(f64::INFINITY, f64::min);
+        let hi = maxs
+            .iter()
+            .map(|c| run(c))
+            .fold(f64::NEG_INFINITY, f64::max);
+        Some((lo.min(hi), hi.max(lo)))
     }
+}
+
+/// Every extension of the partial assignments in `acc` by one of `values`.
+fn product(acc: &[Vec<f64>], values: &[f64]) -> Vec<Vec<f64>> {
+    let mut out = Vec::with_capacity(acc.len() * values.len());
+    for a in acc {
+        for &v in values {
+            let mut x = a.clone();
+            x.push(v);
+            out.push(x);
+        }
+    }
+    out
 }

@@ -14,6 +14,10 @@ use crate::worksheet::{PointValue, SweepHost};
 pub const MAX_POINTS: usize = 10_000_000;
 /// Points used when the sweep does not say.
 pub const DEFAULT_POINTS: usize = 50;
+/// Shortest stretch of a compiled sweep whose bands are proven as one; shorter stretches
+/// that fail are proven point by point.
+const MIN_SEGMENT: usize = 64;
+
 /// Points kept in the results data (decimated, extremes kept).
 pub const MAX_DATA_POINTS: usize = 1_000;
 
@@ -391,8 +395,29 @@ fn fast_sweep(
         } else {
             None
         };
-        const CHUNK: usize = 1 << 14;
-        let mut chunk_bands: Option<Bands<'_>> = None;
+        // Where the signs are not proven over the whole sweep, over segments of it,
+        // halved until proven (down to a few points; then point by point).
+        let mut segments: Vec<(usize, Option<Bands<'_>>)> = Vec::new();
+        if uncertain && whole.is_none() {
+            let mut todo = vec![(0usize, n)];
+            while let Some((lo, hi)) = todo.pop() {
+                let b = Bands::prove(
+                    tape,
+                    &sweep_box(inner.points[lo], inner.points[hi - 1]),
+                    &mut dregs,
+                )
+                .filter(Bands::exact);
+                if b.is_some() || hi - lo <= MIN_SEGMENT {
+                    segments.push((lo, b));
+                } else {
+                    let mid = lo + (hi - lo) / 2;
+                    todo.push((mid, hi));
+                    todo.push((lo, mid));
+                }
+            }
+            segments.sort_by_key(|(start, _)| *start);
+        }
+        let mut segment = 0;
         for (i, &x) in inner.points.iter().enumerate() {
             if i % 4096 == 0 && host.interrupt().is_raised() {
                 return None;
@@ -412,13 +437,14 @@ fn fast_sweep(
             if !uncertain {
                 continue;
             }
-            if whole.is_none() && i % CHUNK == 0 {
-                let hi = inner.points[(i + CHUNK - 1).min(n - 1)];
-                chunk_bands =
-                    Bands::prove(tape, &sweep_box(x, hi), &mut dregs).filter(Bands::exact);
+            while segment + 1 < segments.len() && segments[segment + 1].0 <= i {
+                segment += 1;
             }
             let point_bands;
-            let bands = match whole.as_ref().or(chunk_bands.as_ref()) {
+            let bands = match whole
+                .as_ref()
+                .or(segments.get(segment).and_then(|(_, b)| b.as_ref()))
+            {
                 Some(b) => b,
                 None => {
                     point_bands = Bands::prove(tape, &sweep_box(x, x), &mut dregs);
