@@ -23,7 +23,7 @@
 use crate::eval::{InputInfo, Mode, Pass, Registry};
 use crate::num::Interval;
 use crate::value::Num;
-use std::collections::HashMap;
+use rustc_hash::FxHashMap as HashMap;
 
 /// What the analysis found for one scalar.
 #[derive(Debug, Clone, PartialEq)]
@@ -58,7 +58,7 @@ impl<'e, E: Evaluate> Passes<'e, E> {
     pub fn new(eval: &'e mut E) -> Self {
         Passes {
             eval,
-            memo: HashMap::new(),
+            memo: HashMap::default(),
             count: 0,
             interrupted: false,
         }

@@ -15,7 +15,7 @@ use crate::ast::{BinOp, Expr, ExprKind};
 use crate::eval::{self, Function, MAX_CALL_DEPTH};
 use crate::num::{Dual, Interval};
 use crate::units;
-use std::collections::HashMap;
+use rustc_hash::FxHashMap as HashMap;
 
 /// One operation; operands are register indices (every operation writes its own register).
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -254,9 +254,9 @@ pub fn compile(src: &dyn TapeSource, swept: &[usize], exprs: &[Expr]) -> Option<
         ops: Vec::new(),
         inputs: Vec::new(),
         swept: Vec::new(),
-        defs: HashMap::new(),
-        affected: HashMap::new(),
-        sites: HashMap::new(),
+        defs: HashMap::default(),
+        affected: HashMap::default(),
+        sites: HashMap::default(),
         locals: Vec::new(),
         current: usize::MAX,
         depth: 0,

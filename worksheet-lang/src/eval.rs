@@ -11,7 +11,7 @@ use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::num::{Dual, Interval};
 use crate::units::{self, Dim};
 use crate::value::{Num, Record, Value};
-use std::collections::HashMap;
+use rustc_hash::FxHashMap as HashMap;
 use std::sync::Arc;
 
 /// Deepest nesting of user-function calls.
@@ -192,9 +192,9 @@ pub struct Evaluator<'a> {
     pub reg: &'a mut Registry,
     pub pass: &'a mut Pass,
     /// Key of the statement being evaluated ("cell:3"), prefix of site keys.
-    pub stmt_key: String,
+    pub stmt_key: &'a str,
     /// Human name of the statement (definition name, or "check"), for labels.
-    pub stmt_label: String,
+    pub stmt_label: &'a str,
     /// Label given to this statement's tolerance sites when it is a `given`.
     pub given: bool,
     pub locals: Vec<(String, Value)>,
@@ -286,7 +286,7 @@ impl<'a> Evaluator<'a> {
     ) -> R<Num> {
         let key = format!("{}@{}", self.stmt_key, span.start);
         let label = if self.given {
-            self.stmt_label.clone()
+            self.stmt_label.to_string()
         } else {
             format!("tolerance in {}", self.stmt_label)
         };
@@ -1107,8 +1107,8 @@ impl CallHost for Host<'_, '_> {
             {
                 self.ev.reg.probes.push(ProbeInfo {
                     scalar,
-                    source: self.ev.stmt_label.clone(),
-                    stmt: self.ev.stmt_key.clone(),
+                    source: self.ev.stmt_label.to_string(),
+                    stmt: self.ev.stmt_key.to_string(),
                     rule,
                 });
             }
@@ -1129,8 +1129,8 @@ impl CallHost for Host<'_, '_> {
         r
     }
     fn warn(&mut self, text: String) {
-        let src = self.ev.stmt_label.clone();
-        let key = self.ev.stmt_key.clone();
+        let src = self.ev.stmt_label.to_string();
+        let key = self.ev.stmt_key.to_string();
         if !self
             .ev
             .reg

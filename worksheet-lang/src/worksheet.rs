@@ -15,7 +15,7 @@ use crate::parser;
 use crate::results::{Bounds, CellReport, Change, CheckRow, Share, Shown, ValueRow, WarningRow};
 use crate::units::{self, Dim, Unit};
 use crate::value::{Num, Value};
-use std::collections::HashMap;
+use rustc_hash::FxHashMap as HashMap;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 
@@ -432,6 +432,8 @@ fn changes(old: Option<&CellReport>, new: &CellReport) -> Vec<Change> {
 
 struct DefEntry {
     name: String,
+    /// The statement key ("d:NAME") its scalars and sites are recorded under.
+    key: String,
     cell: usize,
     expr: Expr,
     /// Where the value stands in the cell (errors in an override point here).
@@ -506,8 +508,8 @@ fn resolve_unit(u: &crate::ast::UnitExpr) -> Result<Unit, EvalError> {
 fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
     let mut m = Model {
         defs: Vec::new(),
-        index: HashMap::new(),
-        funcs: HashMap::new(),
+        index: HashMap::default(),
+        funcs: HashMap::default(),
         order: Vec::new(),
         checks: Vec::new(),
         shows: Vec::new(),
@@ -520,7 +522,7 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
     };
     // Who owns each name: within a cell the first definition (a second is an error);
     // across cells the one run last.
-    let mut owner: HashMap<String, (usize, u64)> = HashMap::new();
+    let mut owner: HashMap<String, (usize, u64)> = HashMap::default();
     for (ci, c) in cells.iter().enumerate() {
         let mut seen: Vec<&str> = Vec::new();
         for s in &c.program.stmts {
@@ -589,6 +591,7 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                     };
                     let idx = m.defs.len();
                     m.defs.push(DefEntry {
+                        key: def_key(&d.name.name),
                         name: d.name.name.clone(),
                         cell: ci,
                         expr: ov.map_or_else(|| d.value.clone(), |o| o.expr.clone()),
@@ -873,6 +876,17 @@ struct Runner<'m> {
     boxed: Vec<usize>,
     /// Definitions evaluated at points: (definition, its inputs' values) → value and scalars.
     cache: HashMap<(usize, Vec<u64>), CachedDef>,
+    /// The scalar ids of each definition's numeric leaves, from the nominal pass.
+    leaves: Vec<Option<Vec<usize>>>,
+}
+
+/// The numbers of a value in the order `Evaluator::record_value` records them.
+fn numeric_leaves(v: &Value, out: &mut Vec<Num>) {
+    match v {
+        Value::Num(n) => out.push(*n),
+        Value::Record(r) => r.fields.iter().for_each(|f| numeric_leaves(&f.value, out)),
+        _ => {}
+    }
 }
 
 /// A definition's value at a point, with the scalars its evaluation recorded.
@@ -948,8 +962,8 @@ impl Runner<'_> {
                     names: &scope,
                     reg: &mut self.reg,
                     pass: &mut pass,
-                    stmt_key: def_key(&def.name),
-                    stmt_label: def.name.clone(),
+                    stmt_key: &def.key,
+                    stmt_label: &def.name,
                     given: def.given,
                     locals: Vec::new(),
                     depth: 0,
@@ -973,20 +987,36 @@ impl Runner<'_> {
             };
             match result {
                 Ok(v) => {
-                    let scope_key = def_key(&def.name);
-                    let mut ev = Evaluator {
-                        names: &NoNames,
-                        reg: &mut self.reg,
-                        pass: &mut pass,
-                        stmt_key: scope_key.clone(),
-                        stmt_label: def.name.clone(),
-                        given: def.given,
-                        locals: Vec::new(),
-                        depth: 0,
-                        calls: 0,
-                        notes: Vec::new(),
-                    };
-                    ev.record_value(&scope_key, &v);
+                    // The value's numbers are recorded under the ids the nominal pass gave
+                    // them (the same leaves in the same order), without building keys.
+                    let leaf_start = pass.touched.len();
+                    match self.leaves.get(d).and_then(Option::as_ref) {
+                        Some(ids) if !nominal => {
+                            let mut nums = Vec::with_capacity(ids.len());
+                            numeric_leaves(&v, &mut nums);
+                            for (id, n) in ids.iter().zip(nums) {
+                                pass.set_scalar(*id, n);
+                            }
+                        }
+                        _ => {
+                            let mut ev = Evaluator {
+                                names: &NoNames,
+                                reg: &mut self.reg,
+                                pass: &mut pass,
+                                stmt_key: &def.key,
+                                stmt_label: &def.name,
+                                given: def.given,
+                                locals: Vec::new(),
+                                depth: 0,
+                                calls: 0,
+                                notes: Vec::new(),
+                            };
+                            ev.record_value(&def.key, &v);
+                            if nominal {
+                                self.leaves[d] = Some(pass.touched[leaf_start..].to_vec());
+                            }
+                        }
+                    }
                     let recorded: Vec<(usize, Num)> = pass.touched[first_touched..]
                         .iter()
                         .filter_map(|&id| pass.scalars[id].map(|n| (id, n)))
@@ -1024,8 +1054,8 @@ impl Runner<'_> {
                 names: &scope,
                 reg: &mut self.reg,
                 pass: &mut pass,
-                stmt_key: c.key.clone(),
-                stmt_label: "check".into(),
+                stmt_key: &c.key,
+                stmt_label: "check",
                 given: false,
                 locals: Vec::new(),
                 depth: 0,
@@ -1071,8 +1101,8 @@ impl Runner<'_> {
                 names: &scope,
                 reg: &mut self.reg,
                 pass: &mut pass,
-                stmt_key: s.key.clone(),
-                stmt_label: s.text.clone(),
+                stmt_key: &s.key,
+                stmt_label: &s.text,
                 given: false,
                 locals: Vec::new(),
                 depth: 0,
@@ -1104,8 +1134,8 @@ impl Runner<'_> {
                 names: &scope,
                 reg: &mut self.reg,
                 pass: &mut pass,
-                stmt_key: key.clone(),
-                stmt_label: "sweep".into(),
+                stmt_key: key,
+                stmt_label: "sweep",
                 given: false,
                 locals: Vec::new(),
                 depth: 0,
@@ -1136,8 +1166,8 @@ fn same_kind(
         names: scope,
         reg: &mut scratch,
         pass: &mut pass,
-        stmt_key: "override".into(),
-        stmt_label: def.name.clone(),
+        stmt_key: "override",
+        stmt_label: &def.name,
         given: true,
         locals: Vec::new(),
         depth: 0,
@@ -1187,15 +1217,16 @@ impl<'m> Runner<'m> {
             model,
             reg: Registry::default(),
             interrupt,
-            errors: HashMap::new(),
+            errors: HashMap::default(),
             notes: Vec::new(),
             pins: Vec::new(),
             extra: Vec::new(),
             nominal_values: Vec::new(),
-            shown: HashMap::new(),
+            shown: HashMap::default(),
             depends: vec![Vec::new(); model.defs.len()],
             boxed: vec![0; model.defs.len()],
-            cache: HashMap::new(),
+            cache: HashMap::default(),
+            leaves: vec![None; model.defs.len()],
         }
     }
 }
@@ -1425,7 +1456,7 @@ fn evaluate(
     let model = build_model(cells, overrides);
     // Choices that depend on their arguments' worst-case ranges (`res.led(rule: "worst")`)
     // take them from a box pass of an earlier round; repeat while they change.
-    let mut known = HashMap::new();
+    let mut known = HashMap::default();
     for _ in 0..3 {
         let mut probe = Runner::new(&model, interrupt);
         probe.reg.known = known.clone();
@@ -1762,8 +1793,8 @@ impl SweepHost<'_> {
             names: &NoNames,
             reg: &mut scratch,
             pass: &mut pass,
-            stmt_key: "sweep".into(),
-            stmt_label: "sweep".into(),
+            stmt_key: "sweep",
+            stmt_label: "sweep",
             given: false,
             locals: Vec::new(),
             depth: 0,
@@ -1814,12 +1845,13 @@ impl SweepHost<'_> {
                 };
                 let mut pass = Pass::new(Mode::Nominal, 0);
                 let mut scratch = Registry::default();
+                let sweep_key = format!("sw:{j}");
                 let mut ev = Evaluator {
                     names: &scope,
                     reg: &mut scratch,
                     pass: &mut pass,
-                    stmt_key: format!("sw:{j}"),
-                    stmt_label: "sweep".into(),
+                    stmt_key: &sweep_key,
+                    stmt_label: "sweep",
                     given: false,
                     locals: Vec::new(),
                     depth: 0,
