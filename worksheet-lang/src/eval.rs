@@ -1075,7 +1075,11 @@ impl CallHost for Host<'_, '_> {
         dim: Dim,
     ) -> Dual {
         let k = format!("{}#{}:{}", self.ev.stmt_key, self.call_key, key);
-        let label = format!("{label} in {}", self.ev.stmt_label);
+        let label = if self.ev.nominal() {
+            format!("{label} in {}", self.ev.stmt_label)
+        } else {
+            label
+        };
         match self.ev.input(&k, label, nominal, lo, hi) {
             Ok(x) => {
                 let skey = format!("input:{k}");

@@ -163,7 +163,12 @@ fn pick(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallErro
         })
     })?;
     let tol = series.tolerance;
-    let label = format!("{} {} ± {}", series.name, show(v, n.dim), percent(tol));
+    // The label is only read in the nominal pass, where inputs are registered.
+    let label = if ctx.is_nominal() {
+        format!("{} {} ± {}", series.name, show(v, n.dim), percent(tol))
+    } else {
+        String::new()
+    };
     let part = ctx.part_input("value", label, v, v * (1.0 - tol), v * (1.0 + tol), n.dim);
     Ok(Value::Num(Num::new(part, n.dim)))
 }
@@ -302,7 +307,11 @@ fn led(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError
         })
     })?;
 
-    let label = format!("r = {} ± {}", show(r_nom, Dim::RESISTANCE), percent(tol));
+    let label = if ctx.is_nominal() {
+        format!("r = {} ± {}", show(r_nom, Dim::RESISTANCE), percent(tol))
+    } else {
+        String::new()
+    };
     let r: Resistance = from_dual(ctx.part_input(
         "r",
         label,
@@ -578,7 +587,11 @@ fn divider(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallE
     let top_nom = ctx.choose("r_top", || search().map(|p| p.0))?;
     let bottom_nom = ctx.choose("r_bottom", || search().map(|p| p.1))?;
     let part = |ctx: &mut CallCtx<'_>, key: &str, v: f64| -> Resistance {
-        let label = format!("{key} = {} ± {}", show(v, Dim::RESISTANCE), percent(tol));
+        let label = if ctx.is_nominal() {
+            format!("{key} = {} ± {}", show(v, Dim::RESISTANCE), percent(tol))
+        } else {
+            String::new()
+        };
         from_dual(ctx.part_input(
             key,
             label,
