@@ -13,7 +13,9 @@
 use std::sync::mpsc;
 use std::time::Duration;
 use worksheet_lang::results::Shown;
-use worksheet_lang::{diagnostic, lexer, parser, units, CellReport, Diagnostic, Interrupt, Worksheet};
+use worksheet_lang::{
+    diagnostic, lexer, parser, units, CellReport, Diagnostic, Interrupt, Worksheet,
+};
 
 /// After this long an evaluation is interrupted, so that a legitimately long input (a sweep
 /// of ten million points) does not look like a hang; an evaluation that ignores the
@@ -47,7 +49,10 @@ fn assert_diagnostic(source: &str, d: &Diagnostic) {
     assert_span(source, &d.span, &d.message);
     assert!(!d.message.is_empty(), "a diagnostic without a message");
     let shown = diagnostic::render(source, d);
-    assert!(shown.contains(&d.message), "the rendering drops the message");
+    assert!(
+        shown.contains(&d.message),
+        "the rendering drops the message"
+    );
 }
 
 /// Lexer, parser and the completeness test on arbitrary text.
@@ -116,13 +121,23 @@ pub fn assert_report(r: &CellReport) {
     }
     for row in r.values.iter().chain(&r.shown) {
         if let Shown::Number { value, bounds } = &row.shown {
-            assert!(!row.text.is_empty(), "{}: a number without display text", row.name);
+            assert!(
+                !row.text.is_empty(),
+                "{}: a number without display text",
+                row.name
+            );
             finite(value.si, "the value", &row.name);
             if let Some(b) = bounds {
                 finite(b.min, "the minimum", &row.name);
                 finite(b.max, "the maximum", &row.name);
                 finite(b.rss, "the RSS spread", &row.name);
-                assert!(b.min <= b.max, "{}: min {} > max {}", row.name, b.min, b.max);
+                assert!(
+                    b.min <= b.max,
+                    "{}: min {} > max {}",
+                    row.name,
+                    b.min,
+                    b.max
+                );
                 // Rounding is not directed: allow the library's stated 1e-15 relative slack,
                 // with room for a few operations.
                 let slack = 1e-12 * value.si.abs().max(b.min.abs()).max(b.max.abs());
@@ -182,7 +197,10 @@ pub fn execute(data: &[u8]) {
         let key = (i % 2 == 0).then_some(id.as_str());
         let before = ws.reports().to_vec();
         let ex = ws.execute(key, source, &interrupt);
-        assert_eq!(ex.report.source, *source, "the report keeps the source as run");
+        assert_eq!(
+            ex.report.source, *source,
+            "the report keeps the source as run"
+        );
         assert_report(&ex.report);
         for u in &ex.updated {
             assert_report(&u.report);
@@ -244,7 +262,10 @@ pub fn units(data: &[u8]) {
                 }
                 let _ = units::format_in(1.5, false, &u, 3);
             }
-            Err(e) => assert!(!e.message.is_empty(), "`{piece}`: an error without a message"),
+            Err(e) => assert!(
+                !e.message.is_empty(),
+                "`{piece}`: an error without a message"
+            ),
         }
         let _ = units::nearest_symbol(piece);
     }
@@ -264,7 +285,11 @@ pub fn units(data: &[u8]) {
                 let s = units::format_number(x, sig);
                 assert!(s.parse::<f64>().is_ok(), "{x:e} at {sig} digits: `{s}`");
             }
-            for dim in [units::Dim::NONE, units::Dim::VOLTAGE, units::Dim::TEMPERATURE] {
+            for dim in [
+                units::Dim::NONE,
+                units::Dim::VOLTAGE,
+                units::Dim::TEMPERATURE,
+            ] {
                 assert!(!units::format_si(x, dim, false, 3).is_empty());
             }
         }

@@ -35,6 +35,12 @@ const SHUTDOWN_GRACE: Duration = Duration::from_millis(100);
 pub const EVAL_STACK_BYTES: usize = 64 * 1024 * 1024;
 
 pub fn serve(connection_file: &Path) -> anyhow::Result<()> {
+    // The kernel's sockets and files are its user's alone.
+    #[cfg(unix)]
+    // SAFETY: umask only sets the process's file-creation mask; it cannot fail.
+    unsafe {
+        libc::umask(0o077);
+    }
     let conn = Connection::load(connection_file)?;
     let runtime = tokio::runtime::Builder::new_multi_thread()
         .worker_threads(2)
@@ -74,12 +80,14 @@ async fn run(conn: &Connection) -> anyhow::Result<()> {
         iopub: iopub_tx,
         interrupt: Interrupt::new(),
         shutdown: Notify::new(),
+        busy: std::sync::atomic::AtomicBool::new(false),
     });
 
     tokio::spawn(publish(iopub, iopub_rx));
     tokio::spawn(echo_heartbeat(heartbeat));
     tokio::spawn(drain_stdin(stdin));
     tokio::spawn(interrupt_on_sigint(shared.interrupt.clone()));
+    tokio::spawn(exit_with_parent(shared.clone()));
 
     let (shell_send, shell_recv) = shell.split();
     let (queue_tx, queue_rx) = mpsc::unbounded_channel();
@@ -98,8 +106,52 @@ async fn run(conn: &Connection) -> anyhow::Result<()> {
     ));
 
     shared.shutdown.notified().await;
+    // A cell that was running when the shutdown came answers before the kernel goes (the
+    // evaluation was interrupted, so this is short).
+    let deadline = tokio::time::Instant::now() + BUSY_AT_SHUTDOWN;
+    while shared.busy.load(std::sync::atomic::Ordering::SeqCst)
+        && tokio::time::Instant::now() < deadline
+    {
+        tokio::time::sleep(Duration::from_millis(5)).await;
+    }
     tokio::time::sleep(SHUTDOWN_GRACE).await;
     Ok(())
+}
+
+/// How long a shutdown waits for a running request's reply.
+const BUSY_AT_SHUTDOWN: Duration = Duration::from_secs(2);
+
+/// A kernel whose manager has died would serve nobody and hold its ports: when the parent
+/// process changes (the kernel was re-parented) or the process named by `JPY_PARENT_PID`
+/// is gone, the kernel shuts down.
+async fn exit_with_parent(shared: Arc<Shared>) {
+    #[cfg(unix)]
+    {
+        let parent = std::os::unix::process::parent_id();
+        let named: Option<i32> = std::env::var("JPY_PARENT_PID")
+            .ok()
+            .and_then(|p| p.parse().ok());
+        loop {
+            tokio::time::sleep(Duration::from_secs(1)).await;
+            // SAFETY: kill with signal 0 only asks whether the process exists.
+            let named_gone = named.is_some_and(|pid| {
+                pid > 0
+                    && unsafe { libc::kill(pid, 0) } != 0
+                    && std::io::Error::last_os_error().raw_os_error() == Some(libc::ESRCH)
+            });
+            if std::os::unix::process::parent_id() != parent || named_gone {
+                tracing::warn!("the process that started the kernel is gone; shutting down");
+                shared.interrupt.raise();
+                shared.shutdown.notify_one();
+                return;
+            }
+        }
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = shared;
+        std::future::pending::<()>().await;
+    }
 }
 
 async fn publish(

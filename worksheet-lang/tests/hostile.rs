@@ -79,19 +79,108 @@ fn shown_bytes(r: &CellReport) -> usize {
 
 /// Fragments of the language, valid and not, for token soups.
 const FRAGMENTS: &[&str] = &[
-    "given", "check", "sweep", "over", "steps", "by", "as", "x", "y", "iload", "θ", "R1",
-    "u1", "f", "g", "=", "+", "-", "*", "/", "^", "||", "±", "+/-", "..", ",", ":", "<", "<=",
-    "≥", ">", "(", ")", "[", "]", ".", "·", "×", "−", "12", "0.47", "4.7e-3", "1_000", "1e308",
-    "1e-308", "0", "-0", "4k7", "2R2", "0R47", "100n", "2µ2", "10K", "V", "mA", "kΩ", "K/W",
-    "W/(m·K)", "°C", "℃", "degF", "%", "ppm", "mm²", "m^2", "\"note\"", "\"", "# c", "\n",
-    "\n  ", " ", "\t", "reg.linear(", "heat.junction(", "res.pick(", "power.", "E24", "tol(",
-    "sqrt(", "ln(", "exp(", "min(", "max(", "kelvin(", "vout:", "iout:", "iq:", "dropout:",
-    "\u{feff}", "\u{200b}", "\u{a0}", "µ", "Ω", "\u{0}",
+    "given",
+    "check",
+    "sweep",
+    "over",
+    "steps",
+    "by",
+    "as",
+    "x",
+    "y",
+    "iload",
+    "θ",
+    "R1",
+    "u1",
+    "f",
+    "g",
+    "=",
+    "+",
+    "-",
+    "*",
+    "/",
+    "^",
+    "||",
+    "±",
+    "+/-",
+    "..",
+    ",",
+    ":",
+    "<",
+    "<=",
+    "≥",
+    ">",
+    "(",
+    ")",
+    "[",
+    "]",
+    ".",
+    "·",
+    "×",
+    "−",
+    "12",
+    "0.47",
+    "4.7e-3",
+    "1_000",
+    "1e308",
+    "1e-308",
+    "0",
+    "-0",
+    "4k7",
+    "2R2",
+    "0R47",
+    "100n",
+    "2µ2",
+    "10K",
+    "V",
+    "mA",
+    "kΩ",
+    "K/W",
+    "W/(m·K)",
+    "°C",
+    "℃",
+    "degF",
+    "%",
+    "ppm",
+    "mm²",
+    "m^2",
+    "\"note\"",
+    "\"",
+    "# c",
+    "\n",
+    "\n  ",
+    " ",
+    "\t",
+    "reg.linear(",
+    "heat.junction(",
+    "res.pick(",
+    "power.",
+    "E24",
+    "tol(",
+    "sqrt(",
+    "ln(",
+    "exp(",
+    "min(",
+    "max(",
+    "kelvin(",
+    "vout:",
+    "iout:",
+    "iq:",
+    "dropout:",
+    "\u{feff}",
+    "\u{200b}",
+    "\u{a0}",
+    "µ",
+    "Ω",
+    "\u{0}",
 ];
 
 fn soup() -> impl Strategy<Value = String> {
     proptest::collection::vec(
-        (proptest::sample::select(FRAGMENTS), prop_oneof![Just(""), Just(" "), Just("\n")]),
+        (
+            proptest::sample::select(FRAGMENTS),
+            prop_oneof![Just(""), Just(" "), Just("\n")],
+        ),
         0..60,
     )
     .prop_map(|parts| parts.into_iter().map(|(a, b)| format!("{a}{b}")).collect())
@@ -108,26 +197,21 @@ fn worksheet() -> impl Strategy<Value = String> {
         Just("1e12".to_string()),
         Just("0".to_string()),
     ];
-    let unit = proptest::sample::select(vec!["V", "mA", "A", "Ω", "kΩ", "W", "K/W", "°C", "K", "%", ""]);
+    let unit = proptest::sample::select(vec![
+        "V", "mA", "A", "Ω", "kΩ", "W", "K/W", "°C", "K", "%", "",
+    ]);
     let tol = proptest::sample::select(vec!["", " ± 5 %", " ± 1 %", " ± 20 mV", " ± 2 K"]);
     let op = proptest::sample::select(vec![" + ", " - ", " * ", " / ", " || "]);
     let given = (number.clone(), unit.clone(), tol).prop_map(|(n, u, t)| format!("{n} {u}{t}"));
-    let line = (
-        0usize..6,
-        given,
-        op,
-        0usize..6,
-        0usize..6,
-        number,
-        unit,
-    )
-        .prop_map(|(kind, lit, op, a, b, n, u)| match kind {
+    let line = (0usize..6, given, op, 0usize..6, 0usize..6, number, unit).prop_map(
+        |(kind, lit, op, a, b, n, u)| match kind {
             0 | 1 => format!("given g{a} = {lit}"),
             2 => format!("d{a} = g{a}{op}g{b}"),
             3 => format!("check d{a} <= {n} {u}"),
             4 => format!("sweep g{a} over 1 {u} .. {n} {u} steps {}: d{b}", b + 2),
             _ => format!("h{a}(p) = p{op}g{b}\nd{b} = h{a}({lit})"),
-        });
+        },
+    );
     proptest::collection::vec(line, 1..14).prop_map(|ls| ls.join("\n"))
 }
 
@@ -193,8 +277,19 @@ fn deep_nesting_is_one_clear_error_and_never_overflows_the_stack() {
         .output()
         .expect("the child runs");
     let stderr = String::from_utf8_lossy(&out.stderr);
-    let reached = stderr.lines().rev().find(|l| l.starts_with("nesting:")).unwrap_or("");
-    println!("{}", String::from_utf8_lossy(&out.stdout).lines().filter(|l| l.contains("nesting grid")).collect::<Vec<_>>().join("\n"));
+    let reached = stderr
+        .lines()
+        .rev()
+        .find(|l| l.starts_with("nesting:"))
+        .unwrap_or("");
+    println!(
+        "{}",
+        String::from_utf8_lossy(&out.stdout)
+            .lines()
+            .filter(|l| l.contains("nesting grid"))
+            .collect::<Vec<_>>()
+            .join("\n")
+    );
     assert!(
         out.status.success(),
         "the nesting grid died ({}) at {reached}\n{stderr}",
@@ -233,7 +328,10 @@ fn nesting_grid() {
             cases += 1;
         }
     }
-    println!("nesting grid: {cases} cases on a 2 MiB stack in {:?}", started.elapsed());
+    println!(
+        "nesting grid: {cases} cases on a 2 MiB stack in {:?}",
+        started.elapsed()
+    );
 }
 
 // ---------------------------------------------------------------------------------------
@@ -243,16 +341,31 @@ fn nesting_grid() {
 fn huge_inputs_are_parsed_in_bounded_time_and_stack() {
     let mega = 1 << 20;
     let cases: Vec<(&str, String)> = vec![
-        ("1 MiB of opening parentheses", format!("x = {}", "(".repeat(mega))),
+        (
+            "1 MiB of opening parentheses",
+            format!("x = {}", "(".repeat(mega)),
+        ),
         ("1 MiB of brackets", "[".repeat(mega)),
-        ("1 MiB of minus signs", format!("x = {}1 V", "-".repeat(mega))),
+        (
+            "1 MiB of minus signs",
+            format!("x = {}1 V", "-".repeat(mega)),
+        ),
         ("a 1 MiB comment", format!("# {}", "c".repeat(mega))),
         ("a 1 MiB name", format!("{} = 1 V", "n".repeat(mega))),
-        ("a 1 MiB note", format!("given a = 1 V \"{}\"", "n".repeat(mega))),
-        ("an unterminated 1 MiB string", format!("given a = 1 V \"{}", "s".repeat(mega))),
+        (
+            "a 1 MiB note",
+            format!("given a = 1 V \"{}\"", "n".repeat(mega)),
+        ),
+        (
+            "an unterminated 1 MiB string",
+            format!("given a = 1 V \"{}", "s".repeat(mega)),
+        ),
         ("1 MiB of operators", "+*".repeat(mega / 2)),
         ("100 000 empty lines", "\n".repeat(100_000)),
-        ("20 000 definitions", (0..20_000).map(|i| format!("v{i} = {i} V\n")).collect()),
+        (
+            "20 000 definitions",
+            (0..20_000).map(|i| format!("v{i} = {i} V\n")).collect(),
+        ),
         ("a 1 MiB number", format!("x = {} V", "9".repeat(mega))),
     ];
     for (what, src) in cases {
@@ -264,7 +377,10 @@ fn huge_inputs_are_parsed_in_bounded_time_and_stack() {
         println!(
             "{what}: parse {parsed:?}, execute {ran:?}, {} diagnostics, first: {:?}",
             ex.report.diagnostics.len(),
-            first_error(&ex.report).chars().take(100).collect::<String>()
+            first_error(&ex.report)
+                .chars()
+                .take(100)
+                .collect::<String>()
         );
     }
 }
@@ -285,8 +401,14 @@ fn a_sweep_over_the_point_cap_is_a_clear_error() {
         let kinds = error_kinds(&ex.report);
         println!("{src:?}: {took:?}, {:?}", first_error(&ex.report));
         assert!(kinds.contains(&DiagKind::Limit), "{kinds:?}");
-        assert!(first_error(&ex.report).contains("10000000"), "the message names the cap");
-        assert!(took < Duration::from_secs(10), "refused up front, not after running: {took:?}");
+        assert!(
+            first_error(&ex.report).contains("10000000"),
+            "the message names the cap"
+        );
+        assert!(
+            took < Duration::from_secs(10),
+            "refused up front, not after running: {took:?}"
+        );
     }
 }
 
@@ -297,10 +419,18 @@ fn a_list_over_the_item_cap_is_a_clear_error() {
         format!("l = [{}]", items.join(", "))
     };
     let (ok, _) = run(&list(10_000));
-    assert!(!ok.report.has_errors(), "10 000 items are allowed: {}", first_error(&ok.report));
+    assert!(
+        !ok.report.has_errors(),
+        "10 000 items are allowed: {}",
+        first_error(&ok.report)
+    );
     let (ex, _) = run(&list(10_001));
     assert!(error_kinds(&ex.report).contains(&DiagKind::Limit));
-    assert!(first_error(&ex.report).contains("10000"), "{}", first_error(&ex.report));
+    assert!(
+        first_error(&ex.report).contains("10000"),
+        "{}",
+        first_error(&ex.report)
+    );
 }
 
 #[test]
@@ -379,7 +509,10 @@ fn nested_lists_cannot_multiply_the_output() {
 fn an_interrupt_stops_a_long_sweep_promptly_and_changes_nothing() {
     let mut ws = Worksheet::new();
     let setup = "given r = 10 Ω ± 1 %\ngiven x = 0.5 V\ny = x * x / r";
-    assert!(!ws.execute(Some("a"), setup, &Interrupt::new()).report.has_errors());
+    assert!(!ws
+        .execute(Some("a"), setup, &Interrupt::new())
+        .report
+        .has_errors());
     let before = ws.reports().to_vec();
     let interrupt = Interrupt::new();
     let raiser = interrupt.clone();
@@ -397,9 +530,20 @@ fn an_interrupt_stops_a_long_sweep_promptly_and_changes_nothing() {
     let ended = Instant::now();
     let raised_at = raised_at.join().expect("the raiser thread");
     let latency = ended.saturating_duration_since(raised_at);
-    println!("interrupt latency in the library: {latency:?} (run {:?})", ended - started);
-    assert!(ex.interrupted, "the sweep ran to its end in {:?}", ended - started);
+    println!(
+        "interrupt latency in the library: {latency:?} (run {:?})",
+        ended - started
+    );
+    assert!(
+        ex.interrupted,
+        "the sweep ran to its end in {:?}",
+        ended - started
+    );
     assert!(error_kinds(&ex.report).contains(&DiagKind::Interrupted));
-    assert_eq!(ws.reports(), before.as_slice(), "the worksheet is as it was");
+    assert_eq!(
+        ws.reports(),
+        before.as_slice(),
+        "the worksheet is as it was"
+    );
     assert!(latency < Duration::from_secs(5), "{latency:?}");
 }

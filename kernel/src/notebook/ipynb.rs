@@ -254,6 +254,21 @@ pub(crate) fn write_atomic(path: &Path, bytes: &[u8]) -> anyhow::Result<()> {
         .file_name()
         .map(|n| n.to_string_lossy().into_owned())
         .unwrap_or_else(|| "notebook".into());
+    // Renaming over a device, a pipe or a directory would replace it: only a regular file
+    // (or nothing) may stand where the notebook goes.
+    if let Ok(m) = std::fs::symlink_metadata(path) {
+        let target = if m.file_type().is_symlink() {
+            std::fs::metadata(path).ok()
+        } else {
+            Some(m)
+        };
+        if target.is_some_and(|t| !t.is_file()) {
+            anyhow::bail!(
+                "cannot write `{}`: it exists and is not a regular file; nothing was written",
+                path.display()
+            );
+        }
+    }
     let prefix = format!(".{name}.");
     let mut builder = tempfile::Builder::new();
     builder.prefix(&prefix).suffix(".tmp");

@@ -87,8 +87,8 @@ impl Outcome {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use worksheet_lang::results::CellReport;
     use worksheet_lang::ast::Span;
+    use worksheet_lang::results::CellReport;
     use worksheet_lang::results::WarningRow;
     use worksheet_lang::{DiagKind, Diagnostic};
 

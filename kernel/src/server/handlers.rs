@@ -34,6 +34,8 @@ pub(crate) struct Shared {
     pub interrupt: Interrupt,
     /// Notified once a shutdown reply has been sent.
     pub shutdown: Notify,
+    /// True while the shell handles a request (a shutdown waits for its reply to go out).
+    pub busy: std::sync::atomic::AtomicBool,
 }
 
 impl Shared {
@@ -274,6 +276,13 @@ impl Shell {
 
     /// The one dispatch path of the shell channel.
     async fn dispatch(&mut self, req: Incoming, abort: bool) {
+        use std::sync::atomic::Ordering;
+        self.shared.busy.store(true, Ordering::SeqCst);
+        self.dispatch_one(req, abort).await;
+        self.shared.busy.store(false, Ordering::SeqCst);
+    }
+
+    async fn dispatch_one(&mut self, req: Incoming, abort: bool) {
         let shared = self.shared.clone();
         let known = matches!(
             req.msg_type.as_str(),
