@@ -220,6 +220,78 @@ impl Tape {
     }
 }
 
+/// Points a block run computes at once: short enough for its registers to stay in cache,
+/// long enough for each operation's loop to run at full speed.
+pub const BLOCK: usize = 512;
+
+/// One input of a block run: the same value for every point, or one value per point.
+#[derive(Clone, Copy)]
+pub enum Column<'a> {
+    Same(f64),
+    Each(&'a [f64]),
+}
+
+impl Tape {
+    /// Registers for `run_block`: one column of `BLOCK` values each, constants filled in.
+    pub fn prepare_block(&self, regs: &mut Vec<Vec<f64>>) {
+        regs.clear();
+        regs.extend(self.ops.iter().map(|op| match op {
+            Op::Const(x) => vec![*x; BLOCK],
+            _ => vec![0.0; BLOCK],
+        }));
+    }
+
+    /// Runs the tape on `len` (≤ `BLOCK`) points at once, column by column: each operation is
+    /// a plain loop over the points, which the compiler vectorises. Afterwards register `r`
+    /// holds the values of `r` at every point.
+    pub fn run_block(&self, inputs: &[Column<'_>], len: usize, regs: &mut [Vec<f64>]) {
+        let len = len.min(BLOCK);
+        for &i in &self.code {
+            let i = i as usize;
+            let (before, rest) = regs.split_at_mut(i);
+            let dst = &mut rest[0][..len];
+            let col = |j: &u32| &before[*j as usize][..len];
+            match &self.ops[i] {
+                Op::Const(x) => dst.fill(*x),
+                Op::Input(k) => match inputs[*k as usize] {
+                    Column::Same(x) => dst.fill(x),
+                    Column::Each(v) => dst.copy_from_slice(&v[..len]),
+                },
+                Op::Add(a, b) => zip2(dst, col(a), col(b), |x, y| x + y),
+                Op::Sub(a, b) => zip2(dst, col(a), col(b), |x, y| x - y),
+                Op::Mul(a, b) => zip2(dst, col(a), col(b), |x, y| x * y),
+                Op::Div(a, b) => zip2(dst, col(a), col(b), |x, y| x / y),
+                Op::Powf(a, b) => zip2(dst, col(a), col(b), f64::powf),
+                Op::Min(a, b) => zip2(dst, col(a), col(b), f64::min),
+                Op::Max(a, b) => zip2(dst, col(a), col(b), f64::max),
+                Op::Neg(a) => zip1(dst, col(a), |x| -x),
+                Op::Recip(a) => zip1(dst, col(a), |x| 1.0 / x),
+                Op::Powi(a, n) => {
+                    let n = *n;
+                    zip1(dst, col(a), |x| x.powi(n))
+                }
+                Op::Sqrt(a) => zip1(dst, col(a), f64::sqrt),
+                Op::Exp(a) => zip1(dst, col(a), f64::exp),
+                Op::Ln(a) => zip1(dst, col(a), f64::ln),
+                Op::Log10(a) => zip1(dst, col(a), f64::log10),
+                Op::Abs(a) => zip1(dst, col(a), f64::abs),
+            }
+        }
+    }
+}
+
+fn zip1(dst: &mut [f64], a: &[f64], f: impl Fn(f64) -> f64) {
+    for (d, x) in dst.iter_mut().zip(a) {
+        *d = f(*x);
+    }
+}
+
+fn zip2(dst: &mut [f64], a: &[f64], b: &[f64], f: impl Fn(f64, f64) -> f64) {
+    for ((d, x), y) in dst.iter_mut().zip(a).zip(b) {
+        *d = f(*x, *y);
+    }
+}
+
 /// What the compiler needs to know of the worksheet.
 pub trait TapeSource {
     /// A definition's index and expression.
@@ -833,6 +905,50 @@ impl<'t> Bands<'t> {
     /// True when every output's extremes are proven.
     pub fn exact(&self) -> bool {
         self.candidates.iter().all(Option::is_some)
+    }
+
+    /// The minima and maxima of output `o` over a block of points (`swept`: the swept
+    /// inputs' columns), into `lo` and `hi`; false where unproven.
+    pub fn at_block(
+        &self,
+        o: usize,
+        swept: &[Column<'_>],
+        len: usize,
+        regs: &mut [Vec<f64>],
+        lo: &mut [f64],
+        hi: &mut [f64],
+    ) -> bool {
+        let Some(Some((mins, maxs))) = self.candidates.get(o) else {
+            return false;
+        };
+        let r = self.tape.outputs[o] as usize;
+        let mut cols: Vec<Column<'_>> = Vec::with_capacity(self.tape.inputs.len());
+        for (side, out, better) in [
+            (mins, &mut *lo, f64::min as fn(f64, f64) -> f64),
+            (maxs, &mut *hi, f64::max),
+        ] {
+            for (c, corner) in side.iter().enumerate() {
+                cols.clear();
+                cols.extend_from_slice(swept);
+                cols.extend(corner.iter().map(|&v| Column::Same(v)));
+                self.tape.run_block(&cols, len, regs);
+                let vals = &regs[r][..len];
+                if c == 0 {
+                    out[..len].copy_from_slice(vals);
+                } else {
+                    for (d, v) in out[..len].iter_mut().zip(vals) {
+                        *d = better(*d, *v);
+                    }
+                }
+            }
+        }
+        // The sides may cross only by rounding; keep min ≤ max.
+        for (a, b) in lo[..len].iter_mut().zip(hi[..len].iter_mut()) {
+            if *a > *b {
+                std::mem::swap(a, b);
+            }
+        }
+        true
     }
 
     /// The (min, max) of output `o` at the swept values `at`; None where unproven.

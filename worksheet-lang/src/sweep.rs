@@ -2,7 +2,7 @@
 //! re-evaluated, with their worst cases, while one definition takes a series of values.
 
 use crate::ast::{Expr, ExprKind, Stmt, StmtKind, SweepStep, SweepVar};
-use crate::compile::{Bands, Tape};
+use crate::compile::{Bands, Column, Tape, BLOCK};
 use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::eval::EvalError;
 use crate::num::{Dual, Interval};
@@ -362,7 +362,6 @@ fn fast_sweep(
     let uncertain = tape.inputs.len() > tape.swept;
     let mut regs: Vec<f64> = Vec::new();
     let mut dregs: Vec<Dual> = Vec::new();
-    let mut inputs: Vec<f64> = Vec::with_capacity(tape.inputs.len());
     let mut scratch: Vec<f64> = Vec::with_capacity(tape.inputs.len());
     tape.prepare(&mut regs);
     let n = inner.points.len();
@@ -418,59 +417,103 @@ fn fast_sweep(
             segments.sort_by_key(|(start, _)| *start);
         }
         let mut segment = 0;
-        for (i, &x) in inner.points.iter().enumerate() {
-            if i % 4096 == 0 && host.interrupt().is_raised() {
+        let mut bregs: Vec<Vec<f64>> = Vec::new();
+        tape.prepare_block(&mut bregs);
+        let mut lo_buf = vec![0.0; BLOCK];
+        let mut hi_buf = vec![0.0; BLOCK];
+        let nominal_tols: Vec<f64> = tape.inputs[tape.swept..]
+            .iter()
+            .map(|t| t.nominal)
+            .collect();
+        let mut i0 = 0;
+        while i0 < n {
+            if host.interrupt().is_raised() {
                 return None;
             }
-            at[0] = x;
-            inputs.clear();
-            inputs.extend_from_slice(&at);
-            inputs.extend(tape.inputs[tape.swept..].iter().map(|t| t.nominal));
-            tape.run(&inputs, &mut regs);
+            // A block stays inside one proven segment, so one set of bands serves it.
+            let mut i1 = (i0 + BLOCK).min(n);
+            if uncertain && whole.is_none() {
+                while segment + 1 < segments.len() && segments[segment + 1].0 <= i0 {
+                    segment += 1;
+                }
+                if let Some(next) = segments.get(segment + 1) {
+                    i1 = i1.min(next.0);
+                }
+            }
+            let len = i1 - i0;
+            let mut cols: Vec<Column<'_>> = vec![Column::Each(&inner.points[i0..i1])];
+            if let Some(b) = b {
+                cols.push(Column::Same(*b));
+            }
+            let swept_cols = cols.len();
+            cols.extend(nominal_tols.iter().map(|&t| Column::Same(t)));
+            tape.run_block(&cols, len, &mut bregs);
             for (s, &r) in curve.iter_mut().zip(&tape.outputs) {
-                let v = regs[r as usize];
-                if !v.is_finite() {
+                let vals = &bregs[r as usize][..len];
+                if vals.iter().any(|v| !v.is_finite()) {
                     return Some(false);
                 }
-                s.nominal.push(v);
+                s.nominal.extend_from_slice(vals);
             }
-            if !uncertain {
-                continue;
-            }
-            while segment + 1 < segments.len() && segments[segment + 1].0 <= i {
-                segment += 1;
-            }
-            let point_bands;
-            let bands = match whole
-                .as_ref()
-                .or(segments.get(segment).and_then(|(_, b)| b.as_ref()))
-            {
-                Some(b) => b,
-                None => {
-                    point_bands = Bands::prove(tape, &sweep_box(x, x), &mut dregs);
-                    match point_bands.as_ref() {
-                        Some(b) => b,
-                        None => return Some(false),
+            if uncertain {
+                let proven = whole
+                    .as_ref()
+                    .or(segments.get(segment).and_then(|(_, b)| b.as_ref()));
+                match proven {
+                    Some(bands) => {
+                        for (o, s) in curve.iter_mut().enumerate() {
+                            if !bands.at_block(
+                                o,
+                                &cols[..swept_cols],
+                                len,
+                                &mut bregs,
+                                &mut lo_buf,
+                                &mut hi_buf,
+                            ) {
+                                return Some(false);
+                            }
+                            let nominal = &s.nominal[i0..i1];
+                            if let (Some(mn), Some(mx)) = (s.min.as_mut(), s.max.as_mut()) {
+                                for k in 0..len {
+                                    let (lo, hi) = (lo_buf[k], hi_buf[k]);
+                                    if !lo.is_finite() || !hi.is_finite() {
+                                        return Some(false);
+                                    }
+                                    mn.push(lo.min(nominal[k]));
+                                    mx.push(hi.max(nominal[k]));
+                                }
+                            }
+                        }
+                    }
+                    None => {
+                        // Not proven over this stretch: point by point.
+                        for i in i0..i1 {
+                            at[0] = inner.points[i];
+                            let x = at[0];
+                            let point_bands = Bands::prove(tape, &sweep_box(x, x), &mut dregs)?;
+                            for (o, s) in curve.iter_mut().enumerate() {
+                                let (lo, hi) = match point_bands.at(o, &at, &mut scratch, &mut regs)
+                                {
+                                    Some(r) => r,
+                                    None => match enclose(tape, o, &at, &mut dregs) {
+                                        Some(r) => r,
+                                        None => return Some(false),
+                                    },
+                                };
+                                if !lo.is_finite() || !hi.is_finite() {
+                                    return Some(false);
+                                }
+                                let nominal = s.nominal[i];
+                                if let (Some(mn), Some(mx)) = (s.min.as_mut(), s.max.as_mut()) {
+                                    mn.push(lo.min(nominal));
+                                    mx.push(hi.max(nominal));
+                                }
+                            }
+                        }
                     }
                 }
-            };
-            for (o, s) in curve.iter_mut().enumerate() {
-                let (lo, hi) = match bands.at(o, &at, &mut scratch, &mut regs) {
-                    Some(r) => r,
-                    None => match enclose(tape, o, &at, &mut dregs) {
-                        Some(r) => r,
-                        None => return Some(false),
-                    },
-                };
-                if !lo.is_finite() || !hi.is_finite() {
-                    return Some(false);
-                }
-                let nominal = s.nominal[i];
-                if let (Some(mn), Some(mx)) = (s.min.as_mut(), s.max.as_mut()) {
-                    mn.push(lo.min(nominal));
-                    mx.push(hi.max(nominal));
-                }
             }
+            i0 = i1;
         }
         // A series that never moved with the tolerances has no band.
         for s in curve.iter_mut() {
