@@ -88,7 +88,11 @@ fn a_file_that_is_no_notebook_is_refused_by_name() {
     let path = write(dir.path(), "sheet.ipynb", "{}");
     let r = run_file(&path, &[]);
     assert_eq!(r.code, 2);
-    assert!(r.stderr.contains("sheet.ipynb") && r.stderr.contains("not a notebook"), "{}", r.stderr);
+    assert!(
+        r.stderr.contains("sheet.ipynb") && r.stderr.contains("not a notebook"),
+        "{}",
+        r.stderr
+    );
     assert!(!dir.path().join("sheet.run.ipynb").exists());
 }
 
