@@ -499,3 +499,28 @@ fn updates_say_what_changed_them_and_forgotten_cells_take_their_names() {
         .expect("not interrupted")
         .is_empty());
 }
+
+#[test]
+fn type_and_argument_diagnostics() {
+    // A text where a number belongs.
+    let src = "x = \"five\" * 2\n";
+    let e = only_error(src);
+    assert_eq!(e.kind, DiagKind::TypeMismatch);
+    assert_eq!(&src[e.span.clone()], "\"five\"");
+    // A misspelt parameter of a built-in, with the nearest name and the signature.
+    let src = "u = reg.linear(12 V, vot: 5 V, iout: 1 A)\n";
+    let e = only_error(src);
+    assert_eq!(e.kind, DiagKind::Argument);
+    assert_eq!(&src[e.span.clone()], "vot");
+    assert!(
+        e.hint
+            .as_deref()
+            .unwrap_or("")
+            .starts_with("did you mean `vout`?"),
+        "{e:?}"
+    );
+    // A missing required argument.
+    let e = only_error("u = reg.linear(12 V, iout: 1 A)\n");
+    assert_eq!(e.kind, DiagKind::Argument);
+    assert!(e.message.contains("needs `vout`"), "{}", e.message);
+}
