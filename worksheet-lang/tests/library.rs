@@ -1413,7 +1413,7 @@ fn every_builtin_is_listed_with_full_documentation() {
             );
         }
     }
-    // The brief's record fields.
+    // The record fields the language reference names.
     let fields = |path: &str| -> Vec<&str> {
         builtins::lookup(path)
             .unwrap()
