@@ -81,6 +81,7 @@ async fn run(conn: &Connection) -> anyhow::Result<()> {
         interrupt: Interrupt::new(),
         shutdown: Notify::new(),
         busy: std::sync::atomic::AtomicBool::new(false),
+        seen: Default::default(),
     });
 
     tokio::spawn(publish(iopub, iopub_rx));

@@ -588,9 +588,8 @@ async fn a_thousand_forged_messages_are_never_acted_on() {
 }
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
-async fn an_exact_replay_of_a_signed_request_is_reported() {
-    // jupyter_client's Session refuses a signature it has seen before; the message
-    // specification leaves replay protection to the implementation. Measured and printed.
+async fn an_exact_replay_of_a_signed_request_is_refused() {
+    // jupyter_client's Session refuses a signature it has seen before; the kernel does too.
     let mut kernel = Kernel::start("k");
     let mut c = kernel.connect().await;
     let header = c.header("execute_request");
@@ -614,6 +613,7 @@ async fn an_exact_replay_of_a_signed_request_is_reported() {
             None => "refused".into(),
         }
     );
+    assert!(second.is_none(), "a replayed request must not be served");
     c.assert_serving("a replay").await;
     shut_down(&mut kernel, &mut c).await;
 }

@@ -36,13 +36,70 @@ pub(crate) struct Shared {
     pub shutdown: Notify,
     /// True while the shell handles a request (a shutdown waits for its reply to go out).
     pub busy: std::sync::atomic::AtomicBool,
+    /// Signatures of recent messages: an exact replay of a signed message is refused, as
+    /// jupyter_client's own sessions do.
+    pub seen: std::sync::Mutex<RecentSignatures>,
+}
+
+/// A bounded set of the most recent signatures (their first 16 bytes: 64 bits of a
+/// verified HMAC are plenty to tell messages apart, and keep the set small).
+#[derive(Default)]
+pub(crate) struct RecentSignatures {
+    order: std::collections::VecDeque<[u8; 16]>,
+    set: std::collections::HashSet<[u8; 16]>,
+}
+
+impl RecentSignatures {
+    /// How many signatures are remembered.
+    const KEEP: usize = 16_384;
+
+    /// Records `sig`; false when it was already there.
+    pub fn insert(&mut self, sig: Vec<u8>) -> bool {
+        let mut key = [0u8; 16];
+        for (k, b) in key.iter_mut().zip(&sig) {
+            *k = *b;
+        }
+        let sig = key;
+        if self.set.contains(&sig) {
+            return false;
+        }
+        if self.order.len() >= Self::KEEP {
+            if let Some(old) = self.order.pop_front() {
+                self.set.remove(&old);
+            }
+        }
+        self.order.push_back(sig);
+        self.set.insert(sig);
+        true
+    }
 }
 
 impl Shared {
     /// Verifies and parses a request; a message that fails is logged and dropped.
     pub fn decode(&self, frames: ZmqMessage, channel: &str) -> Option<Incoming> {
+        // The signature frame follows the delimiter; kept to refuse exact replays.
+        let signature = frames
+            .iter()
+            .position(|f| f.as_ref() == b"<IDS|MSG>")
+            .and_then(|i| frames.get(i + 1))
+            .map(|f| f.to_vec());
         match wire::decode(frames, &self.key) {
-            Ok(m) => Some(m),
+            Ok(m) => {
+                if let (Some(_), Some(sig)) = (&self.key, signature) {
+                    if !self
+                        .seen
+                        .lock()
+                        .unwrap_or_else(|e| e.into_inner())
+                        .insert(sig)
+                    {
+                        tracing::warn!(
+                            "dropped a message on {channel}: a replay of a signature already seen"
+                        );
+                        return None;
+                    }
+                }
+                Some(m)
+            }
             Err(e) => {
                 tracing::warn!("dropped a message on {channel}: {e}");
                 None
