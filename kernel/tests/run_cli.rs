@@ -274,3 +274,28 @@ fn evaluated_bare_expression_is_shown() {
     // 12 V / 2 = 6 V.
     assert!(r.stdout.contains("Shown\n  v / 2  6.00 V"), "{}", r.stdout);
 }
+
+/// Every example worksheet in notebooks/ runs without an error (a failing check would be a
+/// finding of the scenario, but none of the examples has one).
+#[test]
+fn every_example_worksheet_runs_clean() {
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../notebooks");
+    let mut seen = 0;
+    for entry in std::fs::read_dir(&dir).expect("notebooks/") {
+        let path = entry.expect("entry").path();
+        if path.extension().and_then(|e| e.to_str()) != Some("hrw") {
+            continue;
+        }
+        seen += 1;
+        let r = run_file(&path, &[]);
+        assert_eq!(r.code, 0, "{}: {}", path.display(), r.stderr);
+        assert!(
+            !r.stderr.contains("error"),
+            "{}: {}",
+            path.display(),
+            r.stderr
+        );
+        assert!(r.stdout.contains("Checks"), "{}", path.display());
+    }
+    assert!(seen >= 2, "the example worksheets are there");
+}
