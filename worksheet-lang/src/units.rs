@@ -363,9 +363,68 @@ fn named(dim: Dim) -> Option<&'static Named> {
     NAMED.iter().find(|n| n.dim == dim)
 }
 
+/// The text of a dimension without a name of its own: SI base units when they are at most
+/// two (`1/s²`), else a power, quotient or product of the electrical and thermal units the
+/// trade writes (`V²`, `F/V`) where one fits, else SI base units. Either form is coherent, so no value changes, and `parse_unit` reads it.
+fn base_text(dim: Dim) -> String {
+    // Base units read well while they are few (`1/s²`, `m²`); beyond that, a named form.
+    if dim.0.iter().filter(|e| **e != 0).count() <= 2 {
+        return si_base_text(dim);
+    }
+    composite_text(dim).unwrap_or_else(|| si_base_text(dim))
+}
+
+/// `dim` as aᵖ, aᵖ/bᵠ or aᵖ·bᵠ of the common named units (p, q ≤ 2; the first fit in that
+/// order of preference), if one fits.
+fn composite_text(dim: Dim) -> Option<String> {
+    const UNITS: [(&str, Dim); 11] = [
+        ("V", Dim::VOLTAGE),
+        ("A", Dim::CURRENT),
+        ("W", Dim::POWER),
+        ("Ω", Dim::RESISTANCE),
+        ("F", Dim::CAPACITANCE),
+        ("s", Dim::TIME),
+        ("K", Dim::TEMPERATURE),
+        ("J", Dim::ENERGY),
+        ("C", Dim::CHARGE),
+        ("H", Dim([2, 1, -2, -2, 0, 0, 0])),
+        ("m", Dim::LENGTH),
+    ];
+    let pow = |d: Dim, p: i32| d.powi(p);
+    let text = |u: &str, p: i32| format!("{u}{}", superscript(p));
+    for p in [2, 3] {
+        for (u, d) in UNITS {
+            if pow(d, p) == Some(dim) {
+                return Some(text(u, p));
+            }
+        }
+    }
+    for p in 1..=2 {
+        for q in 1..=2 {
+            for (a, da) in UNITS {
+                for (b, db) in UNITS {
+                    if a == b {
+                        continue;
+                    }
+                    let (Some(x), Some(y)) = (pow(da, p), pow(db, q)) else {
+                        continue;
+                    };
+                    if x.div(y) == dim {
+                        return Some(format!("{}/{}", text(a, p), text(b, q)));
+                    }
+                    if a < b && x.mul(y) == dim {
+                        return Some(format!("{}·{}", text(a, p), text(b, q)));
+                    }
+                }
+            }
+        }
+    }
+    None
+}
+
 /// Base-unit text of a dimension: numerator factors, then `/` and the denominator
 /// (parenthesised when it has more than one factor), "1" for dimensionless.
-fn base_text(dim: Dim) -> String {
+fn si_base_text(dim: Dim) -> String {
     const BASE: [&str; 7] = ["m", "kg", "s", "A", "K", "mol", "cd"];
     let part = |negative: bool| -> Vec<String> {
         BASE.iter()

@@ -386,9 +386,14 @@ fn describe_texts() {
     assert_eq!(Dim::RESISTANCE.mul(Dim::CAPACITANCE), Dim::TIME);
     assert_eq!(unit("V/s").dim.describe(), "a voltage per time");
     assert_eq!(unit("A/s").dim.describe(), "a current per time");
-    // V² = (m²·kg·s⁻³·A⁻¹)² = m⁴·kg²·s⁻⁶·A⁻²
+    // V² has no name of its own; it is written as the power of the unit, not in base units
+    // (m⁴·kg²/(s⁶·A²)), and a capacitance per voltage as F/V.
     let v2 = Dim::VOLTAGE.powi(2).unwrap_or_default();
-    assert_eq!(v2.describe(), "a quantity in m⁴·kg²/(s⁶·A²)");
+    assert_eq!(v2.describe(), "a quantity in V²");
+    assert_eq!(
+        Dim::CAPACITANCE.div(Dim::VOLTAGE).describe(),
+        "a quantity in F/V"
+    );
     assert_eq!(Dim([0, 0, -2, 0, 0, 0, 0]).describe(), "a quantity in 1/s²");
     assert_eq!(
         describe_quantity(Dim::TEMPERATURE, true),
@@ -418,7 +423,7 @@ fn symbol_texts() {
     assert_eq!(unit("mV/K").dim.symbol_text(), "V/K");
     assert_eq!(unit("mW/K").dim.symbol_text(), "W/K");
     let v2 = Dim::VOLTAGE.powi(2).unwrap_or_default();
-    assert_eq!(v2.symbol_text(), "m⁴·kg²/(s⁶·A²)");
+    assert_eq!(v2.symbol_text(), "V²");
     // Every symbol text is itself a unit of factor 1 and the same dimension.
     for d in [
         v2,
@@ -470,7 +475,7 @@ fn engineering_display() {
     assert_eq!(format_si(-2e-3, unit("V/K").dim, false, 3), "-2.00 mV/K");
     assert_eq!(
         format_si(2.0, Dim::VOLTAGE.powi(2).unwrap_or_default(), false, 3),
-        "2.00 m⁴·kg²/(s⁶·A²)"
+        "2.00 V²"
     );
     assert_eq!(
         format_si(1234.5, Dim::THERMAL_RESISTANCE, false, 3),
