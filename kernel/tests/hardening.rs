@@ -929,7 +929,7 @@ async fn a_64_mib_message_is_served_and_the_kernel_stays_up() {
     let h = c.header("execute_request");
     let frames = Client::frames_with(b"wrong", &h, &json!({"code": big}), None);
     c.send_raw(Channel::Shell, frames).await;
-    // And a 64 MiB cell: one long comment, then a definition.
+    // And a 64 MiB cell: refused as too large (the cap is 1 MiB), with a clear error.
     let code = format!("# {big}\nafter = 3 V");
     let started = Instant::now();
     let id = c
@@ -937,14 +937,17 @@ async fn a_64_mib_message_is_served_and_the_kernel_stays_up() {
         .await;
     let r = c.reply(Channel::Shell, &id).await;
     let exec_took = started.elapsed();
-    assert_eq!(r.content["status"], "ok", "{:?}", r.content);
+    assert_eq!(r.content["status"], "error", "{:?}", r.content);
+    assert_eq!(r.content["ename"], "LimitExceeded", "{:?}", r.content);
+    let (r, _) = c.execute("after = 3 V").await;
+    assert_eq!(r.content["status"], "ok");
     drop(code);
     let _ = c.drain_iopub(SILENCE).await;
     let peak = proc_status_field(kernel.pid(), "VmHWM:").unwrap_or(0);
     let after = kernel.rss_kib();
     println!(
         "64 MiB messages: kernel_info with 64 MiB padding answered in {info_took:?}; a 64 MiB \
-         cell ran in {exec_took:?}; RSS {before} KiB before, {after} KiB after, peak {peak} KiB"
+         cell was refused in {exec_took:?}; RSS {before} KiB before, {after} KiB after, peak {peak} KiB"
     );
     let (r, out) = c.execute("after * 2").await;
     assert_eq!(r.content["status"], "ok");

@@ -21,6 +21,10 @@ use std::sync::Arc;
 
 pub use crate::query::{Completion, Inspection};
 
+/// Largest cell source a worksheet accepts (far beyond any real calculation; it keeps a
+/// hostile cell from costing gigabytes).
+pub const MAX_CELL_BYTES: usize = 1 << 20;
+
 /// A flag another thread can raise to stop a long evaluation (a sweep) promptly.
 #[derive(Debug, Clone, Default)]
 pub struct Interrupt(Arc<AtomicBool>);
@@ -109,6 +113,29 @@ impl Worksheet {
         source: &str,
         interrupt: &Interrupt,
     ) -> Execution {
+        if source.len() > MAX_CELL_BYTES {
+            let mut report = CellReport {
+                cell: cell.unwrap_or("").to_string(),
+                ..CellReport::default()
+            };
+            report.diagnostics.push(
+                Diagnostic::error(
+                    DiagKind::Limit,
+                    0..0,
+                    format!(
+                        "this cell holds {} bytes; a cell may hold at most {} MiB",
+                        source.len(),
+                        MAX_CELL_BYTES >> 20
+                    ),
+                )
+                .hint("split the worksheet into cells"),
+            );
+            return Execution {
+                report,
+                updated: Vec::new(),
+                interrupted: false,
+            };
+        }
         let program = parser::parse(source);
         let key = match cell {
             Some(k) => k.to_string(),
