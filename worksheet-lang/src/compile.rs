@@ -80,107 +80,65 @@ pub trait Arith: Copy {
     fn max(self, o: Self) -> Self;
 }
 
-impl Arith for f64 {
-    fn konst(x: f64) -> Self {
-        x
-    }
-    fn add(self, o: Self) -> Self {
-        self + o
-    }
-    fn sub(self, o: Self) -> Self {
-        self - o
-    }
-    fn mul(self, o: Self) -> Self {
-        self * o
-    }
-    fn div(self, o: Self) -> Self {
-        self / o
-    }
-    fn neg(self) -> Self {
-        -self
-    }
-    fn recip(self) -> Self {
-        1.0 / self
-    }
-    fn powi(self, n: i32) -> Self {
-        f64::powi(self, n)
-    }
-    fn powf(self, p: Self) -> Self {
-        f64::powf(self, p)
-    }
-    fn sqrt(self) -> Self {
-        f64::sqrt(self)
-    }
-    fn exp(self) -> Self {
-        f64::exp(self)
-    }
-    fn ln(self) -> Self {
-        f64::ln(self)
-    }
-    fn log10(self) -> Self {
-        f64::log10(self)
-    }
-    fn abs(self) -> Self {
-        f64::abs(self)
-    }
-    fn min(self, o: Self) -> Self {
-        f64::min(self, o)
-    }
-    fn max(self, o: Self) -> Self {
-        f64::max(self, o)
-    }
+/// `f64` and `Dual` implement the same operations under the same names; the trait only
+/// forwards to them.
+macro_rules! forward_arith {
+    ($t:ty, $konst:expr) => {
+        impl Arith for $t {
+            fn konst(x: f64) -> Self {
+                $konst(x)
+            }
+            fn add(self, o: Self) -> Self {
+                self + o
+            }
+            fn sub(self, o: Self) -> Self {
+                self - o
+            }
+            fn mul(self, o: Self) -> Self {
+                self * o
+            }
+            fn div(self, o: Self) -> Self {
+                self / o
+            }
+            fn neg(self) -> Self {
+                -self
+            }
+            fn recip(self) -> Self {
+                <$t>::recip(self)
+            }
+            fn powi(self, n: i32) -> Self {
+                <$t>::powi(self, n)
+            }
+            fn powf(self, p: Self) -> Self {
+                <$t>::powf(self, p)
+            }
+            fn sqrt(self) -> Self {
+                <$t>::sqrt(self)
+            }
+            fn exp(self) -> Self {
+                <$t>::exp(self)
+            }
+            fn ln(self) -> Self {
+                <$t>::ln(self)
+            }
+            fn log10(self) -> Self {
+                <$t>::log10(self)
+            }
+            fn abs(self) -> Self {
+                <$t>::abs(self)
+            }
+            fn min(self, o: Self) -> Self {
+                <$t>::min(self, o)
+            }
+            fn max(self, o: Self) -> Self {
+                <$t>::max(self, o)
+            }
+        }
+    };
 }
 
-impl Arith for Dual {
-    fn konst(x: f64) -> Self {
-        Dual::constant(x)
-    }
-    fn add(self, o: Self) -> Self {
-        self + o
-    }
-    fn sub(self, o: Self) -> Self {
-        self - o
-    }
-    fn mul(self, o: Self) -> Self {
-        self * o
-    }
-    fn div(self, o: Self) -> Self {
-        self / o
-    }
-    fn neg(self) -> Self {
-        -self
-    }
-    fn recip(self) -> Self {
-        Dual::recip(self)
-    }
-    fn powi(self, n: i32) -> Self {
-        Dual::powi(self, n)
-    }
-    fn powf(self, p: Self) -> Self {
-        Dual::powf(self, p)
-    }
-    fn sqrt(self) -> Self {
-        Dual::sqrt(self)
-    }
-    fn exp(self) -> Self {
-        Dual::exp(self)
-    }
-    fn ln(self) -> Self {
-        Dual::ln(self)
-    }
-    fn log10(self) -> Self {
-        Dual::log10(self)
-    }
-    fn abs(self) -> Self {
-        Dual::abs(self)
-    }
-    fn min(self, o: Self) -> Self {
-        Dual::min(self, o)
-    }
-    fn max(self, o: Self) -> Self {
-        Dual::max(self, o)
-    }
-}
+forward_arith!(f64, |x: f64| x);
+forward_arith!(Dual, Dual::constant);
 
 impl Tape {
     /// Sizes `regs` and writes the constants; `run` then only computes.

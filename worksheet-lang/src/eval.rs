@@ -332,7 +332,9 @@ impl<'a> Evaluator<'a> {
 
     fn eval_inner(&mut self, e: &Expr) -> R<Value> {
         match &e.kind {
-            ExprKind::Number { value, unit } => self.number(*value, unit.as_ref(), &e.span, false),
+            ExprKind::Number { value, unit } => self
+                .number(*value, unit.as_ref(), &e.span, false)
+                .map(Value::Num),
             ExprKind::Code { value, kind, .. } => Ok(Value::Num(Num::constant(
                 *value,
                 match kind {
@@ -440,9 +442,9 @@ impl<'a> Evaluator<'a> {
         unit: Option<&crate::ast::UnitExpr>,
         span: &Span,
         difference: bool,
-    ) -> R<Value> {
+    ) -> R<Num> {
         let Some(u) = unit else {
-            return Ok(Value::Num(Num::constant(value, Dim::NONE)));
+            return Ok(Num::constant(value, Dim::NONE));
         };
         let parsed = self.reg.unit(&u.text).map_err(|err| {
             let mut e = EvalError::new(DiagKind::UnknownUnit, &u.span, err.message);
@@ -467,11 +469,11 @@ impl<'a> Evaluator<'a> {
         }
         let absolute = parsed.is_absolute_temperature() && !difference;
         let si = parsed.to_si(value, absolute);
-        Ok(Value::Num(Num {
+        Ok(Num {
             x: Dual::constant(si),
             dim: parsed.dim,
             abs: absolute,
-        }))
+        })
     }
 
     fn name(&mut self, n: &str, span: &Span) -> R<Value> {
@@ -519,10 +521,7 @@ impl<'a> Evaluator<'a> {
         let relative = is_relative_literal(spread);
         let s = match &spread.kind {
             ExprKind::Number { value, unit } => {
-                match self.number(*value, unit.as_ref(), &spread.span, true)? {
-                    Value::Num(n) => n,
-                    _ => unreachable_num(&spread.span)?,
-                }
+                self.number(*value, unit.as_ref(), &spread.span, true)?
             }
             _ => self.num(spread)?,
         };
@@ -1145,14 +1144,6 @@ impl CallHost for Host<'_, '_> {
             self.ev.reg.warnings.push((src, key, text));
         }
     }
-}
-
-fn unreachable_num(span: &Span) -> R<Num> {
-    Err(EvalError::new(
-        DiagKind::TypeMismatch,
-        span,
-        "expected a number",
-    ))
 }
 
 /// True when the expression is a `%` or `ppm` literal (only those make a tolerance relative).

@@ -38,7 +38,7 @@ struct Axis {
 
 fn axis(host: &SweepHost<'_>, var: &SweepVar) -> Option<Result<Axis, Diagnostic>> {
     let name = &var.name.name;
-    let Some(Ok(def)) = host.definition(name) else {
+    let Some(def) = host.definition_index(name) else {
         return Some(Err(Diagnostic::error(
             DiagKind::UnknownName,
             var.name.span.clone(),

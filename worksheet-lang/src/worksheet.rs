@@ -1581,7 +1581,6 @@ fn evaluate(
                     match crate::sweep::run(
                         &SweepHost {
                             model: &model,
-                            cells,
                             interrupt,
                             choices: &an.reg.choices,
                             known: &an.reg.known,
@@ -1733,7 +1732,6 @@ fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
 /// What a sweep needs of the worksheet: re-running it with one definition pinned.
 pub(crate) struct SweepHost<'a> {
     model: &'a Model,
-    cells: &'a [Cell],
     interrupt: &'a Interrupt,
     /// The parts the worksheet chose: a sweep shows how that design behaves, so it keeps
     /// them rather than choosing again at every point.
@@ -1794,14 +1792,12 @@ impl SweepHost<'_> {
         self.interrupt
     }
 
-    /// The nominal value of a definition, if it evaluated.
-    pub fn definition(&self, name: &str) -> Option<Result<usize, ()>> {
-        let &i = self.model.index.get(name)?;
-        Some(Ok(i))
+    /// The index of a definition, to pin it in `point`.
+    pub fn definition_index(&self, name: &str) -> Option<usize> {
+        self.model.index.get(name).copied()
     }
 
-    /// The first check whose left side is exactly `name`: (its text, the right side's
-    /// nominal value).
+    /// The checks whose left side is exactly `name`: (their text, their right side).
     pub fn check_on(&self, name: &str) -> Vec<(String, Expr)> {
         self.model
             .checks
@@ -1813,7 +1809,6 @@ impl SweepHost<'_> {
 
     /// A known number written in the sweep (an end, a step count): literals only.
     pub fn constant(&self, e: &Expr) -> Result<Num, EvalError> {
-        let _ = self.cells.len();
         let mut pass = Pass::new(Mode::Nominal, 0);
         let mut scratch = Registry::default();
         let mut ev = Evaluator {
