@@ -1120,16 +1120,13 @@ impl CallHost for Host<'_, '_> {
     }
     fn arg_range(&self, param: usize) -> Option<Interval> {
         let key = format!("{}#{}", self.ev.stmt_key, self.call_key);
-        let r = self
-            .ev
-            .reg
-            .known
-            .get(&key)
-            .and_then(|v| v.get(param).copied().flatten());
-        if r.is_none() {
+        // Once a box pass has seen this call, every argument's range is known; one that
+        // is not a number (or not given) has none.
+        let Some(ranges) = self.ev.reg.known.get(&key) else {
             self.ev.reg.wanted_ranges.set(true);
-        }
-        r
+            return None;
+        };
+        ranges.get(param).copied().flatten()
     }
     fn warn(&mut self, text: String) {
         let src = self.ev.stmt_label.to_string();

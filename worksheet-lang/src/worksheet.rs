@@ -1483,12 +1483,16 @@ fn evaluate(
     let model = build_model(cells, overrides);
     // Choices that depend on their arguments' worst-case ranges (`res.led(rule: "worst")`)
     // take them from a box pass of an earlier round; repeat while they change.
+    // A round whose nominal pass found every range it asked for is the worksheet's own
+    // nominal pass.
     let mut known = HashMap::default();
+    let mut settled = None;
     for _ in 0..3 {
         let mut probe = Runner::new(&model, interrupt);
         probe.reg.known = known.clone();
-        probe.run(Mode::Nominal)?;
+        let nominal = probe.run(Mode::Nominal)?;
         if !probe.reg.wanted_ranges.get() {
+            settled = Some((probe, nominal));
             break;
         }
         probe.run(Mode::Box { seed: None })?;
@@ -1497,9 +1501,15 @@ fn evaluate(
         }
         known = std::mem::take(&mut probe.reg.observed);
     }
-    let mut runner = Runner::new(&model, interrupt);
-    runner.reg.known = known;
-    let nominal = runner.run(Mode::Nominal)?;
+    let (mut runner, nominal) = match settled {
+        Some(done) => done,
+        None => {
+            let mut runner = Runner::new(&model, interrupt);
+            runner.reg.known = known;
+            let nominal = runner.run(Mode::Nominal)?;
+            (runner, nominal)
+        }
+    };
     let reg = runner.reg.clone();
     let nominal_values = std::mem::take(&mut runner.nominal_values);
     let shown = std::mem::take(&mut runner.shown);
