@@ -10,6 +10,11 @@
 
 mod shared;
 
+/// The kernel's allocator (kernel/src/main.rs), so the in-process figure is the compute time
+/// the kernel itself would see.
+#[global_allocator]
+static ALLOC: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 use std::hint::black_box;
 use std::process::ExitCode;
 use std::time::Instant;

@@ -213,6 +213,10 @@ fn is_joiner(c: char) -> bool {
 
 /// NFKC form of a name as written (after folding).
 pub fn normalize_name(text: &str) -> String {
+    // NFKC leaves ASCII as it is.
+    if text.is_ascii() {
+        return text.to_string();
+    }
     text.nfkc().collect()
 }
 
