@@ -479,7 +479,8 @@ def main():
         "¹ Python: `time.perf_counter()` around the cell's own code inside the cell "
         "(tests/bench/python/reference_cell.py), printed. Headroom has no evaluation timer in "
         "the kernel yet, so its figure is `Worksheet::execute` of the same source measured "
-        "in-process by the `figures` bench binary (worksheet-lang/benches/figures.rs).",
+        "in-process by the `figures` bench binary (worksheet-lang/benches/figures.rs), which "
+        "uses the kernel's allocator (mimalloc).",
         f"² tests/bench/cells/chain.hrw with `sweep vin over {SWEEP_RANGE} steps N: y10`, whole "
         "cell time ÷ N, in-process. pint + NumPy: tests/bench/python/sweep_chain.py, the chain "
         "on arrays. Rust loop: worksheet-lang/benches/shared/chain.rs. "
