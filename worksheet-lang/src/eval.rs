@@ -104,13 +104,15 @@ pub struct Registry {
 impl Registry {
     /// A unit by its text, parsed once per evaluation (a worksheet uses few distinct units,
     /// so a short list beats hashing).
-    pub fn unit(&mut self, text: &str) -> Result<units::Unit, units::UnitError> {
-        if let Some((_, u)) = self.units.iter().find(|(t, _)| t == text) {
-            return u.clone();
-        }
-        let u = units::parse_unit(text);
-        self.units.push((text.to_string(), u.clone()));
-        u
+    pub fn unit(&mut self, text: &str) -> Result<&units::Unit, units::UnitError> {
+        let i = match self.units.iter().position(|(t, _)| t == text) {
+            Some(i) => i,
+            None => {
+                self.units.push((text.to_string(), units::parse_unit(text)));
+                self.units.len() - 1
+            }
+        };
+        self.units[i].1.as_ref().map_err(Clone::clone)
     }
 
     pub fn scalar_id(&mut self, key: &str) -> usize {
@@ -125,6 +127,16 @@ impl Registry {
     pub fn find_scalar(&self, key: &str) -> Option<usize> {
         self.scalar_index.get(key).copied()
     }
+}
+
+/// A key made of `parts`, joined. Keys are built in every pass, so without the formatting
+/// machinery.
+pub(crate) fn join(parts: &[&str]) -> String {
+    let mut s = String::with_capacity(parts.iter().map(|p| p.len()).sum());
+    for p in parts {
+        s.push_str(p);
+    }
+    s
 }
 
 /// How the inputs are set in a pass.
@@ -230,7 +242,7 @@ impl<'a> Evaluator<'a> {
             Value::Num(n) => self.record(key, *n),
             Value::Record(r) => {
                 for f in &r.fields {
-                    let k = format!("{key}.{}", f.name);
+                    let k = join(&[key, ".", &f.name]);
                     self.record_value(&k, &f.value);
                 }
             }
@@ -284,7 +296,7 @@ impl<'a> Evaluator<'a> {
         hi: f64,
         site_value: impl Fn(Dual) -> R<Num>,
     ) -> R<Num> {
-        let key = format!("{}@{}", self.stmt_key, span.start);
+        let key = join(&[self.stmt_key, "@", &span.start.to_string()]);
         let label = if self.given {
             self.stmt_label.to_string()
         } else {
@@ -292,7 +304,7 @@ impl<'a> Evaluator<'a> {
         };
         let e = self.input(&key, label, nominal, lo, hi)?;
         let n = site_value(e)?;
-        let skey = format!("input:{key}");
+        let skey = join(&["input:", &key]);
         if self.nominal() {
             let sid = self.reg.scalar_id(&skey);
             let iid = self.reg.input_index[&key];
@@ -451,14 +463,25 @@ impl<'a> Evaluator<'a> {
             e.hint = err.hint;
             e
         })?;
+        let absolute = parsed.is_absolute_temperature() && !difference;
+        let num = Num {
+            x: Dual::constant(parsed.to_si(value, absolute)),
+            dim: parsed.dim,
+            abs: absolute,
+        };
         if self.nominal() && self.names.lookup(&u.text).is_some() && self.depth == 0 {
+            let parsed_text = self
+                .reg
+                .unit(&u.text)
+                .map(|p| p.text.clone())
+                .unwrap_or_default();
             self.notes.push(
                 Diagnostic::warning(
                     DiagKind::UnitShadowsName,
                     span.clone(),
                     format!(
                         "`{}` after a number is read as the unit {}, not as your `{}`",
-                        u.text, parsed.text, u.text
+                        u.text, parsed_text, u.text
                     ),
                 )
                 .hint(format!(
@@ -467,13 +490,7 @@ impl<'a> Evaluator<'a> {
                 )),
             );
         }
-        let absolute = parsed.is_absolute_temperature() && !difference;
-        let si = parsed.to_si(value, absolute);
-        Ok(Num {
-            x: Dual::constant(si),
-            dim: parsed.dim,
-            abs: absolute,
-        })
+        Ok(num)
     }
 
     fn name(&mut self, n: &str, span: &Span) -> R<Value> {
@@ -772,7 +789,9 @@ impl<'a> Evaluator<'a> {
             )
             .hint(b.doc.signature));
         }
-        let call_key = format!("{}#{}", self.stmt_key, span.start);
+        // "statement#offset": the call's key, under which its choices, parts and probes
+        // are known from pass to pass.
+        let call_key = join(&[self.stmt_key, "#", &span.start.to_string()]);
         if matches!(self.pass.mode, Mode::Box { .. }) && !self.reg.observed.contains_key(&call_key)
         {
             let ranges = slots
@@ -782,12 +801,9 @@ impl<'a> Evaluator<'a> {
                     _ => None,
                 })
                 .collect();
-            self.reg.observed.insert(call_key, ranges);
+            self.reg.observed.insert(call_key.clone(), ranges);
         }
-        let mut host = Host {
-            ev: self,
-            call_key: format!("{}", span.start),
-        };
+        let mut host = Host { ev: self, call_key };
         let mut ctx = CallCtx { host: &mut host };
         (b.call)(&mut ctx, &slots).map_err(|e: CallError| {
             let at = e
@@ -1039,6 +1055,7 @@ pub const MATH: &[&str] = &[
 /// The evaluator as the built-ins' host.
 struct Host<'e, 'a> {
     ev: &'e mut Evaluator<'a>,
+    /// "statement#offset" of the call.
     call_key: String,
 }
 
@@ -1051,7 +1068,7 @@ impl CallHost for Host<'_, '_> {
         key: &str,
         pick: &mut dyn FnMut() -> Result<f64, CallError>,
     ) -> Result<f64, CallError> {
-        let k = format!("{}#{}:{}", self.ev.stmt_key, self.call_key, key);
+        let k = join(&[&self.call_key, ":", key]);
         if let Some(&v) = self.ev.reg.choices.get(&k) {
             return Ok(v);
         }
@@ -1073,7 +1090,7 @@ impl CallHost for Host<'_, '_> {
         hi: f64,
         dim: Dim,
     ) -> Dual {
-        let k = format!("{}#{}:{}", self.ev.stmt_key, self.call_key, key);
+        let k = join(&[&self.call_key, ":", key]);
         let label = if self.ev.nominal() {
             format!("{label} in {}", self.ev.stmt_label)
         } else {
@@ -1081,7 +1098,7 @@ impl CallHost for Host<'_, '_> {
         };
         match self.ev.input(&k, label, nominal, lo, hi) {
             Ok(x) => {
-                let skey = format!("input:{k}");
+                let skey = join(&["input:", &k]);
                 if self.ev.nominal() {
                     let sid = self.ev.reg.scalar_id(&skey);
                     if let Some(&iid) = self.ev.reg.input_index.get(&k) {
@@ -1098,7 +1115,7 @@ impl CallHost for Host<'_, '_> {
         }
     }
     fn probe(&mut self, key: &str, value: Num, rule: WarnRule) {
-        let k = format!("probe:{}#{}:{}", self.ev.stmt_key, self.call_key, key);
+        let k = join(&["probe:", &self.call_key, ":", key]);
         if self.ev.nominal() {
             let scalar = self.ev.reg.scalar_id(&k);
             if !self
@@ -1119,10 +1136,10 @@ impl CallHost for Host<'_, '_> {
         self.ev.record(&k, value);
     }
     fn arg_range(&self, param: usize) -> Option<Interval> {
-        let key = format!("{}#{}", self.ev.stmt_key, self.call_key);
+        let key = &self.call_key;
         // Once a box pass has seen this call, every argument's range is known; one that
         // is not a number (or not given) has none.
-        let Some(ranges) = self.ev.reg.known.get(&key) else {
+        let Some(ranges) = self.ev.reg.known.get(key) else {
             self.ev.reg.wanted_ranges.set(true);
             return None;
         };

@@ -1104,9 +1104,9 @@ impl Runner<'_> {
                         e.message = format!("the two sides cannot be compared: {}", e.message);
                         e
                     })?;
-                ev.record(&format!("{}:lhs", c.key), a);
-                ev.record(&format!("{}:rhs", c.key), b);
-                ev.record(&format!("{}:diff", c.key), diff);
+                ev.record(&eval::join(&[&c.key, ":lhs"]), a);
+                ev.record(&eval::join(&[&c.key, ":rhs"]), b);
+                ev.record(&eval::join(&[&c.key, ":diff"]), diff);
                 Ok(())
             })();
             let notes = std::mem::take(&mut ev.notes);
