@@ -242,7 +242,7 @@ impl<'a> Evaluator<'a> {
             Value::Num(n) => self.record(key, *n),
             Value::Record(r) => {
                 for f in &r.fields {
-                    let k = join(&[key, ".", &f.name]);
+                    let k = join(&[key, ".", f.name]);
                     self.record_value(&k, &f.value);
                 }
             }
