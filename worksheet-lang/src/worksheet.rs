@@ -1044,18 +1044,16 @@ impl Runner<'_> {
                             }
                         }
                     }
-                    let recorded: Vec<(usize, Num)> = pass.touched[first_touched..]
+                    let mut recorded = pass.touched[first_touched..]
                         .iter()
-                        .filter_map(|&id| pass.scalars[id].map(|n| (id, n)))
-                        .collect();
+                        .filter_map(|&id| pass.scalars[id].map(|n| (id, n)));
                     if let Mode::Box { seed: Some(k) } = pass.mode {
-                        if recorded.iter().any(|(_, n)| n.x.d != Interval::ZERO) {
+                        if recorded.any(|(_, n)| n.x.d != Interval::ZERO) {
                             self.depends[d].push(k);
                         }
                         self.boxed[d] += 1;
-                    }
-                    if let Some(key) = cache_key {
-                        self.cache.insert(key, (v.clone(), recorded));
+                    } else if let Some(key) = cache_key {
+                        self.cache.insert(key, (v.clone(), recorded.collect()));
                     }
                     values[d] = Some(Ok(v));
                 }
