@@ -1218,35 +1218,48 @@ pub fn parse_unit(text: &str) -> Result<Unit, UnitError> {
 /// a value that rounds up to the next power of ten gets the larger exponent (999.7 → 100, 3).
 fn round_sig(x: f64, sig: usize) -> (bool, String, i32) {
     let sig = sig.clamp(1, 17);
-    let s = format!("{:.*e}", sig - 1, x.abs());
-    let (mantissa, exp) = s.split_once('e').unwrap_or((s.as_str(), "0"));
-    let digits: String = mantissa.chars().filter(|c| c.is_ascii_digit()).collect();
-    (x < 0.0, digits, exp.parse().unwrap_or(0))
+    let mut s = format!("{:.*e}", sig - 1, x.abs());
+    // "1.23e4": the digits are the mantissa without its point.
+    let at = s.find('e').unwrap_or(s.len());
+    let exp = s[at..].get(1..).and_then(|e| e.parse().ok()).unwrap_or(0);
+    s.truncate(at);
+    s.retain(|c| c.is_ascii_digit());
+    (x < 0.0, s, exp)
 }
 
 /// Decimal text of the digits `d₁d₂…` with `d₁` at 10^exp. Plain decimals for
 /// 10⁻³ ≤ |x| < 10⁶, otherwise `1.23e-9` (a form the worksheet language reads back).
 fn render(negative: bool, digits: &str, exp: i32) -> String {
-    let sign = if negative { "-" } else { "" };
+    let mut out = String::with_capacity(digits.len() + 12);
+    if negative {
+        out.push('-');
+    }
     if !(-3..6).contains(&exp) {
         let (first, rest) = digits.split_at(1.min(digits.len()));
-        let mantissa = if rest.is_empty() {
-            first.to_string()
-        } else {
-            format!("{first}.{rest}")
-        };
-        return format!("{sign}{mantissa}e{exp}");
+        out.push_str(first);
+        if !rest.is_empty() {
+            out.push('.');
+            out.push_str(rest);
+        }
+        out.push('e');
+        out.push_str(&exp.to_string());
+        return out;
     }
     let n = digits.len() as i32;
-    let body = if exp < 0 {
-        format!("0.{}{digits}", "0".repeat((-exp - 1) as usize))
+    if exp < 0 {
+        out.push_str("0.");
+        out.extend(std::iter::repeat_n('0', (-exp - 1) as usize));
+        out.push_str(digits);
     } else if exp + 1 >= n {
-        format!("{digits}{}", "0".repeat((exp + 1 - n) as usize))
+        out.push_str(digits);
+        out.extend(std::iter::repeat_n('0', (exp + 1 - n) as usize));
     } else {
         let (int, frac) = digits.split_at((exp + 1) as usize);
-        format!("{int}.{frac}")
-    };
-    format!("{sign}{body}")
+        out.push_str(int);
+        out.push('.');
+        out.push_str(frac);
+    }
+    out
 }
 
 /// A plain number to `sig` significant digits, trailing zeros kept: 0.18 → "0.180",
@@ -1300,8 +1313,14 @@ fn format_prefixed(value: f64, unit: &str, prefixes: &[i32], sig: usize) -> Stri
         .max()
         .or_else(|| prefixes.iter().copied().min())
         .unwrap_or(0);
-    let number = render(neg, &digits, exp - chosen);
-    with_unit(number, &format!("{}{unit}", prefix_symbol(chosen)))
+    let mut number = render(neg, &digits, exp - chosen);
+    // As `with_unit`, with the prefix before the unit.
+    if !(unit.is_empty() || unit == "1") {
+        number.push(' ');
+        number.push_str(prefix_symbol(chosen));
+        number.push_str(unit);
+    }
+    number
 }
 
 /// Seconds below one second take prefixes (ms, µs, ns, ps); 1 s up to an hour stays in

@@ -1336,7 +1336,7 @@ impl Analysed<'_, '_> {
 
     #[allow(clippy::too_many_arguments)]
     fn value_rows(
-        &self,
+        &mut self,
         key: &str,
         name: &str,
         v: &Value,
@@ -1359,7 +1359,7 @@ impl Analysed<'_, '_> {
         match v {
             Value::Num(n) => {
                 let (nom, b) = self.scalar(key).unwrap_or((*n, None));
-                let preferred = display.and_then(|t| units::parse_unit(t).ok());
+                let preferred = display.and_then(|t| self.reg.unit(t).ok().cloned());
                 let u = unit.or(preferred.as_ref());
                 let si = nom.x.value();
                 let text = fmt_value(si, nom.dim, nom.abs, u);
