@@ -480,7 +480,11 @@ def main():
         "(tests/bench/python/reference_cell.py), printed. Headroom has no evaluation timer in "
         "the kernel yet, so its figure is `Worksheet::execute` of the same source measured "
         "in-process by the `figures` bench binary (worksheet-lang/benches/figures.rs), which "
-        "uses the kernel's allocator (mimalloc).",
+        "uses the kernel's allocator (mimalloc), in a tight loop. It flatters Headroom: on a "
+        "machine whose cores idle between requests, an evaluation that follows a client's "
+        "round trip runs slower (a temporary timer inside the kernel measured the reference "
+        "cell at about 1.8× the in-process figure on 2026-12-02), whereas the Python figure "
+        "is taken inside its kernel during the round trips.",
         f"² tests/bench/cells/chain.hrw with `sweep vin over {SWEEP_RANGE} steps N: y10`, whole "
         "cell time ÷ N, in-process. pint + NumPy: tests/bench/python/sweep_chain.py, the chain "
         "on arrays. Rust loop: worksheet-lang/benches/shared/chain.rs. "
