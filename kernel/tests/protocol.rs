@@ -434,6 +434,12 @@ async fn execution_counts_history_flags_and_silent_runs() {
     assert_eq!(r.content["execution_count"], 1);
     assert_eq!(r.content["user_expressions"], json!({}));
     assert_eq!(r.content["payload"], json!([]));
+    // The reply's metadata carries how long the evaluation took.
+    let metadata: Value = serde_json::from_slice(&r.parts[2]).expect("metadata is JSON");
+    let seconds = metadata["headroom"]["evaluation_seconds"]
+        .as_f64()
+        .unwrap_or_else(|| panic!("no evaluation time in {metadata}"));
+    assert!(seconds > 0.0 && seconds < 60.0, "{metadata}");
     let input = out
         .iter()
         .find(|m| m.msg_type() == "execute_input")

@@ -79,6 +79,7 @@ class Kernel:
         self.client.load_connection_file(str(self.connection_file))
         self.client.start_channels(shell=True, iopub=True, stdin=False, hb=False, control=True)
         self.proc = None
+        self.last_reply_metadata = {}
         self.stderr = open(Path(workdir) / f"{name}.log", "ab")
 
     def start(self, timeout=60.0):
@@ -139,6 +140,7 @@ class Kernel:
         reply = self.wait_shell(msg_id, timeout)
         if error or reply["content"]["status"] != "ok":
             raise RuntimeError(f"{self.name}: cell {cell_id} failed: {error or reply['content']}")
+        self.last_reply_metadata = reply.get("metadata") or {}
         return elapsed, "".join(streams)
 
     def rss_bytes(self):
@@ -208,7 +210,7 @@ def start_and_memory(workdir, reps):
 
 
 def round_trips(workdir, reps):
-    """Figures 2 and 3 (round trip and the Python compute time): one kernel of each, warmed."""
+    """Figures 2 and 3 (round trips, and each kernel's compute time): one kernel of each, warmed."""
     reference_hrw = (CELLS / "reference.hrw").read_text()
     setup_py = (PYTHON / "setup_cell.py").read_text()
     reference_py = (PYTHON / "reference_cell.py").read_text()
@@ -232,6 +234,10 @@ def round_trips(workdir, reps):
                     m = re.search(r"bench-compute-seconds (\S+)", out)
                     if m:
                         compute.append(float(m.group(1)))
+                    # Headroom's evaluation time, from its timer around `Worksheet::execute`.
+                    hr = k.last_reply_metadata.get("headroom", {})
+                    if "evaluation_seconds" in hr:
+                        compute.append(float(hr["evaluation_seconds"]))
             result[name] = {"trivial": trivial, "cell": ref, "compute": compute}
         finally:
             k.stop()
@@ -431,8 +437,8 @@ def main():
         rt = round_trips(workdir, {"trivial": reps["trivial"], "cell": reps["cell"]})
     finally:
         shutil.rmtree(workdir, ignore_errors=True)
-    log("== 3: reference cell, compute inside the kernel")
-    hr_compute = figures_bin(figures, "execute", CELLS / "reference.hrw", reps["compute"])
+    log("== 3: reference cell, compute in-process (for comparison)")
+    hr_inproc = figures_bin(figures, "execute", CELLS / "reference.hrw", reps["compute"])
     log("== 4: sweeps")
     nominal_ns, nominal_points, nominal_note = headroom_sweep(figures, "chain", 10_000)
     bands_ns, bands_points, bands_note = headroom_sweep(figures, "chain-bands", 1_000)
@@ -452,7 +458,7 @@ def main():
             median(rt[H]["trivial"]), median(rt[P]["trivial"]), ipk, "≤ 1/8", 1 / 8),
         Row("3a. reference cell, round trip", "s", median(rt[H]["cell"]), median(rt[P]["cell"]),
             f"{ipk} + pint", "≤ 1/20", 1 / 20),
-        Row("3b. reference cell, compute inside the kernel ¹", "s", hr_compute["median_ns"] / 1e9,
+        Row("3b. reference cell, compute inside the kernel ¹", "s", median(rt[H]["compute"]),
             median(rt[P]["compute"]), "pint", "≤ 1/50", 1 / 50),
         Row(f"4a. sweep of the ten-definition chain, nominal ({nominal_points:,} points) ²",
             "ns/point", nominal_ns, pint_ns, "pint + NumPy", "< 50 ns/point and ≤ 1/2", 1 / 2,
@@ -476,15 +482,13 @@ def main():
         f"{reps['papermill']} papermill reruns. Ratio = Headroom ÷ reference; smaller is better.",
         "Client: jupyter_client with every socket's reconnect interval at 1 ms, connected "
         "before the kernel is spawned; start-up is timed from the spawn to the reply.",
-        "¹ Python: `time.perf_counter()` around the cell's own code inside the cell "
-        "(tests/bench/python/reference_cell.py), printed. Headroom has no evaluation timer in "
-        "the kernel yet, so its figure is `Worksheet::execute` of the same source measured "
-        "in-process by the `figures` bench binary (worksheet-lang/benches/figures.rs), which "
-        "uses the kernel's allocator (mimalloc), in a tight loop. It flatters Headroom: on a "
-        "machine whose cores idle between requests, an evaluation that follows a client's "
-        "round trip runs slower (a temporary timer inside the kernel measured the reference "
-        "cell at about 1.8× the in-process figure on 2026-12-02), whereas the Python figure "
-        "is taken inside its kernel during the round trips.",
+        "¹ Both inside their kernel, during the reference-cell round trips: Python "
+        "`time.perf_counter()` around the cell's own code inside the cell "
+        "(tests/bench/python/reference_cell.py), printed; Headroom's timer around "
+        "`Worksheet::execute` on its evaluator thread, sent in the execute_reply's metadata "
+        "(`headroom.evaluation_seconds`). For comparison, the same evaluation in-process in a "
+        "tight loop (the `figures` bench binary, worksheet-lang/benches/figures.rs, with the "
+        f"kernel's allocator): {fmt(hr_inproc['median_ns'] / 1e9, 's')}.",
         f"² tests/bench/cells/chain.hrw with `sweep vin over {SWEEP_RANGE} steps N: y10`, whole "
         "cell time ÷ N, in-process. pint + NumPy: tests/bench/python/sweep_chain.py, the chain "
         "on arrays. Rust loop: worksheet-lang/benches/shared/chain.rs. "

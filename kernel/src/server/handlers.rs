@@ -129,9 +129,25 @@ pub(crate) struct Replier {
 
 impl Replier {
     async fn send(&mut self, shared: &Shared, req: &Incoming, msg_type: &str, content: &Value) {
-        let frames = shared
-            .session
-            .encode(&req.identities, msg_type, Some(&req.header), content);
+        self.send_with_metadata(shared, req, msg_type, &json!({}), content)
+            .await
+    }
+
+    async fn send_with_metadata(
+        &mut self,
+        shared: &Shared,
+        req: &Incoming,
+        msg_type: &str,
+        metadata: &Value,
+        content: &Value,
+    ) {
+        let frames = shared.session.encode_with_metadata(
+            &req.identities,
+            msg_type,
+            Some(&req.header),
+            metadata,
+            content,
+        );
         if let Err(e) = self.socket.send(frames).await {
             // The client went away; nothing else to do with its reply.
             tracing::warn!("cannot send {msg_type}: {e}");
@@ -362,9 +378,16 @@ impl Shell {
         }
         shared.status(&req, true);
         let started = tokio::time::Instant::now();
+        let mut metadata = json!({});
         let reply = match req.msg_type.as_str() {
             "execute_request" if abort => json!({"status": "aborted"}),
-            "execute_request" => self.execute(&req).await,
+            "execute_request" => {
+                let (reply, evaluation) = self.execute(&req).await;
+                if let Some(d) = evaluation {
+                    metadata = json!({"headroom": {"evaluation_seconds": d.as_secs_f64()}});
+                }
+                reply
+            }
             "kernel_info_request" => kernel_info(),
             "complete_request" => self.complete(&req).await,
             "inspect_request" => self.inspect(&req).await,
@@ -377,7 +400,7 @@ impl Shell {
             self.abort_queued(started).await;
         }
         self.replier
-            .send(&shared, &req, &reply_type(&req.msg_type), &reply)
+            .send_with_metadata(&shared, &req, &reply_type(&req.msg_type), &metadata, &reply)
             .await;
         shared.status(&req, false);
     }
@@ -396,14 +419,16 @@ impl Shell {
         }
     }
 
-    async fn execute(&mut self, req: &Incoming) -> Value {
+    /// Runs a cell: the reply's content, and how long `Worksheet::execute` took (None when
+    /// it did not run to the end).
+    async fn execute(&mut self, req: &Incoming) -> (Value, Option<std::time::Duration>) {
         let content = with_defaults(
             req.content.clone(),
             &[("silent", json!(false)), ("store_history", json!(true))],
         );
         let request: ExecuteRequest = match serde_json::from_value(content) {
             Ok(r) => r,
-            Err(e) => return bad_request(&e),
+            Err(e) => return (bad_request(&e), None),
         };
         let silent = request.silent;
         // A silent run never enters the history (the specification ties the two).
@@ -431,31 +456,34 @@ impl Shell {
         let deleted = deleted_cells(&req.metadata);
         let code = request.code.clone();
         let worksheet = self.worksheet.clone();
-        let outcome = tokio::task::spawn_blocking(move || {
+        let (outcome, evaluation) = tokio::task::spawn_blocking(move || {
             let mut ws = lock(&worksheet);
             // Cells deleted in the front end go first: their names are gone, and the cells
             // that used them say so.
             let keys: Vec<&str> = deleted.iter().map(String::as_str).collect();
             let mut gone = ws.forget(&keys, &interrupt).unwrap_or_default();
+            let started = std::time::Instant::now();
             let mut ex = ws.execute(cell.as_deref(), &code, &interrupt);
+            let evaluation = started.elapsed();
             gone.retain(|u| {
                 u.report.cell != ex.report.cell
                     && !ex.updated.iter().any(|x| x.report.cell == u.report.cell)
             });
             ex.updated.splice(0..0, gone);
-            Outcome::of(&ex)
+            (Outcome::of(&ex), Some(evaluation))
         })
         .await
         .unwrap_or_else(|e| {
             tracing::error!("the evaluator failed: {e}");
-            Outcome::Failed {
+            let failed = Outcome::Failed {
                 ename: "InternalError".into(),
                 evalue: format!("the evaluator failed ({e}); please report this cell"),
                 traceback: Vec::new(),
-            }
+            };
+            (failed, None)
         });
 
-        match outcome {
+        let reply = match outcome {
             Outcome::Failed {
                 ename,
                 evalue,
@@ -513,7 +541,8 @@ impl Shell {
                 };
                 wire::content(&reply, &["user_expressions"])
             }
-        }
+        };
+        (reply, evaluation)
     }
 
     fn publish_outputs(&self, req: &Incoming, count: ExecutionCount, o: Outputs) {

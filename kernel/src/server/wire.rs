@@ -105,6 +105,20 @@ impl Session {
         parent: Option<&Value>,
         content: &Value,
     ) -> ZmqMessage {
+        let empty = Value::Object(Map::new());
+        self.encode_with_metadata(identities, msg_type, parent, &empty, content)
+    }
+
+    /// As `encode`, with the message's metadata (an execute_reply carries the evaluation
+    /// time there).
+    pub fn encode_with_metadata(
+        &self,
+        identities: &[Bytes],
+        msg_type: &str,
+        parent: Option<&Value>,
+        metadata: &Value,
+        content: &Value,
+    ) -> ZmqMessage {
         let header = json!({
             "msg_id": uuid::Uuid::new_v4().to_string(),
             "username": "headroom",
@@ -117,7 +131,7 @@ impl Session {
         let parts = [
             to_bytes(&header),
             to_bytes(parent.unwrap_or(&empty)),
-            to_bytes(&empty),
+            to_bytes(metadata),
             to_bytes(content),
         ];
         let signature = self.sign(&parts);
