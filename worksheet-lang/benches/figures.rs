@@ -2,7 +2,8 @@
 //! the results table beside the Python reference:
 //!
 //! - `figures execute FILE REPS`: `Worksheet::execute` of the worksheet in FILE on a fresh
-//!   worksheet, REPS times (the compute time of a cell inside the kernel, without messaging);
+//!   worksheet, REPS times, in a tight loop (the sweeps' figures, and the reference cell's
+//!   in-process time beside the kernel's own evaluation timer);
 //! - `figures loop POINTS REPS`: the hand-written Rust loop of the sweep chain over POINTS points.
 //!
 //! Each prints one JSON line: `{"median_ns": …, "min_ns": …, "reps": …}`. Run by `cargo bench`
@@ -10,8 +11,8 @@
 
 mod shared;
 
-/// The kernel's allocator (kernel/src/main.rs), so the in-process figure is the compute time
-/// the kernel itself would see.
+/// The kernel's allocator (kernel/src/main.rs), so the in-process figures run on what the
+/// kernel runs on.
 #[global_allocator]
 static ALLOC: mimalloc::MiMalloc = mimalloc::MiMalloc;
 
