@@ -174,7 +174,7 @@ impl Values<'_> {
     fn at(&self, k: usize) -> [f64; 3] {
         let n = self.nominal[k];
         match self.band {
-            Some((lo, hi)) => [n, lo[k].min(n), hi[k].max(n)],
+            Some((lo, hi)) => [n, band_low(lo[k], n), band_high(hi[k], n)],
             None => [n, n, n],
         }
     }
@@ -185,6 +185,24 @@ impl Values<'_> {
             lo.iter().zip(self.nominal).any(|(l, n)| l < n)
                 || hi.iter().zip(self.nominal).any(|(h, n)| h > n)
         })
+    }
+}
+
+/// A band's low end, widened to hold the nominal value `n` (values are finite).
+fn band_low(lo: f64, n: f64) -> f64 {
+    if lo < n {
+        lo
+    } else {
+        n
+    }
+}
+
+/// A band's high end, widened to hold the nominal value `n`.
+fn band_high(hi: f64, n: f64) -> f64 {
+    if hi > n {
+        hi
+    } else {
+        n
     }
 }
 
@@ -256,13 +274,9 @@ impl Table {
         }
     }
 
-    /// The indices `start..end` of bucket `b`.
-    fn bucket_range(&self, b: usize) -> (usize, usize) {
-        let start = b * self.n / self.buckets;
-        (
-            start,
-            ((b + 1) * self.n / self.buckets).max(start + 1).min(self.n),
-        )
+    /// The index just past bucket `b` (buckets are fewer than points, so none is empty).
+    fn bucket_end(&self, b: usize) -> usize {
+        (b + 1) * self.n / self.buckets
     }
 
     /// Points `i0..` of curve `curve`, one `Values` per swept expression. Each curve's
@@ -306,7 +320,7 @@ impl Table {
         let last = self.n - 1;
         let mut k = 0;
         while k < len {
-            let (_, end) = self.bucket_range(self.bucket);
+            let end = self.bucket_end(self.bucket);
             let stop = (end - i0).min(len);
             for e in [0, last] {
                 if (i0 + k..i0 + stop).contains(&e) {
@@ -335,13 +349,13 @@ impl Table {
                         lows[k..stop]
                             .iter()
                             .zip(nominal)
-                            .map(|(&a, &n)| if a < n { a } else { n }),
+                            .map(|(&l, &n)| band_low(l, n)),
                     );
                     h.extend(
                         highs[k..stop]
                             .iter()
                             .zip(nominal)
-                            .map(|(&a, &n)| if a > n { a } else { n }),
+                            .map(|(&h, &n)| band_high(h, n)),
                     );
                     (&l[..], &h[..])
                 }
