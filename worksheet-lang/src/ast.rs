@@ -197,10 +197,25 @@ pub struct Arg {
 
 impl Expr {
     /// The dotted path of a `Name` or `Field` chain (`reg.linear`), if it is one.
-    pub fn path(&self) -> Option<String> {
+    /// A plain name is borrowed; only a dotted path is built.
+    pub fn path(&self) -> Option<std::borrow::Cow<'_, str>> {
         match &self.kind {
-            ExprKind::Name(n) => Some(n.clone()),
-            ExprKind::Field { base, field } => base.path().map(|p| format!("{p}.{}", field.name)),
+            ExprKind::Name(n) => Some(std::borrow::Cow::Borrowed(n)),
+            ExprKind::Field { base, field } => base
+                .path()
+                .map(|p| std::borrow::Cow::Owned(format!("{p}.{}", field.name))),
+            _ => None,
+        }
+    }
+
+    /// The two names of a `namespace.name` path (the form of every built-in), without
+    /// building the path.
+    pub fn two_part_path(&self) -> Option<(&str, &str)> {
+        match &self.kind {
+            ExprKind::Field { base, field } => match &base.kind {
+                ExprKind::Name(ns) => Some((ns, &field.name)),
+                _ => None,
+            },
             _ => None,
         }
     }

@@ -572,7 +572,7 @@ impl Compiler<'_> {
         }
         let regs = || -> Option<Vec<&Expr>> { Some(args.iter().map(|a| &a.value).collect()) };
         let a = regs()?;
-        match (path.as_str(), a.as_slice()) {
+        match (&*path, a.as_slice()) {
             ("sqrt", [x]) => {
                 let r = self.expr(x)?;
                 Some(self.push(Op::Sqrt(r)))

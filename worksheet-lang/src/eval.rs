@@ -194,6 +194,10 @@ pub trait Names {
     /// The value of a definition in this pass; `Err` when it failed or is not defined.
     fn lookup(&self, name: &str) -> Option<Result<Value, String>>;
     fn function(&self, name: &str) -> Option<&Function>;
+    /// The name's value is exact in every pass (see `is_certain`); false when unsure.
+    fn certain(&self, _name: &str) -> bool {
+        false
+    }
     /// Every name in scope, for "did you mean".
     fn all_names(&self) -> Vec<String>;
 }
@@ -378,8 +382,8 @@ impl<'a> Evaluator<'a> {
             ExprKind::Range { lo, hi } => self.range(lo, hi, &e.span),
             ExprKind::Call { callee, args } => self.call(callee, args, &e.span),
             ExprKind::Field { base, field } => {
-                if let Some(path) = e.path() {
-                    if let Some(b) = builtins::lookup(&path) {
+                {
+                    if let Some(b) = builtins::lookup_expr(e) {
                         return Err(EvalError::new(
                             DiagKind::TypeMismatch,
                             &e.span,
@@ -640,6 +644,10 @@ impl<'a> Evaluator<'a> {
     }
 
     fn call(&mut self, callee: &Expr, args: &[Arg], span: &Span) -> R<Value> {
+        // A dotted path names a built-in (functions the worksheet defines have plain names).
+        if let Some(b) = builtins::lookup_expr(callee) {
+            return self.builtin_call(b, args, span);
+        }
         let Some(path) = callee.path() else {
             return Err(EvalError::new(
                 DiagKind::TypeMismatch,
@@ -650,9 +658,6 @@ impl<'a> Evaluator<'a> {
         if let Some(f) = self.names.function(&path) {
             let f = f.clone();
             return self.user_call(&path, &f, args, span);
-        }
-        if let Some(b) = builtins::lookup(&path) {
-            return self.builtin_call(b, args, span);
         }
         if let Some(v) = self.math(&path, args, span)? {
             return Ok(v);
@@ -803,7 +808,26 @@ impl<'a> Evaluator<'a> {
                 .collect();
             self.reg.observed.insert(call_key.clone(), ranges);
         }
-        let mut host = Host { ev: self, call_key };
+        // Arguments that no tolerance, range or part can reach have point ranges in every
+        // pass: a choice that asks for them needs no box pass to learn them.
+        let exact = (self.locals.is_empty()
+            && args
+                .iter()
+                .all(|a| is_certain(&a.value, &|n| self.names.certain(n))))
+        .then(|| {
+            slots
+                .iter()
+                .map(|v| match v {
+                    Some(Value::Num(n)) => Some(n.x.v),
+                    _ => None,
+                })
+                .collect()
+        });
+        let mut host = Host {
+            ev: self,
+            call_key,
+            exact,
+        };
         let mut ctx = CallCtx { host: &mut host };
         (b.call)(&mut ctx, &slots).map_err(|e: CallError| {
             let at = e
@@ -1057,6 +1081,8 @@ struct Host<'e, 'a> {
     ev: &'e mut Evaluator<'a>,
     /// "statement#offset" of the call.
     call_key: String,
+    /// The arguments' ranges when every argument is exact (`is_certain`).
+    exact: Option<Vec<Option<Interval>>>,
 }
 
 impl CallHost for Host<'_, '_> {
@@ -1136,6 +1162,9 @@ impl CallHost for Host<'_, '_> {
         self.ev.record(&k, value);
     }
     fn arg_range(&self, param: usize) -> Option<Interval> {
+        if let Some(ranges) = &self.exact {
+            return ranges.get(param).copied().flatten();
+        }
         let key = &self.call_key;
         // Once a box pass has seen this call, every argument's range is known; one that
         // is not a number (or not given) has none.
@@ -1157,6 +1186,27 @@ impl CallHost for Host<'_, '_> {
         {
             self.ev.reg.warnings.push((src, key, text));
         }
+    }
+}
+
+/// True when the expression's value is exact in every pass, seen from its text alone:
+/// numbers, codes, texts and lists of them, arithmetic, and names whose definitions are
+/// exact (`name_certain`). A tolerance, a range, `tol(…)` and every call of a built-in or a
+/// worksheet function count as uncertain (a built-in may bring in a part's tolerance).
+pub(crate) fn is_certain(e: &Expr, name_certain: &dyn Fn(&str) -> bool) -> bool {
+    match &e.kind {
+        ExprKind::Number { .. } | ExprKind::Code { .. } | ExprKind::Str(_) => true,
+        ExprKind::Name(n) => name_certain(n),
+        ExprKind::Neg(x) => is_certain(x, name_certain),
+        ExprKind::Binary { lhs, rhs, .. } => {
+            is_certain(lhs, name_certain) && is_certain(rhs, name_certain)
+        }
+        ExprKind::List(items) => items.iter().all(|x| is_certain(x, name_certain)),
+        ExprKind::PlusMinus { .. }
+        | ExprKind::Range { .. }
+        | ExprKind::Call { .. }
+        | ExprKind::Field { .. }
+        | ExprKind::Error => false,
     }
 }
 
@@ -1518,8 +1568,8 @@ pub fn free_names(e: &Expr, bound: &[String], out: &mut Vec<String>) {
             ExprKind::Call { callee, args } => {
                 match callee.path() {
                     Some(p) if !p.contains('.') => {
-                        if !bound.contains(&p) && !out.contains(&p) {
-                            out.push(p);
+                        if !bound.iter().any(|b| *b == *p) && !out.iter().any(|o| *o == *p) {
+                            out.push(p.into_owned());
                         }
                     }
                     Some(_) => {}
@@ -1530,7 +1580,7 @@ pub fn free_names(e: &Expr, bound: &[String], out: &mut Vec<String>) {
                 }
             }
             ExprKind::Field { base, .. } => {
-                if e.path().is_none_or(|p| builtins::lookup(&p).is_none()) {
+                if builtins::lookup_expr(e).is_none() {
                     stack.push(base);
                 }
             }

@@ -477,6 +477,9 @@ struct DefEntry {
     parse_failed: bool,
     /// A sizing result (`heat.sink_for` …) whose display leads with its worst-case minimum.
     leads_with_minimum: bool,
+    /// Its value is exact in every pass: no tolerance, range or part reaches it
+    /// (`eval::is_certain`). Set once the definitions are ordered.
+    certain: bool,
 }
 
 struct CheckEntry {
@@ -632,12 +635,11 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                         static_error,
                         parse_failed,
                         leads_with_minimum: match &d.value.kind {
-                            ExprKind::Call { callee, .. } => callee
-                                .path()
-                                .and_then(|p| crate::builtins::lookup(&p))
+                            ExprKind::Call { callee, .. } => crate::builtins::lookup_expr(callee)
                                 .is_some_and(|b| b.leads_with_minimum()),
                             _ => false,
                         },
+                        certain: false,
                     });
                     m.index.insert(d.name.name.clone(), idx);
                     m.items[ci].push(Item::Def(idx));
@@ -844,6 +846,16 @@ fn order_definitions(m: &mut Model) {
             .hint("break the loop: one of these must be a given or a fixed value"),
         );
     }
+    // In dependency order, so a definition's names are settled before it.
+    for &d in &order {
+        let def = &m.defs[d];
+        let certain = def.static_error.is_none()
+            && eval::is_certain(&def.expr, &|name| match m.index.get(name) {
+                Some(&i) => m.defs[i].certain,
+                None => crate::builtins::constant(name).is_some(),
+            });
+        m.defs[d].certain = certain;
+    }
     m.order = order;
 }
 
@@ -865,6 +877,12 @@ impl Names for Scope<'_> {
     }
     fn function(&self, name: &str) -> Option<&Function> {
         self.model.funcs.get(name)
+    }
+    fn certain(&self, name: &str) -> bool {
+        match self.model.index.get(name) {
+            Some(&i) => self.model.defs[i].certain,
+            None => crate::builtins::constant(name).is_some(),
+        }
     }
     fn all_names(&self) -> Vec<String> {
         self.model

@@ -526,3 +526,23 @@ fn type_and_argument_diagnostics() {
     assert_eq!(e.kind, DiagKind::Argument);
     assert!(e.message.contains("needs `vout`"), "{}", e.message);
 }
+
+/// A part choice that reads its arguments' ranges (the rating of `res.led`) sees an exact
+/// argument as a point, however it is written, and an uncertain one over its whole range.
+#[test]
+fn a_choice_reads_exact_arguments_as_points_and_uncertain_ones_as_ranges() {
+    let rating = |src: &str| si(&run(src), "R.rating");
+    let literal = rating("R = res.led(supply: 5 V, vf: 2 V, current: 8 mA)");
+    let named = rating("vs = 5 V\nvd = vs - 3 V\nR = res.led(supply: vs, vf: vd, current: 8 mA)");
+    assert_eq!(literal, named);
+    // 5 V − 2 V across 390 Ω (E24, at or above 375 Ω): 24 mW at its −5 % end, twice that
+    // after the margin: the 50 mW rating.
+    assert!(close(literal, 0.05), "{literal}");
+    // Over 5 V .. 12 V the choice is made at the nominal 8.5 V (820 Ω), and the rating for
+    // the 12 V end: 10 V across 779 Ω is 128 mW, twice that 257 mW: the ⅓ W rating. The
+    // nominal point alone would ask for 0.125 W.
+    let ranged = rating("given vs = 5 V .. 12 V\nR = res.led(supply: vs, vf: 2 V, current: 8 mA)");
+    let at_nominal = rating("R = res.led(supply: 8.5 V, vf: 2 V, current: 8 mA)");
+    assert!(close(ranged, 1.0 / 3.0), "{ranged}");
+    assert!(close(at_nominal, 0.125), "{at_nominal}");
+}

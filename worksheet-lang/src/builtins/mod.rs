@@ -224,6 +224,24 @@ pub fn lookup(path: &str) -> Option<&'static Builtin> {
     all().iter().copied().find(|b| b.path == path)
 }
 
+/// The built-in `namespace.name`, if any (`lookup` without building the path).
+pub fn lookup_parts(namespace: &str, name: &str) -> Option<&'static Builtin> {
+    // Compared in place: this runs for every call and field access of every pass.
+    let len = namespace.len() + 1 + name.len();
+    all().iter().copied().find(|b| {
+        b.path.len() == len
+            && b.path.as_bytes()[namespace.len()] == b'.'
+            && b.path.starts_with(namespace)
+            && b.path.ends_with(name)
+    })
+}
+
+/// The built-in a callee expression names, if any.
+pub fn lookup_expr(callee: &crate::ast::Expr) -> Option<&'static Builtin> {
+    let (ns, name) = callee.two_part_path()?;
+    lookup_parts(ns, name)
+}
+
 /// The namespaces (`reg`, `heat`, `res`, `power`).
 pub fn namespaces() -> Vec<&'static str> {
     let mut ns: Vec<&str> = all()
