@@ -50,6 +50,8 @@ pub trait Evaluate {
 pub struct Passes<'e, E: Evaluate> {
     pub eval: &'e mut E,
     memo: HashMap<Vec<u64>, Pass>,
+    /// The key being looked up (reused: most lookups find a pass already run).
+    key: Vec<u64>,
     pub count: usize,
     pub interrupted: bool,
 }
@@ -59,15 +61,10 @@ impl<'e, E: Evaluate> Passes<'e, E> {
         Passes {
             eval,
             memo: HashMap::default(),
+            key: Vec::new(),
             count: 0,
             interrupted: false,
         }
-    }
-
-    fn key(a: &[Interval]) -> Vec<u64> {
-        a.iter()
-            .flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()])
-            .collect()
     }
 
     /// The value of scalar `s` under `a`.
@@ -77,9 +74,11 @@ impl<'e, E: Evaluate> Passes<'e, E> {
 
     /// The value of scalar `s` under `a`, with the derivative of input `seed` carried.
     pub fn at_seeded(&mut self, a: &[Interval], seed: Option<usize>, s: usize) -> Option<Num> {
-        let mut k = Self::key(a);
-        k.push(seed.map_or(u64::MAX, |x| x as u64));
-        if !self.memo.contains_key(&k) {
+        self.key.clear();
+        self.key
+            .extend(a.iter().flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()]));
+        self.key.push(seed.map_or(u64::MAX, |x| x as u64));
+        if !self.memo.contains_key(&self.key) {
             if self.interrupted {
                 return None;
             }
@@ -89,7 +88,7 @@ impl<'e, E: Evaluate> Passes<'e, E> {
                 seed,
             }) {
                 Some(p) => {
-                    self.memo.insert(k.clone(), p);
+                    self.memo.insert(self.key.clone(), p);
                 }
                 None => {
                     self.interrupted = true;
@@ -98,7 +97,7 @@ impl<'e, E: Evaluate> Passes<'e, E> {
             }
         }
         self.memo
-            .get(&k)
+            .get(&self.key)
             .and_then(|p| p.scalars.get(s).copied().flatten())
     }
 

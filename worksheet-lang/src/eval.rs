@@ -300,11 +300,13 @@ impl<'a> Evaluator<'a> {
         hi: f64,
         site_value: impl Fn(Dual) -> R<Num>,
     ) -> R<Num> {
-        let key = join(&[self.stmt_key, "@", &span.start.to_string()]);
-        let label = if self.given {
-            self.stmt_label.to_string()
-        } else {
-            format!("tolerance in {}", self.stmt_label)
+        let mut offset = itoa::Buffer::new();
+        let key = join(&[self.stmt_key, "@", offset.format(span.start)]);
+        // The label is read only where the site is registered, in the nominal pass.
+        let label = match (self.nominal(), self.given) {
+            (false, _) => String::new(),
+            (true, true) => self.stmt_label.to_string(),
+            (true, false) => join(&["tolerance in ", self.stmt_label]),
         };
         let e = self.input(&key, label, nominal, lo, hi)?;
         let n = site_value(e)?;
@@ -796,7 +798,8 @@ impl<'a> Evaluator<'a> {
         }
         // "statement#offset": the call's key, under which its choices, parts and probes
         // are known from pass to pass.
-        let call_key = join(&[self.stmt_key, "#", &span.start.to_string()]);
+        let mut offset = itoa::Buffer::new();
+        let call_key = join(&[self.stmt_key, "#", offset.format(span.start)]);
         if matches!(self.pass.mode, Mode::Box { .. }) && !self.reg.observed.contains_key(&call_key)
         {
             let ranges = slots

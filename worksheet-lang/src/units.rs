@@ -1216,15 +1216,144 @@ pub fn parse_unit(text: &str) -> Result<Unit, UnitError> {
 /// `x` rounded to `sig` significant digits: sign, the digits, and the decimal exponent of
 /// the first digit. Rounding is done by the standard library's exact decimal formatting, so
 /// a value that rounds up to the next power of ten gets the larger exponent (999.7 → 100, 3).
-fn round_sig(x: f64, sig: usize) -> (bool, String, i32) {
+fn round_sig(x: f64, sig: usize) -> (bool, Digits, i32) {
     let sig = sig.clamp(1, 17);
-    let mut s = format!("{:.*e}", sig - 1, x.abs());
-    // "1.23e4": the digits are the mantissa without its point.
+    if let Some((digits, exp)) = round_shortest(x.abs(), sig) {
+        return (x < 0.0, digits, exp);
+    }
+    round_exact(x, sig)
+}
+
+/// `round_sig` from the shortest decimal that reads back as `x` (a fast conversion), where
+/// that is provably the correctly rounded result; None where it may not be (then the exact
+/// conversion decides).
+///
+/// Why it holds: the shortest representation `s` lies in `x`'s rounding interval, and no
+/// rounding boundary of `sig` digits (a tie point `d₁…d_sig5`) can lie strictly between `x`
+/// and `s`: it would lie in the interval too and be a decimal at most as long as `s` and
+/// nearer to `x`, which the shortest-and-nearest rule would have printed instead. So
+/// rounding `s` rounds `x` the same way, except when `s` is itself a tie point (handed to the
+/// exact conversion). When `s` has no more than `sig` digits it is the answer padded with
+/// zeros, provided half a unit in the last of `sig` places exceeds half an ulp of `x`
+/// (relative 5·10⁻¹⁶ against 1.1·10⁻¹⁶): true up to 15 digits, for normal numbers.
+/// (Shortest round-trip output as specified for Schubfach: R. Giulietti, "The Schubfach way
+/// to render doubles", 2020.)
+fn round_shortest(x: f64, sig: usize) -> Option<(Digits, i32)> {
+    use std::fmt::Write;
+    // Subnormal numbers have wide ulps (5e-324 reads back from "5e-324" but is 4.94e-324).
+    if sig > 15 || !x.is_normal() || x <= 0.0 {
+        return None;
+    }
+    let mut buffer = zmij::Buffer::new();
+    let text = buffer.format_finite(x);
+    // "1.234", "0.00012", "1.5e20", "1e-7": significant digits and the power of ten of the
+    // first one.
+    let (mantissa, e) = match text.split_once(['e', 'E']) {
+        Some((m, e)) => (m, e.trim_start_matches('+').parse::<i32>().ok()?),
+        None => (text, 0),
+    };
+    let mut all = [0u8; 40];
+    let mut n = 0usize;
+    let mut point = None;
+    for b in mantissa.bytes() {
+        match b {
+            b'0'..=b'9' => {
+                *all.get_mut(n)? = b;
+                n += 1;
+            }
+            b'.' => point = Some(n),
+            _ => return None,
+        }
+    }
+    let int_len = point.unwrap_or(n) as i32;
+    let lead = all[..n].iter().take_while(|&&b| b == b'0').count();
+    let digits = &all[lead..n];
+    let digits = &digits[..digits.iter().rposition(|&b| b != b'0')? + 1];
+    let mut exp = e + int_len - 1 - lead as i32;
+    let mut kept = [b'0'; 17];
+    if digits.len() <= sig {
+        kept[..digits.len()].copy_from_slice(digits);
+    } else {
+        let dropped = &digits[sig..];
+        if dropped == b"5" {
+            return None;
+        }
+        kept[..sig].copy_from_slice(&digits[..sig]);
+        if dropped[0] >= b'5' {
+            // Round up, carrying; 9.99 → 10.0 moves the exponent.
+            let mut i = sig;
+            loop {
+                if i == 0 {
+                    kept[0] = b'1';
+                    kept[1..sig].fill(b'0');
+                    exp += 1;
+                    break;
+                }
+                i -= 1;
+                if kept[i] == b'9' {
+                    kept[i] = b'0';
+                } else {
+                    kept[i] += 1;
+                    break;
+                }
+            }
+        }
+    }
+    let mut out = Digits::default();
+    out.write_str(std::str::from_utf8(&kept[..sig]).ok()?)
+        .ok()?;
+    Some((out, exp))
+}
+
+/// `round_sig` by the standard library's exact conversion.
+fn round_exact(x: f64, sig: usize) -> (bool, Digits, i32) {
+    use std::fmt::Write;
+    // "1.23e4" (at most 17 digits, a point and a four-character exponent) written on the
+    // stack: this runs for every number shown.
+    let mut text = Digits::default();
+    let _ = write!(text, "{:.*e}", sig - 1, x.abs());
+    let s = text.as_str();
     let at = s.find('e').unwrap_or(s.len());
     let exp = s[at..].get(1..).and_then(|e| e.parse().ok()).unwrap_or(0);
-    s.truncate(at);
-    s.retain(|c| c.is_ascii_digit());
-    (x < 0.0, s, exp)
+    // The digits are the mantissa without its point.
+    let mut digits = Digits::default();
+    for c in s[..at].chars().filter(char::is_ascii_digit) {
+        let _ = digits.write_char(c);
+    }
+    (x < 0.0, digits, exp)
+}
+
+/// A short ASCII text on the stack (the digits of a rounded number).
+#[derive(Default)]
+struct Digits {
+    buf: [u8; 32],
+    len: usize,
+}
+
+impl Digits {
+    fn as_str(&self) -> &str {
+        // Only ASCII is ever written (`write_str` refuses the rest).
+        std::str::from_utf8(&self.buf[..self.len]).unwrap_or("")
+    }
+}
+
+impl std::ops::Deref for Digits {
+    type Target = str;
+    fn deref(&self) -> &str {
+        self.as_str()
+    }
+}
+
+impl std::fmt::Write for Digits {
+    fn write_str(&mut self, s: &str) -> std::fmt::Result {
+        let end = self.len + s.len();
+        if !s.is_ascii() || end > self.buf.len() {
+            return Err(std::fmt::Error);
+        }
+        self.buf[self.len..end].copy_from_slice(s.as_bytes());
+        self.len = end;
+        Ok(())
+    }
 }
 
 /// Decimal text of the digits `d₁d₂…` with `d₁` at 10^exp. Plain decimals for
@@ -1328,7 +1457,7 @@ fn format_prefixed(value: f64, unit: &str, prefixes: &[i32], sig: usize) -> Stri
 fn format_time(si: f64, sig: usize) -> String {
     if si.is_finite() && si != 0.0 {
         let (_, digits, exp) = round_sig(si, sig);
-        let rounded: f64 = format!("{}e{}", digits, exp - digits.len() as i32 + 1)
+        let rounded: f64 = format!("{}e{}", &*digits, exp - digits.len() as i32 + 1)
             .parse()
             .unwrap_or(si.abs());
         if rounded >= 3600.0 {
@@ -1406,4 +1535,66 @@ pub fn symbols() -> Vec<&'static str> {
 /// True when `text` is a single unit symbol, possibly prefixed (`mA`, `uF`, `°C`, `ohm`).
 pub fn is_unit_symbol(text: &str) -> bool {
     text.chars().all(is_unit_char) && resolve_atom(text).is_ok()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    fn both(x: f64, sig: usize) -> ((bool, String, i32), (bool, String, i32)) {
+        let (n, d, e) = round_sig(x, sig);
+        let (m, f, g) = round_exact(x, sig);
+        ((n, d.to_string(), e), (m, f.to_string(), g))
+    }
+
+    #[test]
+    fn ties_and_carries_round_as_the_exact_conversion() {
+        // Exact binary ties (0.125, 2.5, 0.375) go to the exact conversion; 0.15 and 9.995
+        // are not ties in binary; 9.96 and 999.5 carry into the next power of ten.
+        for (x, sig) in [
+            (0.125, 2),
+            (2.5, 1),
+            (0.375, 2),
+            (0.15, 1),
+            (9.995, 3),
+            (9.96, 2),
+            (999.5, 3),
+            (-4.7e3, 3),
+            (1e-300, 3),
+            (1.7976931348623157e308, 3),
+            (5e-324, 3),
+            (0.1, 15),
+            (0.1, 17),
+        ] {
+            let (fast, exact) = both(x, sig);
+            assert_eq!(fast, exact, "{x} to {sig} digits");
+        }
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(20_000))]
+
+        #[test]
+        fn any_double_rounds_as_the_exact_conversion(
+            bits in prop_oneof![any::<u64>(), 1u64..(1u64 << 53)],
+            sig in 1usize..=17,
+        ) {
+            // Any bit pattern, and the subnormal range.
+            let x = f64::from_bits(bits);
+            prop_assume!(x.is_finite() && x != 0.0);
+            let (fast, exact) = both(x, sig);
+            prop_assert_eq!(fast, exact);
+        }
+
+        #[test]
+        fn short_decimals_round_as_the_exact_conversion(
+            n in 1u64..2_000_000, k in -30i32..30, sig in 1usize..=8,
+        ) {
+            // Values written with few digits, as worksheets hold them: ties are common here.
+            let x: f64 = format!("{n}e{k}").parse().unwrap();
+            let (fast, exact) = both(x, sig);
+            prop_assert_eq!(fast, exact);
+        }
+    }
 }

@@ -485,6 +485,8 @@ struct DefEntry {
 struct CheckEntry {
     cell: usize,
     key: String,
+    /// The keys its two sides and their difference are recorded under (`KEY:lhs`, …).
+    side_keys: [String; 3],
     lhs: Expr,
     op: CmpOp,
     rhs: Expr,
@@ -679,6 +681,7 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                     m.items[ci].push(Item::Check(m.checks.len()));
                     m.checks.push(CheckEntry {
                         cell: ci,
+                        side_keys: [":lhs", ":rhs", ":diff"].map(|side| eval::join(&[&key, side])),
                         key,
                         lhs: lhs.clone(),
                         op: *op,
@@ -1120,9 +1123,10 @@ impl Runner<'_> {
                         e.message = format!("the two sides cannot be compared: {}", e.message);
                         e
                     })?;
-                ev.record(&eval::join(&[&c.key, ":lhs"]), a);
-                ev.record(&eval::join(&[&c.key, ":rhs"]), b);
-                ev.record(&eval::join(&[&c.key, ":diff"]), diff);
+                let [lhs_key, rhs_key, diff_key] = &c.side_keys;
+                ev.record(lhs_key, a);
+                ev.record(rhs_key, b);
+                ev.record(diff_key, diff);
                 Ok(())
             })();
             let notes = std::mem::take(&mut ev.notes);
@@ -1716,11 +1720,10 @@ fn evaluate(
 }
 
 fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
-    let lk = format!("{}:lhs", c.key);
-    let rk = format!("{}:rhs", c.key);
-    let (lhs, _) = an.scalar(&lk)?;
-    let (rhs, _) = an.scalar(&rk)?;
-    let (diff, b) = an.scalar(&format!("{}:diff", c.key))?;
+    let [lk, rk, dk] = &c.side_keys;
+    let (lhs, _) = an.scalar(lk)?;
+    let (rhs, _) = an.scalar(rk)?;
+    let (diff, b) = an.scalar(dk)?;
     let le = matches!(c.op, CmpOp::Lt | CmpOp::Le);
     let (worst_diff, at) = match &b {
         Some(b) if le => (b.max, Some(b.max_at.clone())),
@@ -1735,7 +1738,7 @@ fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
     };
     let margin = if le { -worst_diff } else { worst_diff };
     let (worst, limit) = match at {
-        Some(a) => (an.at(&a, &lk).unwrap_or(lhs), an.at(&a, &rk).unwrap_or(rhs)),
+        Some(a) => (an.at(&a, lk).unwrap_or(lhs), an.at(&a, rk).unwrap_or(rhs)),
         None => (lhs, rhs),
     };
     let (worst_text, limit_text) = side_texts(worst, limit);

@@ -16,7 +16,8 @@ use bytes::Bytes;
 use jupyter_zmq_client::RawMessage;
 use ring::hmac;
 use serde::Serialize;
-use serde_json::{json, Map, Value};
+use serde_json::{Map, Value};
+use std::sync::atomic::{AtomicU64, Ordering};
 use zeromq::ZmqMessage;
 
 /// The protocol version this kernel speaks.
@@ -86,6 +87,20 @@ pub(crate) fn decode(frames: ZmqMessage, key: &Option<hmac::Key>) -> Result<Inco
 pub(crate) struct Session {
     pub id: String,
     key: Option<hmac::Key>,
+    /// Messages sent so far: a message's id is the session's id and this count, unique
+    /// without asking the system for randomness per message.
+    sent: AtomicU64,
+}
+
+/// The header of a message we send, serialised straight from its fields.
+#[derive(Serialize)]
+struct Header<'a> {
+    msg_id: &'a str,
+    username: &'static str,
+    session: &'a str,
+    date: &'a str,
+    msg_type: &'a str,
+    version: &'static str,
 }
 
 impl Session {
@@ -93,6 +108,7 @@ impl Session {
         Session {
             id: uuid::Uuid::new_v4().to_string(),
             key,
+            sent: AtomicU64::new(0),
         }
     }
 
@@ -119,17 +135,18 @@ impl Session {
         metadata: &Value,
         content: &Value,
     ) -> ZmqMessage {
-        let header = json!({
-            "msg_id": uuid::Uuid::new_v4().to_string(),
-            "username": "headroom",
-            "session": self.id,
-            "date": now_iso8601(),
-            "msg_type": msg_type,
-            "version": PROTOCOL_VERSION,
-        });
+        let n = self.sent.fetch_add(1, Ordering::Relaxed);
+        let header = Header {
+            msg_id: &format!("{}_{n}", self.id),
+            username: "headroom",
+            session: &self.id,
+            date: &now_iso8601(),
+            msg_type,
+            version: PROTOCOL_VERSION,
+        };
         let empty = Value::Object(Map::new());
         let parts = [
-            to_bytes(&header),
+            Bytes::from(serde_json::to_vec(&header).unwrap_or_default()),
             to_bytes(parent.unwrap_or(&empty)),
             to_bytes(metadata),
             to_bytes(content),
@@ -182,7 +199,8 @@ pub(crate) fn now_iso8601() -> String {
 fn iso8601(since_epoch: std::time::Duration) -> String {
     let secs = i64::try_from(since_epoch.as_secs()).unwrap_or(0);
     match chrono::DateTime::from_timestamp(secs, since_epoch.subsec_nanos()) {
-        Some(t) => t.format("%Y-%m-%dT%H:%M:%S%.6fZ").to_string(),
+        // A fixed format (no format string to interpret for every message).
+        Some(t) => t.to_rfc3339_opts(chrono::SecondsFormat::Micros, true),
         None => "1970-01-01T00:00:00.000000Z".to_string(),
     }
 }
@@ -204,6 +222,7 @@ pub(crate) fn content<T: Serialize>(value: &T, objects: &[&str]) -> Value {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use serde_json::json;
     use std::time::Duration;
 
     #[test]
@@ -250,6 +269,12 @@ mod tests {
         assert_eq!(m.identities, id.to_vec());
         assert_eq!(m.header["version"], PROTOCOL_VERSION);
         assert_eq!(m.header["session"], s.id.as_str());
+        assert_eq!(m.header["username"], "headroom");
+        let date = m.header["date"].as_str().expect("a date");
+        assert_eq!(date.len(), "2023-11-14T22:13:20.123456Z".len(), "{date}");
+        // Every message has its own id.
+        let again = decode(s.encode(&id, "status", None, &json!({})), &key).expect("verifies");
+        assert_ne!(again.header["msg_id"], m.header["msg_id"]);
         // A different key must not verify.
         let other = Some(hmac::Key::new(hmac::HMAC_SHA256, b"other"));
         assert!(decode(frames, &other).is_err());
