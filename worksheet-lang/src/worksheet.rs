@@ -423,10 +423,12 @@ fn changes(old: Option<&CellReport>, new: &CellReport) -> Vec<Change> {
         Some(r) => format!("{} ({r})", v.text),
         None => v.text.clone(),
     };
+    // Same shown value: the same text and range (compared without building the texts).
+    let same = |a: &ValueRow, b: &ValueRow| a.text == b.text && a.range_text == b.range_text;
     for v in &new.values {
         let before = old.and_then(|o| o.values.iter().find(|x| x.name == v.name));
         match before {
-            Some(b) if text(b) == text(v) => {}
+            Some(b) if same(b, v) => {}
             Some(b) => out.push(Change {
                 name: v.name.clone(),
                 old: text(b),
