@@ -37,8 +37,9 @@ pub struct ScalarBounds {
     pub max_at: Vec<Interval>,
     /// The inputs the value depends on.
     pub depends: Vec<usize>,
-    /// Each dependency's one-at-a-time swing |f(hi) − f(lo)|, in the order of `depends`.
-    pub swings: Vec<f64>,
+    /// Each dependency's one-at-a-time half swing |f(hi) − f(lo)| / 2, in the order of
+    /// `depends` (halved before subtracting, so two finite ends never overflow).
+    pub half_swings: Vec<f64>,
 }
 
 /// Evaluates the worksheet under an assignment; returns the scalars of that pass.
@@ -222,7 +223,7 @@ pub fn analyse<E: Evaluate>(
                 !(lo_exact && hi_exact),
             )
         };
-        let mut swings = Vec::with_capacity(depends.len());
+        let mut half_swings = Vec::with_capacity(depends.len());
         for &k in &depends {
             let mut a = nominal_point.clone();
             a[k] = Interval::point(reg.inputs[k].lo);
@@ -232,8 +233,8 @@ pub fn analyse<E: Evaluate>(
             if passes.interrupted {
                 return None;
             }
-            swings.push(match (f_lo, f_hi) {
-                (Some(a), Some(b)) => (b - a).abs(),
+            half_swings.push(match (f_lo, f_hi) {
+                (Some(a), Some(b)) => (0.5 * b - 0.5 * a).abs(),
                 _ => 0.0,
             });
         }
@@ -244,7 +245,7 @@ pub fn analyse<E: Evaluate>(
             min_at,
             max_at,
             depends,
-            swings,
+            half_swings,
         });
     }
     Some(out)

@@ -1306,11 +1306,15 @@ impl Analysed<'_, '_> {
     }
 
     fn bounds_of(&self, b: &ScalarBounds) -> Bounds {
-        let total: f64 = b.swings.iter().sum();
+        // Scaled by the largest swing, so sums and squares of swings near the largest
+        // finite number stay finite.
+        let largest = b.half_swings.iter().copied().fold(0.0, f64::max);
+        let scaled = |h: f64| if largest > 0.0 { h / largest } else { 0.0 };
+        let total: f64 = b.half_swings.iter().map(|&h| scaled(h)).sum();
         let mut shares: Vec<Share> = Vec::new();
-        for (k, s) in b.depends.iter().zip(&b.swings) {
+        for (k, &h) in b.depends.iter().zip(&b.half_swings) {
             let label = &self.reg.inputs[*k].label;
-            let f = if total > 0.0 { s / total } else { 0.0 };
+            let f = if total > 0.0 { scaled(h) / total } else { 0.0 };
             match shares.iter_mut().find(|x| &x.input == label) {
                 Some(x) => x.fraction += f,
                 None => shares.push(Share {
@@ -1325,12 +1329,14 @@ impl Analysed<'_, '_> {
             max: b.max,
             conservative: b.conservative,
             shares,
-            rss: b
-                .swings
-                .iter()
-                .map(|s| (s / 2.0).powi(2))
-                .sum::<f64>()
-                .sqrt(),
+            // √Σ(swing/2)²; an RSS beyond the largest finite number is shown as that number.
+            rss: (largest
+                * b.half_swings
+                    .iter()
+                    .map(|&h| scaled(h).powi(2))
+                    .sum::<f64>()
+                    .sqrt())
+            .min(f64::MAX),
         }
     }
 

@@ -546,3 +546,31 @@ fn a_choice_reads_exact_arguments_as_points_and_uncertain_ones_as_ranges() {
     assert!(close(ranged, 1.0 / 3.0), "{ranged}");
     assert!(close(at_nominal, 0.125), "{at_nominal}");
 }
+
+/// Swings between the ends of the floating-point range stay finite: shares and the RSS
+/// spread of `1e-308 ± 1e308` (ends ±1e308, a swing of 2e308) are numbers.
+#[test]
+fn spreads_near_the_largest_number_stay_finite() {
+    let r = run("x = 1e-308 ± 1e308\ny = x / 2");
+    assert!(r.diagnostics.is_empty(), "{:?}", r.diagnostics);
+    for name in ["x", "y"] {
+        let row = r.values.iter().find(|v| v.name == name).expect("row");
+        let Shown::Number {
+            bounds: Some(b), ..
+        } = &row.shown
+        else {
+            panic!("{name} has no bounds: {:?}", row.shown);
+        };
+        assert!(b.rss.is_finite(), "{name}: rss {}", b.rss);
+        assert!(b.shares.iter().all(|s| s.fraction.is_finite()), "{name}");
+    }
+    // x: half its swing is 1e308, the RSS of one input.
+    let x = r.values.iter().find(|v| v.name == "x").expect("x");
+    if let Shown::Number {
+        bounds: Some(b), ..
+    } = &x.shown
+    {
+        assert!(close(b.rss, 1e308), "{}", b.rss);
+        assert!(close(b.shares[0].fraction, 1.0));
+    }
+}
