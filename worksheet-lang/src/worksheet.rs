@@ -64,8 +64,10 @@ pub struct CellUpdate {
 #[derive(Debug, Clone)]
 pub(crate) struct Cell {
     pub key: String,
-    pub source: String,
-    pub program: Program,
+    /// Shared: each run works on a copy of the worksheet's cells (kept as they were if it
+    /// fails), and copying a cell must not copy its text and syntax tree.
+    pub source: Arc<str>,
+    pub program: Arc<Program>,
     /// When it was last run (a counter), to settle a name defined in two cells.
     pub last_run: u64,
 }
@@ -145,8 +147,8 @@ impl Worksheet {
         let mut cells = self.cells.clone();
         let new_cell = Cell {
             key: key.clone(),
-            source: source.to_string(),
-            program,
+            source: Arc::from(source),
+            program: Arc::new(program),
             last_run: self.runs,
         };
         match cells.iter_mut().find(|c| c.key == key) {
@@ -1554,7 +1556,7 @@ fn evaluate(
         .enumerate()
         .map(|(ci, c)| CellReport {
             cell: c.key.clone(),
-            source: c.source.clone(),
+            source: c.source.to_string(),
             diagnostics: model.diags[ci].clone(),
             ..CellReport::default()
         })
