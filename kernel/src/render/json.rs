@@ -13,11 +13,12 @@ use worksheet_lang::units::Dim;
 pub(super) const MAX_SWEEP_POINTS: usize = 1000;
 
 pub(super) fn results(reports: &[&CellReport]) -> Value {
-    let values: Vec<ValueRow> = reports.iter().flat_map(|r| r.values.clone()).collect();
-    let checks: Vec<CheckRow> = reports.iter().flat_map(|r| r.checks.clone()).collect();
-    let warnings: Vec<WarningRow> = reports.iter().flat_map(|r| r.warnings.clone()).collect();
-    let sweeps: Vec<SweepTable> = reports.iter().flat_map(|r| r.sweeps.clone()).collect();
-    results_of(&values, &checks, &warnings, &sweeps)
+    document(
+        reports.iter().flat_map(|r| &r.values),
+        reports.iter().flat_map(|r| &r.checks),
+        reports.iter().flat_map(|r| &r.warnings),
+        reports.iter().flat_map(|r| &r.sweeps),
+    )
 }
 
 pub(super) fn results_of(
@@ -26,15 +27,25 @@ pub(super) fn results_of(
     warnings: &[WarningRow],
     sweeps: &[SweepTable],
 ) -> Value {
+    document(values, checks, warnings, sweeps)
+}
+
+/// The results document of rows read in place (no copy of the reports).
+fn document<'a>(
+    values: impl IntoIterator<Item = &'a ValueRow>,
+    checks: impl IntoIterator<Item = &'a CheckRow>,
+    warnings: impl IntoIterator<Item = &'a WarningRow>,
+    sweeps: impl IntoIterator<Item = &'a SweepTable>,
+) -> Value {
     json!({
         "version": 1,
-        "values": values.iter().map(value).collect::<Vec<_>>(),
-        "checks": checks.iter().map(check).collect::<Vec<_>>(),
+        "values": values.into_iter().map(value).collect::<Vec<_>>(),
+        "checks": checks.into_iter().map(check).collect::<Vec<_>>(),
         "warnings": warnings
-            .iter()
+            .into_iter()
             .map(|w| json!({ "source": w.source, "text": w.text }))
             .collect::<Vec<_>>(),
-        "sweeps": sweeps.iter().map(sweep).collect::<Vec<_>>(),
+        "sweeps": sweeps.into_iter().map(sweep).collect::<Vec<_>>(),
     })
 }
 
