@@ -384,18 +384,16 @@ impl<'a> Evaluator<'a> {
             ExprKind::Range { lo, hi } => self.range(lo, hi, &e.span),
             ExprKind::Call { callee, args } => self.call(callee, args, &e.span),
             ExprKind::Field { base, field } => {
-                {
-                    if let Some(b) = builtins::lookup_expr(e) {
-                        return Err(EvalError::new(
-                            DiagKind::TypeMismatch,
-                            &e.span,
-                            format!(
-                                "`{}` is a built-in function; call it with arguments",
-                                b.path
-                            ),
-                        )
-                        .hint(format!("write `{}`", b.doc.signature)));
-                    }
+                if let Some(b) = builtins::lookup_expr(e) {
+                    return Err(EvalError::new(
+                        DiagKind::TypeMismatch,
+                        &e.span,
+                        format!(
+                            "`{}` is a built-in function; call it with arguments",
+                            b.path
+                        ),
+                    )
+                    .hint(format!("write `{}`", b.doc.signature)));
                 }
                 match self.eval(base)? {
                     Value::Record(r) => match r.get(&field.name) {
