@@ -526,6 +526,8 @@ struct Model {
     index: HashMap<String, usize>,
     funcs: HashMap<String, Function>,
     order: Vec<usize>,
+    /// The definitions each definition reads by name (also inside the functions it calls).
+    deps: Vec<Vec<usize>>,
     checks: Vec<CheckEntry>,
     shows: Vec<ShowEntry>,
     sweeps: Vec<SweepEntry>,
@@ -547,6 +549,7 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
         index: HashMap::default(),
         funcs: HashMap::default(),
         order: Vec::new(),
+        deps: Vec::new(),
         checks: Vec::new(),
         shows: Vec::new(),
         sweeps: Vec::new(),
@@ -864,6 +867,7 @@ fn order_definitions(m: &mut Model) {
         m.defs[d].certain = certain;
     }
     m.order = order;
+    m.deps = deps;
 }
 
 // ---------------------------------------------------------------------------------------
@@ -930,6 +934,48 @@ struct Runner<'m> {
     cache: HashMap<(usize, Vec<u64>), CachedDef>,
     /// The scalar ids of each definition's numeric leaves, from the nominal pass.
     leaves: Vec<Option<Vec<usize>>>,
+    /// The inputs each definition registered itself in the nominal pass (its tolerance
+    /// sites and parts), and, once the box passes start, every input it can reach: its own
+    /// and those of the definitions it reads (`reach`).
+    own_inputs: Vec<std::ops::Range<usize>>,
+    reach: Option<Vec<Vec<usize>>>,
+    /// The definitions whose nominal evaluation succeeded.
+    nominal_ok: Vec<bool>,
+    /// Each definition's value and recorded scalars in the latest box pass.
+    boxed_value: Vec<Option<CachedDef>>,
+}
+
+/// A value with every derivative set to zero: what a definition that cannot reach an input
+/// computes in the box pass that carries that input's derivative (the value's intervals do
+/// not depend on which derivative is carried).
+fn without_derivative(v: &Value) -> Value {
+    match v {
+        Value::Num(n) => Value::Num(flat(*n)),
+        Value::Record(r) => Value::Record(std::sync::Arc::new(crate::value::Record {
+            kind: r.kind,
+            fields: r
+                .fields
+                .iter()
+                .map(|f| crate::value::Field {
+                    name: f.name,
+                    value: without_derivative(&f.value),
+                    display: f.display,
+                })
+                .collect(),
+        })),
+        Value::List(items) => Value::List(items.iter().map(without_derivative).collect()),
+        Value::Str(_) | Value::Series(_) => v.clone(),
+    }
+}
+
+fn flat(n: Num) -> Num {
+    Num {
+        x: crate::num::Dual {
+            v: n.x.v,
+            d: Interval::ZERO,
+        },
+        ..n
+    }
 }
 
 /// The numbers of a value in the order `Evaluator::record_value` records them.
@@ -971,6 +1017,31 @@ impl Runner<'_> {
         Some((d, key))
     }
 
+    /// Every input each definition can reach: the ones it registered in the nominal pass and
+    /// those of the definitions it reads, in dependency order. A superset of what it depends
+    /// on (a definition that failed in the nominal pass reaches every input).
+    fn reachable_inputs(&self) -> Vec<Vec<usize>> {
+        let model = self.model;
+        let all: Vec<usize> = (0..self.reg.inputs.len()).collect();
+        let mut reach: Vec<Option<Vec<usize>>> = vec![None; model.defs.len()];
+        for &d in &model.order {
+            let failed = !self.nominal_ok[d];
+            let mut r: Vec<usize> = if failed {
+                all.clone()
+            } else {
+                self.own_inputs[d].clone().collect()
+            };
+            for &dep in &model.deps[d] {
+                // A dependency not settled before (a cycle) may reach anything.
+                r.extend(reach[dep].as_deref().unwrap_or(&all));
+            }
+            r.sort_unstable();
+            r.dedup();
+            reach[d] = Some(r);
+        }
+        reach.into_iter().map(Option::unwrap_or_default).collect()
+    }
+
     fn fail(&mut self, id: StmtId, e: EvalError) {
         self.errors.entry(id).or_insert(e);
     }
@@ -983,8 +1054,29 @@ impl Runner<'_> {
         let model = self.model;
         let mut pass = Pass::new(mode, self.reg.scalar_keys.len());
         let mut values: Vec<Option<Result<Value, String>>> = vec![None; model.defs.len()];
+        let seed = match pass.mode {
+            Mode::Box { seed } => seed,
+            _ => None,
+        };
+        if seed.is_some() && self.reach.is_none() {
+            self.reach = Some(self.reachable_inputs());
+        }
         for &d in &model.order {
             let def = &model.defs[d];
+            // In the box pass that carries input k's derivative, a definition that cannot
+            // reach k has the value it had in the previous box pass, with no derivative.
+            if let (Some(k), Some(reach), Some((v, recorded))) =
+                (seed, self.reach.as_ref(), self.boxed_value[d].as_ref())
+            {
+                if !reach[d].contains(&k) {
+                    for &(id, n) in recorded {
+                        pass.set_scalar(id, flat(n));
+                    }
+                    values[d] = Some(Ok(without_derivative(v)));
+                    self.boxed[d] += 1;
+                    continue;
+                }
+            }
             if let Some(e) = &def.static_error {
                 if nominal {
                     self.fail(StmtId::Def(d), e.clone());
@@ -1003,6 +1095,7 @@ impl Runner<'_> {
                 continue;
             }
             let first_touched = pass.touched.len();
+            let first_input = self.reg.inputs.len();
             let result = if let Some((_, pv)) = self.pins.iter().find(|(pd, _)| *pd == d) {
                 Ok(Value::Num(*pv))
             } else {
@@ -1069,14 +1162,22 @@ impl Runner<'_> {
                             }
                         }
                     }
-                    let mut recorded = pass.touched[first_touched..]
+                    if nominal {
+                        self.own_inputs[d] = first_input..self.reg.inputs.len();
+                        self.nominal_ok[d] = true;
+                    }
+                    let recorded = pass.touched[first_touched..]
                         .iter()
                         .filter_map(|&id| pass.scalars[id].map(|n| (id, n)));
-                    if let Mode::Box { seed: Some(k) } = pass.mode {
-                        if recorded.any(|(_, n)| n.x.d != Interval::ZERO) {
-                            self.depends[d].push(k);
+                    if let Mode::Box { seed } = pass.mode {
+                        let recorded: Vec<(usize, Num)> = recorded.collect();
+                        if let Some(k) = seed {
+                            if recorded.iter().any(|(_, n)| n.x.d != Interval::ZERO) {
+                                self.depends[d].push(k);
+                            }
+                            self.boxed[d] += 1;
                         }
-                        self.boxed[d] += 1;
+                        self.boxed_value[d] = Some((v.clone(), recorded));
                     } else if let Some(key) = cache_key {
                         self.cache.insert(key, (v.clone(), recorded.collect()));
                     }
@@ -1278,6 +1379,10 @@ impl<'m> Runner<'m> {
             boxed: vec![0; model.defs.len()],
             cache: HashMap::default(),
             leaves: vec![None; model.defs.len()],
+            own_inputs: vec![0..0; model.defs.len()],
+            nominal_ok: vec![false; model.defs.len()],
+            reach: None,
+            boxed_value: vec![None; model.defs.len()],
         }
     }
 }

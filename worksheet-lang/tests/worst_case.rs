@@ -135,7 +135,31 @@ proptest! {
             src.push_str(&format!("given x{i} = {} .. {}\n", lo[i], hi[i]));
         }
         src.push_str(&format!("y = {}\n", source(&e, &down)));
+        // The same expression through one definition per input, beside definitions that
+        // each reach one input only: a box pass reuses what cannot reach its input, and the
+        // bounds must not change.
+        for i in 0..n {
+            src.push_str(&format!("h{i} = x{i}\nz{i} = 2 * x{i} + 1\n"));
+        }
+        // Each input name `xN` becomes `hN` (`max` keeps its x: no digit follows).
+        let text = source(&e, &down);
+        let through: String = text
+            .char_indices()
+            .map(|(j, c)| {
+                let digit_next = text[j + 1..].starts_with(|d: char| d.is_ascii_digit());
+                if c == 'x' && digit_next { 'h' } else { c }
+            })
+            .collect();
+        src.push_str(&format!("y2 = {through}\n"));
         let (_, min, max, conservative) = bounds(&src, "y");
+        let (_, min2, max2, conservative2) = bounds(&src, "y2");
+        prop_assert!(close(min, min2) && close(max, max2) && conservative == conservative2,
+            "y {min}..{max} and y2 {min2}..{max2} differ: {src}");
+        for i in 0..n {
+            let (_, zmin, zmax, _) = bounds(&src, &format!("z{i}"));
+            prop_assert!(close(zmin, 2.0 * lo[i] + 1.0) && close(zmax, 2.0 * hi[i] + 1.0),
+                "z{i} {zmin}..{zmax}: {src}");
+        }
         let mut bmin = f64::INFINITY;
         let mut bmax = f64::NEG_INFINITY;
         for mask in 0u32..(1 << n) {
