@@ -1236,8 +1236,9 @@ fn round_sig(x: f64, sig: usize) -> (bool, Digits, i32) {
 /// exact conversion). When `s` has no more than `sig` digits it is the answer padded with
 /// zeros, provided half a unit in the last of `sig` places exceeds half an ulp of `x`
 /// (relative 5·10⁻¹⁶ against 1.1·10⁻¹⁶): true up to 15 digits, for normal numbers.
-/// (Shortest round-trip output as specified for Schubfach: R. Giulietti, "The Schubfach way
-/// to render doubles", 2020.)
+/// (Shortest round-trip output as specified for Schubfach, from memory: R. Giulietti, "The
+/// Schubfach way to render doubles", 2020. The property tests below check the claim against
+/// the exact conversion.)
 fn round_shortest(x: f64, sig: usize) -> Option<(Digits, i32)> {
     use std::fmt::Write;
     // Subnormal numbers have wide ulps (5e-324 reads back from "5e-324" but is 4.94e-324).
