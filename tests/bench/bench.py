@@ -39,6 +39,8 @@ PYTHON_KERNEL = "bench-python"
 
 # A sweep is run at 10⁶ points only when a smaller run says it takes at most this long.
 SWEEP_POINTS = 1_000_000
+# Round trips alternate between the two kernels in blocks of this many executions.
+ROUND_TRIP_BLOCK = 10
 SWEEP_BUDGET_S = 120.0
 SWEEP_RANGE = "7 V .. 16 V"
 
@@ -210,36 +212,55 @@ def start_and_memory(workdir, reps):
 
 
 def round_trips(workdir, reps):
-    """Figures 2 and 3 (round trips, and each kernel's compute time): one kernel of each, warmed."""
+    """Figures 2 and 3 (round trips, and each kernel's compute time): one kernel of each, both
+    warmed, measured in alternating blocks so that both see the machine in the same state
+    (its speed drifts over a run)."""
     reference_hrw = (CELLS / "reference.hrw").read_text()
     setup_py = (PYTHON / "setup_cell.py").read_text()
     reference_py = (PYTHON / "reference_cell.py").read_text()
-    result = {}
-    for name in (HEADROOM_KERNEL, PYTHON_KERNEL):
-        k = Kernel(name, workdir)
-        try:
+    cells = {HEADROOM_KERNEL: reference_hrw, PYTHON_KERNEL: reference_py}
+    result = {name: {"trivial": [], "cell": [], "compute": []} for name in cells}
+    kernels = {}
+    try:
+        for name in cells:
+            k = Kernel(name, workdir)
+            kernels[name] = k
             k.start()
             if name == PYTHON_KERNEL:
                 k.execute(setup_py, "setup")
-            cell = reference_hrw if name == HEADROOM_KERNEL else reference_py
-            trivial, ref, compute = [], [], []
-            for i in range(reps["trivial"] + 5):
-                t, _ = k.execute("1 + 1", "trivial")
-                if i >= 5:
-                    trivial.append(t)
-            for i in range(reps["cell"] + 3):
-                t, out = k.execute(cell, "reference")
-                if i >= 3:
-                    ref.append(t)
+            for _ in range(5):
+                k.execute("1 + 1", "trivial")
+            for _ in range(3):
+                k.execute(cells[name], "reference")
+
+        def block(kind, count):
+            for name, k in kernels.items():
+                r = result[name]
+                for _ in range(count):
+                    if kind == "trivial":
+                        t, _ = k.execute("1 + 1", "trivial")
+                        r["trivial"].append(t)
+                        continue
+                    t, out = k.execute(cells[name], "reference")
+                    r["cell"].append(t)
                     m = re.search(r"bench-compute-seconds (\S+)", out)
                     if m:
-                        compute.append(float(m.group(1)))
+                        r["compute"].append(float(m.group(1)))
                     # Headroom's evaluation time, from its timer around `Worksheet::execute`.
                     hr = k.last_reply_metadata.get("headroom", {})
                     if "evaluation_seconds" in hr:
-                        compute.append(float(hr["evaluation_seconds"]))
-            result[name] = {"trivial": trivial, "cell": ref, "compute": compute}
-        finally:
+                        r["compute"].append(float(hr["evaluation_seconds"]))
+
+        for kind in ("trivial", "cell"):
+            total = reps[kind]
+            size = max(1, min(ROUND_TRIP_BLOCK, total))
+            done = 0
+            while done < total:
+                n = min(size, total - done)
+                block(kind, n)
+                done += n
+    finally:
+        for k in kernels.values():
             k.stop()
     return result
 
@@ -477,7 +498,8 @@ def main():
     notes = [
         "Medians of repeated runs: "
         f"{reps['start']} kernel starts each (interleaved), {reps['trivial']} trivial and "
-        f"{reps['cell']} reference-cell executions per kernel after warm-up, "
+        f"{reps['cell']} reference-cell executions per kernel after warm-up (the two kernels "
+        f"alternating in blocks of {ROUND_TRIP_BLOCK}), "
         f"{reps['compute']} in-process evaluations, {reps['headroom_run']} `headroom run` and "
         f"{reps['papermill']} papermill reruns. Ratio = Headroom ÷ reference; smaller is better.",
         "Client: jupyter_client with every socket's reconnect interval at 1 ms, connected "
