@@ -78,7 +78,10 @@ impl Folded {
         if folded.end <= folded.start {
             return start..start;
         }
-        let last = folded.end.min(self.text.len()) - 1;
+        // A span past the end of an empty text has nothing to end on.
+        let Some(last) = folded.end.min(self.text.len()).checked_sub(1) else {
+            return start..start;
+        };
         let end = if self.ends.is_empty() {
             let at = floor_boundary(&self.text, last);
             at + self.text[at..].chars().next().map_or(1, char::len_utf8)
@@ -170,6 +173,12 @@ mod tests {
                 }
             }
         }
+    }
+
+    #[test]
+    fn a_span_past_the_end_of_an_empty_text_is_empty() {
+        assert_eq!(fold("").span(0..1), 0..0);
+        assert_eq!(fold_with_map("").span(0..1), 0..0);
     }
 
     #[test]
