@@ -1240,7 +1240,6 @@ fn round_sig(x: f64, sig: usize) -> (bool, Digits, i32) {
 /// Schubfach way to render doubles", 2020. The property tests below check the claim against
 /// the exact conversion.)
 fn round_shortest(x: f64, sig: usize) -> Option<(Digits, i32)> {
-    use std::fmt::Write;
     // Subnormal numbers have wide ulps (5e-324 reads back from "5e-324" but is 4.94e-324).
     if sig > 15 || !x.is_normal() || x <= 0.0 {
         return None;
@@ -1300,9 +1299,7 @@ fn round_shortest(x: f64, sig: usize) -> Option<(Digits, i32)> {
             }
         }
     }
-    let mut out = Digits::default();
-    out.write_str(std::str::from_utf8(&kept[..sig]).ok()?)
-        .ok()?;
+    let out = Digits::from(std::str::from_utf8(&kept[..sig]).ok()?).ok()?;
     Some((out, exp))
 }
 
@@ -1311,51 +1308,22 @@ fn round_exact(x: f64, sig: usize) -> (bool, Digits, i32) {
     use std::fmt::Write;
     // "1.23e4" (at most 17 digits, a point and a four-character exponent) written on the
     // stack: this runs for every number shown.
-    let mut text = Digits::default();
+    let mut text = Digits::new();
     let _ = write!(text, "{:.*e}", sig - 1, x.abs());
     let s = text.as_str();
     let at = s.find('e').unwrap_or(s.len());
     let exp = s[at..].get(1..).and_then(|e| e.parse().ok()).unwrap_or(0);
     // The digits are the mantissa without its point.
-    let mut digits = Digits::default();
+    let mut digits = Digits::new();
     for c in s[..at].chars().filter(char::is_ascii_digit) {
-        let _ = digits.write_char(c);
+        let _ = digits.try_push(c);
     }
     (x < 0.0, digits, exp)
 }
 
-/// A short ASCII text on the stack (the digits of a rounded number).
-#[derive(Default)]
-struct Digits {
-    buf: [u8; 32],
-    len: usize,
-}
-
-impl Digits {
-    fn as_str(&self) -> &str {
-        // Only ASCII is ever written (`write_str` refuses the rest).
-        std::str::from_utf8(&self.buf[..self.len]).unwrap_or("")
-    }
-}
-
-impl std::ops::Deref for Digits {
-    type Target = str;
-    fn deref(&self) -> &str {
-        self.as_str()
-    }
-}
-
-impl std::fmt::Write for Digits {
-    fn write_str(&mut self, s: &str) -> std::fmt::Result {
-        let end = self.len + s.len();
-        if !s.is_ascii() || end > self.buf.len() {
-            return Err(std::fmt::Error);
-        }
-        self.buf[self.len..end].copy_from_slice(s.as_bytes());
-        self.len = end;
-        Ok(())
-    }
-}
+/// The digits of a rounded number, on the stack (at most 17 digits; the exact conversion's
+/// text before they are picked out is at most 24 characters).
+type Digits = arrayvec::ArrayString<32>;
 
 /// Decimal text of the digits `d₁d₂…` with `d₁` at 10^exp. Plain decimals for
 /// 10⁻³ ≤ |x| < 10⁶, otherwise `1.23e-9` (a form the worksheet language reads back).
