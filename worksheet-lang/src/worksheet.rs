@@ -1039,7 +1039,11 @@ impl Runner<'_> {
             r.dedup();
             reach[d] = Some(r);
         }
-        reach.into_iter().map(Option::unwrap_or_default).collect()
+        // Every definition is in the order; one that were not could reach anything.
+        reach
+            .into_iter()
+            .map(|r| r.unwrap_or_else(|| all.clone()))
+            .collect()
     }
 
     fn fail(&mut self, id: StmtId, e: EvalError) {
