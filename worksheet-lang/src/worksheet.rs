@@ -7,7 +7,7 @@
 //! itself replaces the worksheet, so an interrupted or failed run changes nothing.
 
 use crate::analysis::{self, Passes, ScalarBounds};
-use crate::ast::{CmpOp, Expr, ExprKind, Program, Span, StmtKind};
+use crate::ast::{CmpOp, Expr, ExprKind, Program, Span, Stmt, StmtKind};
 use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::eval::{self, EvalError, Evaluator, Function, Mode, Names, Pass, Registry};
 use crate::num::Interval;
@@ -81,6 +81,9 @@ pub struct Worksheet {
     overrides: Vec<Override>,
     runs: u64,
     anonymous: usize,
+    /// Overrides or options changed since the last evaluation: the next one covers every
+    /// cell.
+    stale: bool,
 }
 
 /// How the worksheet evaluates (defaults are what users get).
@@ -145,17 +148,36 @@ impl Worksheet {
         };
         self.runs += 1;
         let mut cells = self.cells.clone();
+        let mut changed = defined_names(&program);
         let new_cell = Cell {
             key: key.clone(),
             source: Arc::from(source),
             program: Arc::new(program),
             last_run: self.runs,
         };
-        match cells.iter_mut().find(|c| c.key == key) {
-            Some(c) => *c = new_cell,
-            None => cells.push(new_cell),
-        }
-        let Some(reports) = evaluate(&cells, &self.overrides, &self.options, interrupt) else {
+        let run = match cells.iter().position(|c| c.key == key) {
+            Some(i) => {
+                changed.extend(defined_names(&cells[i].program));
+                cells[i] = new_cell;
+                i
+            }
+            None => {
+                cells.push(new_cell);
+                cells.len() - 1
+            }
+        };
+        // Only the cells this run can change are evaluated, when the others' reports are
+        // those of the same worksheet under the same overrides and options.
+        let focus =
+            (!self.stale && self.overrides.is_empty() && self.reports.len() + 1 >= cells.len())
+                .then_some(Focus { run, changed });
+        let Some(reports) = evaluate(
+            &cells,
+            &self.overrides,
+            &self.options,
+            interrupt,
+            focus.as_ref(),
+        ) else {
             let mut report = self
                 .reports
                 .iter()
@@ -177,11 +199,7 @@ impl Worksheet {
                 interrupted: true,
             };
         };
-        let report = reports
-            .iter()
-            .find(|r| r.cell == key)
-            .cloned()
-            .unwrap_or_default();
+        let report = reports[run].clone().unwrap_or_default();
         if report.has_errors() {
             return Execution {
                 report,
@@ -203,30 +221,47 @@ impl Worksheet {
 
     /// Replaces the worksheet by a new evaluation and returns the other cells whose results
     /// changed, each marked with `changes`.
+    /// A report of None is a cell that was not evaluated: its report stands.
     fn commit(
         &mut self,
         cells: Vec<Cell>,
-        reports: Vec<CellReport>,
+        reports: Vec<Option<CellReport>>,
         run: Option<&str>,
         changes: &[Change],
     ) -> Vec<CellUpdate> {
         let mut updated = Vec::new();
-        for r in &reports {
-            if Some(r.cell.as_str()) == run {
-                continue;
-            }
-            let before = self.reports.iter().find(|o| o.cell == r.cell);
-            if before != Some(r) {
-                let mut report = r.clone();
-                report.updated_by = changes.to_vec();
-                updated.push(CellUpdate {
-                    report,
-                    changed_by: changes.to_vec(),
-                });
-            }
+        let mut before = std::mem::take(&mut self.reports);
+        let mut merged = Vec::with_capacity(cells.len());
+        for (c, r) in cells.iter().zip(reports) {
+            let old = before
+                .iter()
+                .position(|o| o.cell == c.key)
+                .map(|i| std::mem::take(&mut before[i]));
+            let r = match (r, old) {
+                (Some(r), old) => {
+                    if Some(r.cell.as_str()) != run && old.as_ref() != Some(&r) {
+                        let mut report = r.clone();
+                        report.updated_by = changes.to_vec();
+                        updated.push(CellUpdate {
+                            report,
+                            changed_by: changes.to_vec(),
+                        });
+                    }
+                    r
+                }
+                (None, Some(old)) => old,
+                // Not evaluated and never reported: cannot happen (such a cell is new, and
+                // a new cell is the one run); an empty report keeps the lists aligned.
+                (None, None) => CellReport {
+                    cell: c.key.clone(),
+                    ..CellReport::default()
+                },
+            };
+            merged.push(r);
         }
         self.cells = cells;
-        self.reports = reports;
+        self.reports = merged;
+        self.stale = false;
         updated
     }
 
@@ -243,7 +278,7 @@ impl Worksheet {
             .filter(|c| !keys.contains(&c.key.as_str()))
             .cloned()
             .collect();
-        let reports = evaluate(&cells, &self.overrides, &self.options, interrupt)?;
+        let reports = evaluate(&cells, &self.overrides, &self.options, interrupt, None)?;
         let mut changes = Vec::new();
         for r in self
             .reports
@@ -309,6 +344,7 @@ impl Worksheet {
                 format!("an override is a literal value; it cannot use the name `{n}`"),
             ));
         }
+        self.stale = true;
         self.overrides.retain(|o| o.name != name);
         self.overrides.push(Override {
             name: name.to_string(),
@@ -321,6 +357,7 @@ impl Worksheet {
     /// Whether sweeps may run compiled (the default). Off, every point takes the general
     /// path; tests use this to check one against the other.
     pub fn set_fast_sweeps(&mut self, on: bool) {
+        self.stale = true;
         self.options.fast_sweeps = on;
     }
 
@@ -528,6 +565,10 @@ struct Model {
     order: Vec<usize>,
     /// The definitions each definition reads by name (also inside the functions it calls).
     deps: Vec<Vec<usize>>,
+    /// The names behind `deps`, defined or not.
+    reads: Vec<Vec<String>>,
+    /// The cells evaluated (None: all); `order` then holds only what they need.
+    live: Option<Vec<bool>>,
     checks: Vec<CheckEntry>,
     shows: Vec<ShowEntry>,
     sweeps: Vec<SweepEntry>,
@@ -550,6 +591,8 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
         funcs: HashMap::default(),
         order: Vec::new(),
         deps: Vec::new(),
+        reads: Vec::new(),
+        live: None,
         checks: Vec::new(),
         shows: Vec::new(),
         sweeps: Vec::new(),
@@ -782,24 +825,17 @@ fn source_text(src: &str, span: Span) -> String {
 /// Topological order of the definitions; definitions on a cycle get an error naming it.
 fn order_definitions(m: &mut Model) {
     let n = m.defs.len();
-    let deps: Vec<Vec<usize>> = (0..n)
+    let reads: Vec<Vec<String>> = (0..n)
         .map(|i| {
             let mut names = Vec::new();
             eval::free_names(&m.defs[i].expr, &[], &mut names);
-            // Names used inside called user functions count too.
-            let mut k = 0;
-            let mut visited: Vec<String> = Vec::new();
-            while k < names.len() {
-                let name = names[k].clone();
-                k += 1;
-                if let Some(f) = m.funcs.get(&name) {
-                    if visited.contains(&name) {
-                        continue;
-                    }
-                    visited.push(name);
-                    eval::free_names(&f.body, &f.params, &mut names);
-                }
-            }
+            through_functions(&m.funcs, &mut names);
+            names
+        })
+        .collect();
+    let deps: Vec<Vec<usize>> = reads
+        .iter()
+        .map(|names| {
             names
                 .iter()
                 .filter_map(|x| m.index.get(x).copied())
@@ -868,6 +904,156 @@ fn order_definitions(m: &mut Model) {
     }
     m.order = order;
     m.deps = deps;
+    m.reads = reads;
+}
+
+/// Adds to `names` the names read inside the user functions among them, transitively: a
+/// call reads what its function's body reads.
+fn through_functions(funcs: &HashMap<String, Function>, names: &mut Vec<String>) {
+    let mut k = 0;
+    let mut visited: Vec<String> = Vec::new();
+    while k < names.len() {
+        let name = names[k].clone();
+        k += 1;
+        if let Some(f) = funcs.get(&name) {
+            if visited.contains(&name) {
+                continue;
+            }
+            visited.push(name);
+            eval::free_names(&f.body, &f.params, names);
+        }
+    }
+}
+
+/// The names a statement reads, before looking inside the functions it calls.
+fn stmt_reads(s: &Stmt, out: &mut Vec<String>) {
+    match &s.kind {
+        StmtKind::Given(d) | StmtKind::Define(d) => eval::free_names(&d.value, &[], out),
+        StmtKind::Function { params, body, .. } => {
+            let params: Vec<String> = params.iter().map(|p| p.name.clone()).collect();
+            eval::free_names(body, &params, out);
+        }
+        StmtKind::Check { lhs, rhs, .. } => {
+            eval::free_names(lhs, &[], out);
+            eval::free_names(rhs, &[], out);
+        }
+        StmtKind::Show { expr, .. } => eval::free_names(expr, &[], out),
+        StmtKind::Sweep { vars, exprs } => {
+            for v in vars {
+                if !out.contains(&v.name.name) {
+                    out.push(v.name.name.clone());
+                }
+                eval::free_names(&v.from, &[], out);
+                eval::free_names(&v.to, &[], out);
+                match &v.step {
+                    Some(crate::ast::SweepStep::Steps(e) | crate::ast::SweepStep::By(e)) => {
+                        eval::free_names(e, &[], out)
+                    }
+                    None => {}
+                }
+            }
+            for e in exprs {
+                eval::free_names(e, &[], out);
+            }
+        }
+        StmtKind::Error => {}
+    }
+}
+
+/// The cells a run of cell `run` can change, given the names its old and new text define
+/// (`changed`): the cell itself, every cell that defines one of those names (which cell owns
+/// a name may have moved), and every cell whose statements read one of them, directly or
+/// through the definitions and functions they use. Every other cell reads only what is
+/// exactly as it was, so its report stands. None when every cell must be evaluated (a
+/// sweep in a changed cell evaluates the worksheet its own way).
+fn cells_to_evaluate(
+    model: &Model,
+    cells: &[Cell],
+    run: usize,
+    changed: &[String],
+) -> Option<Vec<bool>> {
+    let hit = |names: &[String]| names.iter().any(|n| changed.contains(n));
+    // Definitions whose value may differ, settled along the dependencies (repeated until
+    // nothing moves, so a cycle cannot hide one).
+    let mut affected: Vec<bool> = model
+        .defs
+        .iter()
+        .enumerate()
+        .map(|(d, def)| def.cell == run || changed.contains(&def.name) || hit(&model.reads[d]))
+        .collect();
+    loop {
+        let mut moved = false;
+        for &d in &model.order {
+            if !affected[d] && model.deps[d].iter().any(|&x| affected[x]) {
+                affected[d] = true;
+                moved = true;
+            }
+        }
+        if !moved {
+            break;
+        }
+    }
+    let mut live = vec![false; cells.len()];
+    let mut names = Vec::new();
+    for (ci, c) in cells.iter().enumerate() {
+        let mut dirty = ci == run;
+        for s in &c.program.stmts {
+            if dirty {
+                break;
+            }
+            let defines = match &s.kind {
+                StmtKind::Given(d) | StmtKind::Define(d) => Some(&d.name.name),
+                StmtKind::Function { name, .. } => Some(&name.name),
+                _ => None,
+            };
+            names.clear();
+            stmt_reads(s, &mut names);
+            through_functions(&model.funcs, &mut names);
+            dirty = defines.is_some_and(|n| changed.contains(n))
+                || hit(&names)
+                || names
+                    .iter()
+                    .any(|n| model.index.get(n).is_some_and(|&d| affected[d]));
+        }
+        live[ci] = dirty;
+    }
+    if model.sweeps.iter().any(|s| live[s.cell]) {
+        return None;
+    }
+    Some(live)
+}
+
+/// Narrows the model to the cells in `live`: their statements and the definitions those
+/// read, in the same order.
+fn restrict(model: &mut Model, live: Vec<bool>) {
+    let mut needed = vec![false; model.defs.len()];
+    let mut stack: Vec<usize> = Vec::new();
+    for (d, def) in model.defs.iter().enumerate() {
+        if live[def.cell] {
+            stack.push(d);
+        }
+    }
+    let mut names = Vec::new();
+    for (cell, expr) in model
+        .checks
+        .iter()
+        .flat_map(|c| [(c.cell, &c.lhs), (c.cell, &c.rhs)])
+        .chain(model.shows.iter().map(|s| (s.cell, &s.expr)))
+    {
+        if live[cell] {
+            eval::free_names(expr, &[], &mut names);
+        }
+    }
+    through_functions(&model.funcs, &mut names);
+    stack.extend(names.iter().filter_map(|n| model.index.get(n).copied()));
+    while let Some(d) = stack.pop() {
+        if !needed[d] {
+            needed[d] = true;
+            stack.extend(model.deps[d].iter().copied());
+        }
+    }
+    model.order.retain(|&d| needed[d]);
+    model.live = Some(live);
 }
 
 // ---------------------------------------------------------------------------------------
@@ -1204,7 +1390,11 @@ impl Runner<'_> {
             model,
             values: &values,
         };
+        let live = |cell: usize| model.live.as_ref().is_none_or(|l| l[cell]);
         for (i, c) in model.checks.iter().enumerate() {
+            if !live(c.cell) {
+                continue;
+            }
             let mut ev = Evaluator {
                 names: &scope,
                 reg: &mut self.reg,
@@ -1247,6 +1437,9 @@ impl Runner<'_> {
             }
         }
         for (i, s) in model.shows.iter().enumerate() {
+            if !live(s.cell) {
+                continue;
+            }
             if let Some(e) = &s.unit_error {
                 if nominal {
                     self.fail(StmtId::Show(i), e.clone());
@@ -1612,14 +1805,28 @@ fn cell_of_stmt(model: &Model, cells: &[Cell], key: &str) -> Option<usize> {
     cells.iter().position(|c| c.key == cell)
 }
 
-/// Evaluates every cell; None when interrupted.
+/// What a run changed: the cell run (its index) and the names its old and new text define.
+struct Focus {
+    run: usize,
+    changed: Vec<String>,
+}
+
+/// Evaluates the worksheet: every cell, or with a focus only the cells the run can change
+/// (`cells_to_evaluate`); the others' reports are None (they stand as they were). None
+/// when interrupted.
 fn evaluate(
     cells: &[Cell],
     overrides: &[Override],
     options: &Options,
     interrupt: &Interrupt,
-) -> Option<Vec<CellReport>> {
-    let model = build_model(cells, overrides);
+    focus: Option<&Focus>,
+) -> Option<Vec<Option<CellReport>>> {
+    let mut model = build_model(cells, overrides);
+    if let Some(live) = focus.and_then(|f| cells_to_evaluate(&model, cells, f.run, &f.changed)) {
+        restrict(&mut model, live);
+    }
+    let model = model;
+    let live = |ci: usize| model.live.as_ref().is_none_or(|l| l[ci]);
     // Choices that depend on their arguments' worst-case ranges (`res.led(rule: "worst")`)
     // take them from a box pass of an earlier round; repeat while they change.
     // A round whose nominal pass found every range it asked for is the worksheet's own
@@ -1663,14 +1870,21 @@ fn evaluate(
     let mut reports: Vec<CellReport> = cells
         .iter()
         .enumerate()
-        .map(|(ci, c)| CellReport {
-            cell: c.key.clone(),
-            source: c.source.to_string(),
-            diagnostics: model.diags[ci].clone(),
-            ..CellReport::default()
+        .map(|(ci, c)| match live(ci) {
+            true => CellReport {
+                cell: c.key.clone(),
+                source: c.source.to_string(),
+                diagnostics: model.diags[ci].clone(),
+                ..CellReport::default()
+            },
+            // Not evaluated: whatever lands here is dropped.
+            false => CellReport::default(),
         })
         .collect();
     for (ci, report) in reports.iter_mut().enumerate() {
+        if !live(ci) {
+            continue;
+        }
         for item in &model.items[ci] {
             match item {
                 Item::Def(d) => {
@@ -1835,7 +2049,13 @@ fn evaluate(
             reports[ci].diagnostics.push(n);
         }
     }
-    Some(reports)
+    Some(
+        reports
+            .into_iter()
+            .enumerate()
+            .map(|(ci, r)| live(ci).then_some(r))
+            .collect(),
+    )
 }
 
 fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
@@ -2048,5 +2268,169 @@ impl SweepHost<'_> {
             })
             .collect();
         Some(Ok(SweepPoint { values }))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    //! A run evaluates only the cells it can change; these tests hold it to the evaluation
+    //! of every cell.
+    use super::*;
+    use proptest::prelude::*;
+
+    /// Every cell's report from an evaluation of the whole worksheet.
+    fn everything(cells: &[Cell]) -> Vec<CellReport> {
+        evaluate(cells, &[], &Options::default(), &Interrupt::new(), None)
+            .expect("not interrupted")
+            .into_iter()
+            .map(Option::unwrap_or_default)
+            .collect()
+    }
+
+    /// The cells as they will be once `source` runs as cell `key`.
+    fn after(ws: &Worksheet, key: &str, source: &str) -> Vec<Cell> {
+        let mut cells = ws.cells.clone();
+        let cell = Cell {
+            key: key.to_string(),
+            source: Arc::from(source),
+            program: Arc::new(parser::parse(source)),
+            last_run: ws.runs + 1,
+        };
+        match cells.iter_mut().find(|c| c.key == key) {
+            Some(c) => *c = cell,
+            None => cells.push(cell),
+        }
+        cells
+    }
+
+    /// Runs `source` as `key` and checks the run's report and the worksheet's reports
+    /// against an evaluation of every cell.
+    fn run_and_compare(ws: &mut Worksheet, key: &str, source: &str) -> Execution {
+        let expected = after(ws, key, source);
+        let expected = everything(&expected);
+        let ex = ws.execute(Some(key), source, &Interrupt::new());
+        let mut report = ex.report.clone();
+        report.updated_cells.clear();
+        let want = expected
+            .iter()
+            .find(|r| r.cell == key)
+            .cloned()
+            .unwrap_or_default();
+        assert_eq!(
+            report, want,
+            "the report of the cell run ({key}: {source:?})"
+        );
+        if !ex.report.has_errors() {
+            assert_eq!(
+                ws.reports(),
+                expected.as_slice(),
+                "after running {key}: {source:?}"
+            );
+        }
+        ex
+    }
+
+    #[test]
+    fn a_cell_that_reads_nothing_changed_keeps_its_report_and_is_not_evaluated() {
+        let mut ws = Worksheet::new();
+        run_and_compare(
+            &mut ws,
+            "supply",
+            "given vin = 10.8 V .. 13.2 V\nvout = 5 V",
+        );
+        run_and_compare(&mut ws, "load", "given iload = 180 mA ± 20 %");
+        run_and_compare(&mut ws, "loss", "p = (vin - vout) * iload\ncheck p <= 2 W");
+        run_and_compare(&mut ws, "other", "r = 2 kΩ ± 1 %\nr * 2");
+        // The load changes: the loss follows, the supply and the other cell stand.
+        let ex = run_and_compare(&mut ws, "load", "given iload = 250 mA ± 20 %");
+        let updated: Vec<&str> = ex.updated.iter().map(|u| u.report.cell.as_str()).collect();
+        assert_eq!(updated, ["loss"]);
+        // Which cells the run evaluated: the one run and the one that reads what it defines.
+        let model = build_model(&ws.cells, &[]);
+        let live = cells_to_evaluate(&model, &ws.cells, 1, &["iload".to_string()]);
+        assert_eq!(live, Some(vec![false, true, true, false]));
+        // A cell that reads nothing: only itself.
+        let live = cells_to_evaluate(&model, &ws.cells, 3, &["r".to_string()]);
+        assert_eq!(live, Some(vec![false, false, false, true]));
+    }
+
+    #[test]
+    fn moving_a_name_to_another_cell_updates_both_and_their_readers() {
+        let mut ws = Worksheet::new();
+        run_and_compare(&mut ws, "a", "x = 2 V");
+        run_and_compare(&mut ws, "b", "y = x * 3");
+        run_and_compare(&mut ws, "c", "z = 1 A");
+        // Cell c now also defines x, run later: it owns x; a's definition is unused.
+        run_and_compare(&mut ws, "c", "z = 1 A\nx = 5 V");
+        run_and_compare(&mut ws, "a", "w = 1 V");
+        run_and_compare(&mut ws, "c", "z = 1 A");
+        // A function used through another cell.
+        run_and_compare(&mut ws, "f", "f(t) = t * x");
+        run_and_compare(&mut ws, "g", "f(2)\ncheck f(1) <= 10 V");
+        run_and_compare(&mut ws, "a", "w = 1 V\nx = 1 V");
+    }
+
+    #[test]
+    fn a_change_reaches_a_cell_through_a_definition_in_a_third_cell() {
+        let mut ws = Worksheet::new();
+        run_and_compare(&mut ws, "given", "given b = 3 ± 5 %");
+        run_and_compare(&mut ws, "middle", "a = b * 2");
+        run_and_compare(&mut ws, "reader", "c = a + 1\ncheck c <= 8");
+        let ex = run_and_compare(&mut ws, "given", "given b = 4 ± 5 %");
+        let updated: Vec<&str> = ex.updated.iter().map(|u| u.report.cell.as_str()).collect();
+        assert_eq!(updated, ["middle", "reader"]);
+    }
+
+    /// Every name the generated lines use, so that most runs succeed.
+    const BASE: &str = "given a = 2 ± 5 %\ngiven b = 3 .. 4\nc = a * b\nd = c + 1\n\
+                        g(t) = t * a\nu = reg.linear(12 V, vout: 5 V, iout: b * 10 mA)";
+
+    /// Lines over a few shared names, mostly dimensionless so most runs succeed; a unit
+    /// mismatch, a cycle or a parse error now and then.
+    fn line() -> impl Strategy<Value = String> {
+        let name = prop::sample::select(vec!["a", "b", "c", "d"]);
+        let operand = prop_oneof![
+            4 => name.clone().prop_map(str::to_string),
+            2 => (1u32..9).prop_map(|n| n.to_string()),
+            1 => name.clone().prop_map(|n| format!("g({n})")),
+            1 => Just("u.loss / 1 W".to_string()),
+        ];
+        let expr = (
+            operand.clone(),
+            prop::sample::select(vec!["+", "-", "*", "/"]),
+            operand,
+        )
+            .prop_map(|(l, op, r)| format!("{l} {op} {r}"));
+        prop_oneof![
+            4 => (name.clone(), expr.clone()).prop_map(|(n, e)| format!("{n} = {e}")),
+            2 => (name.clone(), 1u32..9, 1u32..30)
+                .prop_map(|(n, v, t)| format!("given {n} = {v} ± {t} %")),
+            1 => (name.clone(), 1u32..5).prop_map(|(n, v)| format!("given {n} = {v} .. {}", v + 2)),
+            1 => (expr.clone(), 1u32..20).prop_map(|(e, l)| format!("check {e} <= {l}")),
+            1 => expr.clone(),
+            1 => name.clone().prop_map(|n| format!("g(t) = t * {n}")),
+            1 => (name.clone(), name.clone())
+                .prop_map(|(x, y)| format!("sweep {x} over 1 .. 2 steps 3: {y}")),
+            1 => name.clone().prop_map(|n| format!("u = reg.linear(12 V, vout: 5 V, iout: {n} * 10 mA)")),
+            1 => Just("q = = 1".to_string()),
+            1 => Just("h = 2 V + 1".to_string()),
+        ]
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(300))]
+        #[test]
+        fn a_run_reports_what_evaluating_every_cell_reports(
+            runs in prop::collection::vec(
+                (0usize..4, prop::collection::vec(line(), 1..4)),
+                1..10,
+            )
+        ) {
+            let mut ws = Worksheet::new();
+            run_and_compare(&mut ws, "base", BASE);
+            for (key, lines) in runs {
+                run_and_compare(&mut ws, &format!("k{key}"), &lines.join("\n"));
+            }
+        }
     }
 }
