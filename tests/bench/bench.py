@@ -246,7 +246,8 @@ def round_trips(workdir, reps):
                     m = re.search(r"bench-compute-seconds (\S+)", out)
                     if m:
                         r["compute"].append(float(m.group(1)))
-                    # Headroom's evaluation time, from its timer around `Worksheet::execute`.
+                    # Headroom's evaluation time, from its timer around evaluation (after the
+                    # parse, as Python's timer starts after the cell is compiled).
                     hr = k.last_reply_metadata.get("headroom", {})
                     if "evaluation_seconds" in hr:
                         r["compute"].append(float(hr["evaluation_seconds"]))
@@ -506,8 +507,9 @@ def main():
         "before the kernel is spawned; start-up is timed from the spawn to the reply.",
         "¹ Both inside their kernel, during the reference-cell round trips: Python "
         "`time.perf_counter()` around the cell's own code inside the cell "
-        "(tests/bench/python/reference_cell.py), printed; Headroom's timer around "
-        "`Worksheet::execute` on its evaluator thread, sent in the execute_reply's metadata "
+        "(tests/bench/python/reference_cell.py), printed; Headroom's timer on its evaluator "
+        "thread from the parsed cell to its report (`Worksheet::execute_prepared`; the parse "
+        "stays outside, as the compiling of the Python cell does), sent in the execute_reply's metadata "
         "(`headroom.evaluation_seconds`). For comparison, the same evaluation in-process in a "
         "tight loop (the `figures` bench binary, worksheet-lang/benches/figures.rs, with the "
         f"kernel's allocator): {fmt(hr_inproc['median_ns'] / 1e9, 's')}.",

@@ -1,9 +1,10 @@
 //! In-process timings for `tests/bench/run`, which drives this binary and puts its figures in
 //! the results table beside the Python reference:
 //!
-//! - `figures execute FILE REPS`: `Worksheet::execute` of the worksheet in FILE on a fresh
-//!   worksheet, REPS times, in a tight loop (the sweeps' figures, and the reference cell's
-//!   in-process time beside the kernel's own evaluation timer);
+//! - `figures execute FILE REPS`: `Worksheet::execute_prepared` of the worksheet in FILE on a
+//!   fresh worksheet, REPS times, in a tight loop, timed as the kernel times it (from the
+//!   parsed cell to its report): the sweeps' figures, and the reference cell's in-process
+//!   time beside the kernel's own evaluation timer;
 //! - `figures loop POINTS REPS`: the hand-written Rust loop of the sweep chain over POINTS points.
 //!
 //! Each prints one JSON line: `{"median_ns": …, "min_ns": …, "reps": …}`. Run by `cargo bench`
@@ -19,7 +20,7 @@ static ALLOC: mimalloc::MiMalloc = mimalloc::MiMalloc;
 use std::hint::black_box;
 use std::process::ExitCode;
 use std::time::Instant;
-use worksheet_lang::{diagnostic, Interrupt, Worksheet};
+use worksheet_lang::{diagnostic, Interrupt, Prepared, Worksheet};
 
 fn main() -> ExitCode {
     let args: Vec<String> = std::env::args()
@@ -59,8 +60,10 @@ fn execute(file: &str, reps: usize) -> Result<Vec<u128>, String> {
     let mut times = Vec::with_capacity(reps);
     for _ in 0..reps {
         let mut sheet = Worksheet::new();
+        // Timed as the kernel times evaluation: from the parsed cell to its report.
+        let prepared = Prepared::new(black_box(&source));
         let start = Instant::now();
-        let execution = sheet.execute(Some("bench"), black_box(&source), &Interrupt::new());
+        let execution = sheet.execute_prepared(Some("bench"), prepared, &Interrupt::new());
         times.push(start.elapsed().as_nanos());
         let report = &execution.report;
         if report.has_errors() {

@@ -81,6 +81,9 @@ pub struct Note {
 pub struct UnitExpr {
     pub text: String,
     pub span: Span,
+    /// The unit, when the lexer has already parsed it (a number's unit); otherwise the
+    /// evaluator parses `text` and reports what is wrong with it.
+    pub parsed: Option<Box<crate::units::Unit>>,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]

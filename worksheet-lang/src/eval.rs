@@ -462,11 +462,14 @@ impl<'a> Evaluator<'a> {
         let Some(u) = unit else {
             return Ok(Num::constant(value, Dim::NONE));
         };
-        let parsed = self.reg.unit(&u.text).map_err(|err| {
-            let mut e = EvalError::new(DiagKind::UnknownUnit, &u.span, err.message);
-            e.hint = err.hint;
-            e
-        })?;
+        let parsed = match &u.parsed {
+            Some(p) => p,
+            None => self.reg.unit(&u.text).map_err(|err| {
+                let mut e = EvalError::new(DiagKind::UnknownUnit, &u.span, err.message);
+                e.hint = err.hint;
+                e
+            })?,
+        };
         let absolute = parsed.is_absolute_temperature() && !difference;
         let num = Num {
             x: Dual::constant(parsed.to_si(value, absolute)),

@@ -224,8 +224,8 @@ pub fn normalize_name(text: &str) -> String {
 enum UnitScan {
     /// Not a unit: the text is an ordinary word (or nothing unit-like).
     NotUnit,
-    /// A unit ending at this folded offset.
-    Unit { end: usize },
+    /// A unit ending at this folded offset, as parsed.
+    Unit { end: usize, unit: Box<units::Unit> },
     /// Text that can only have been meant as a unit, but is none.
     Unknown { end: usize, error: UnitError },
 }
@@ -327,8 +327,11 @@ fn scan_unit(s: &str, start: usize) -> UnitScan {
         if s[cut..end].contains(UNIT_DOT) {
             continue;
         }
-        if units::parse_unit(&s[start..cut]).is_ok() {
-            return UnitScan::Unit { end: cut };
+        if let Ok(unit) = units::parse_unit(&s[start..cut]) {
+            return UnitScan::Unit {
+                end: cut,
+                unit: Box::new(unit),
+            };
         }
     }
     // Nothing parsed. A plain word is a name (`2 x` is then a syntax error); text with a
@@ -635,8 +638,11 @@ impl Lexer<'_> {
         // A unit written directly after the number: `85mA`, `10K`, `25°C`.
         if next.is_some_and(is_unit_start) {
             match scan_unit(s, end) {
-                UnitScan::Unit { end: unit_end } => {
-                    return self.number_with_unit(start, value, end, unit_end);
+                UnitScan::Unit {
+                    end: unit_end,
+                    unit,
+                } => {
+                    return self.number_with_unit(start, value, end, unit_end, unit);
                 }
                 UnitScan::Unknown {
                     end: unit_end,
@@ -657,8 +663,11 @@ impl Lexer<'_> {
         // A unit after exactly one space: `12 V`, `0.5 K/W`.
         if next == Some(' ') && self.char_at(end + 1).is_some_and(is_unit_start) {
             match scan_unit(s, end + 1) {
-                UnitScan::Unit { end: unit_end } => {
-                    return self.number_with_unit(start, value, end + 1, unit_end);
+                UnitScan::Unit {
+                    end: unit_end,
+                    unit,
+                } => {
+                    return self.number_with_unit(start, value, end + 1, unit_end, unit);
                 }
                 UnitScan::Unknown {
                     end: unit_end,
@@ -679,6 +688,7 @@ impl Lexer<'_> {
         value: Option<f64>,
         unit_start: usize,
         unit_end: usize,
+        unit: Box<units::Unit>,
     ) {
         let kind = match value {
             Some(value) => TokenKind::Number {
@@ -686,6 +696,7 @@ impl Lexer<'_> {
                 unit: Some(UnitExpr {
                     text: self.s[unit_start..unit_end].to_string(),
                     span: self.f.span(unit_start..unit_end),
+                    parsed: Some(unit),
                 }),
             },
             None => TokenKind::BadValue,
@@ -761,7 +772,7 @@ impl Lexer<'_> {
         };
         if let Some(u) = unit_at {
             match scan_unit(self.s, u) {
-                UnitScan::Unit { end } => {
+                UnitScan::Unit { end, .. } => {
                     self.diag(
                         Diagnostic::error(
                             DiagKind::UnitAfterCode,

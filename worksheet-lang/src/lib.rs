@@ -24,7 +24,7 @@ pub mod results;
 pub mod worksheet;
 
 pub use results::CellReport;
-pub use worksheet::{Execution, Interrupt, Worksheet};
+pub use worksheet::{Execution, Interrupt, Prepared, Worksheet};
 pub mod analysis;
 pub mod compile;
 pub mod eval;

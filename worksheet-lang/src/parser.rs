@@ -770,6 +770,7 @@ impl<'a> Parser<'a> {
         UnitExpr {
             text: text.to_string(),
             span,
+            parsed: None,
         }
     }
 

@@ -72,6 +72,23 @@ pub(crate) struct Cell {
     pub last_run: u64,
 }
 
+/// A cell's text and its syntax tree (none when the text is over the size limit, which
+/// `Worksheet::execute_prepared` then reports).
+#[derive(Debug)]
+pub struct Prepared<'s> {
+    source: &'s str,
+    program: Option<Program>,
+}
+
+impl<'s> Prepared<'s> {
+    pub fn new(source: &'s str) -> Self {
+        Prepared {
+            source,
+            program: (source.len() <= MAX_CELL_BYTES).then(|| parser::parse(source)),
+        }
+    }
+}
+
 /// One session. No global state: two `Worksheet`s never see each other.
 #[derive(Debug, Default)]
 pub struct Worksheet {
@@ -118,7 +135,19 @@ impl Worksheet {
         source: &str,
         interrupt: &Interrupt,
     ) -> Execution {
-        if source.len() > MAX_CELL_BYTES {
+        self.execute_prepared(cell, Prepared::new(source), interrupt)
+    }
+
+    /// `execute` of a cell already parsed (`Prepared::new`): the kernel times evaluation
+    /// apart from parsing.
+    pub fn execute_prepared(
+        &mut self,
+        cell: Option<&str>,
+        prepared: Prepared<'_>,
+        interrupt: &Interrupt,
+    ) -> Execution {
+        let Prepared { source, program } = prepared;
+        let Some(program) = program else {
             let mut report = CellReport {
                 cell: cell.unwrap_or("").to_string(),
                 ..CellReport::default()
@@ -140,8 +169,7 @@ impl Worksheet {
                 updated: Vec::new(),
                 interrupted: false,
             };
-        }
-        let program = parser::parse(source);
+        };
         let key = match cell {
             Some(k) => k.to_string(),
             None => self.key_by_names(&program),
@@ -168,9 +196,11 @@ impl Worksheet {
         };
         // Only the cells this run can change are evaluated, when the others' reports are
         // those of the same worksheet under the same overrides and options.
-        let focus =
-            (!self.stale && self.overrides.is_empty() && self.reports.len() + 1 >= cells.len())
-                .then_some(Focus { run, changed });
+        let focus = (cells.len() > 1
+            && !self.stale
+            && self.overrides.is_empty()
+            && self.reports.len() + 1 >= cells.len())
+        .then_some(Focus { run, changed });
         let Some(reports) = evaluate(
             &cells,
             &self.overrides,
@@ -577,6 +607,9 @@ struct Model {
 }
 
 fn resolve_unit(u: &crate::ast::UnitExpr) -> Result<Unit, EvalError> {
+    if let Some(p) = &u.parsed {
+        return Ok((**p).clone());
+    }
     units::parse_unit(&u.text).map_err(|e| {
         let mut err = EvalError::new(DiagKind::UnknownUnit, &u.span, e.message);
         err.hint = e.hint;
