@@ -528,12 +528,12 @@ fn changes(old: Option<&CellReport>, new: &CellReport) -> Vec<Change> {
 // ---------------------------------------------------------------------------------------
 // The model: every statement of every cell, resolved into definitions and an order.
 
-struct DefEntry {
+struct DefEntry<'c> {
     name: String,
     /// The statement key ("d:NAME") its scalars and sites are recorded under.
     key: String,
     cell: usize,
-    expr: Expr,
+    expr: &'c Expr,
     /// Where the value stands in the cell (errors in an override point here).
     value_span: Span,
     name_span: Span,
@@ -541,7 +541,7 @@ struct DefEntry {
     note: String,
     given: bool,
     /// The expression as written in the cell, when an override replaced it.
-    original: Option<Expr>,
+    original: Option<&'c Expr>,
     overridden: bool,
     static_error: Option<EvalError>,
     /// The value did not parse (already reported by the parser).
@@ -553,23 +553,23 @@ struct DefEntry {
     certain: bool,
 }
 
-struct CheckEntry {
+struct CheckEntry<'c> {
     cell: usize,
     key: String,
     /// The keys its two sides and their difference are recorded under (`KEY:lhs`, …).
     side_keys: [String; 3],
-    lhs: Expr,
+    lhs: &'c Expr,
     op: CmpOp,
-    rhs: Expr,
+    rhs: &'c Expr,
     note: String,
     text: String,
     span: Span,
 }
 
-struct ShowEntry {
+struct ShowEntry<'c> {
     cell: usize,
     key: String,
-    expr: Expr,
+    expr: &'c Expr,
     unit: Option<Unit>,
     unit_error: Option<EvalError>,
     text: String,
@@ -583,13 +583,14 @@ enum Item {
     Sweep(usize),
 }
 
-struct SweepEntry {
+struct SweepEntry<'c> {
     cell: usize,
-    stmt: crate::ast::Stmt,
+    stmt: &'c Stmt,
 }
 
-struct Model {
-    defs: Vec<DefEntry>,
+/// Borrows the cells' syntax trees (and the overrides' values) it was built from.
+struct Model<'c> {
+    defs: Vec<DefEntry<'c>>,
     index: HashMap<String, usize>,
     funcs: HashMap<String, Function>,
     order: Vec<usize>,
@@ -599,9 +600,9 @@ struct Model {
     reads: Vec<Vec<String>>,
     /// The cells evaluated (None: all); `order` then holds only what they need.
     live: Option<Vec<bool>>,
-    checks: Vec<CheckEntry>,
-    shows: Vec<ShowEntry>,
-    sweeps: Vec<SweepEntry>,
+    checks: Vec<CheckEntry<'c>>,
+    shows: Vec<ShowEntry<'c>>,
+    sweeps: Vec<SweepEntry<'c>>,
     items: Vec<Vec<Item>>,
     diags: Vec<Vec<Diagnostic>>,
 }
@@ -617,7 +618,7 @@ fn resolve_unit(u: &crate::ast::UnitExpr) -> Result<Unit, EvalError> {
     })
 }
 
-fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
+fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
     let mut m = Model {
         defs: Vec::new(),
         index: HashMap::default(),
@@ -709,13 +710,13 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                         key: def_key(&d.name.name),
                         name: d.name.name.clone(),
                         cell: ci,
-                        expr: ov.map_or_else(|| d.value.clone(), |o| o.expr.clone()),
+                        expr: ov.map_or(&d.value, |o| &o.expr),
                         value_span: d.value.span.clone(),
                         name_span: d.name.span.clone(),
                         unit,
                         note: d.note.as_ref().map(|n| n.text.clone()).unwrap_or_default(),
                         given,
-                        original: ov.map(|_| d.value.clone()),
+                        original: ov.map(|_| &d.value),
                         overridden: ov.is_some(),
                         static_error,
                         parse_failed,
@@ -766,9 +767,9 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                         cell: ci,
                         side_keys: [":lhs", ":rhs", ":diff"].map(|side| eval::join(&[&key, side])),
                         key,
-                        lhs: lhs.clone(),
+                        lhs,
                         op: *op,
-                        rhs: rhs.clone(),
+                        rhs,
                         note: note.as_ref().map(|n| n.text.clone()).unwrap_or_default(),
                         text: source_text(&c.source, lhs.span.start..rhs.span.end),
                         span: s.span.clone(),
@@ -787,7 +788,7 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                     m.shows.push(ShowEntry {
                         cell: ci,
                         key,
-                        expr: expr.clone(),
+                        expr,
                         unit,
                         unit_error,
                         text: source_text(&c.source, s.span.clone()),
@@ -795,10 +796,7 @@ fn build_model(cells: &[Cell], overrides: &[Override]) -> Model {
                 }
                 StmtKind::Sweep { .. } => {
                     m.items[ci].push(Item::Sweep(m.sweeps.len()));
-                    m.sweeps.push(SweepEntry {
-                        cell: ci,
-                        stmt: s.clone(),
-                    });
+                    m.sweeps.push(SweepEntry { cell: ci, stmt: s });
                 }
                 StmtKind::Error => {}
             }
@@ -856,12 +854,12 @@ fn source_text(src: &str, span: Span) -> String {
 }
 
 /// Topological order of the definitions; definitions on a cycle get an error naming it.
-fn order_definitions(m: &mut Model) {
+fn order_definitions(m: &mut Model<'_>) {
     let n = m.defs.len();
     let reads: Vec<Vec<String>> = (0..n)
         .map(|i| {
             let mut names = Vec::new();
-            eval::free_names(&m.defs[i].expr, &[], &mut names);
+            eval::free_names(m.defs[i].expr, &[], &mut names);
             through_functions(&m.funcs, &mut names);
             names
         })
@@ -929,7 +927,7 @@ fn order_definitions(m: &mut Model) {
     for &d in &order {
         let def = &m.defs[d];
         let certain = def.static_error.is_none()
-            && eval::is_certain(&def.expr, &|name| match m.index.get(name) {
+            && eval::is_certain(def.expr, &|name| match m.index.get(name) {
                 Some(&i) => m.defs[i].certain,
                 None => crate::builtins::constant(name).is_some(),
             });
@@ -1058,7 +1056,7 @@ fn cells_to_evaluate(
 
 /// Narrows the model to the cells in `live`: their statements and the definitions those
 /// read, in the same order.
-fn restrict(model: &mut Model, live: Vec<bool>) {
+fn restrict(model: &mut Model<'_>, live: Vec<bool>) {
     let mut needed = vec![false; model.defs.len()];
     let mut stack: Vec<usize> = Vec::new();
     for (d, def) in model.defs.iter().enumerate() {
@@ -1093,7 +1091,7 @@ fn restrict(model: &mut Model, live: Vec<bool>) {
 // Passes over the model.
 
 struct Scope<'m> {
-    model: &'m Model,
+    model: &'m Model<'m>,
     values: &'m [Option<Result<Value, String>>],
 }
 
@@ -1133,7 +1131,7 @@ enum StmtId {
 }
 
 struct Runner<'m> {
-    model: &'m Model,
+    model: &'m Model<'m>,
     reg: Registry,
     interrupt: &'m Interrupt,
     errors: HashMap<StmtId, EvalError>,
@@ -1338,7 +1336,7 @@ impl Runner<'_> {
                     calls: 0,
                     notes: Vec::new(),
                 };
-                let r = ev.eval(&def.expr).and_then(|v| {
+                let r = ev.eval(def.expr).and_then(|v| {
                     if let Some(u) = &def.unit {
                         eval::check_declared(&v, u, &def.value_span)?;
                     }
@@ -1441,8 +1439,8 @@ impl Runner<'_> {
                 notes: Vec::new(),
             };
             let r = (|| {
-                let a = ev.eval(&c.lhs)?;
-                let b = ev.eval(&c.rhs)?;
+                let a = ev.eval(c.lhs)?;
+                let b = ev.eval(c.rhs)?;
                 let (Value::Num(a), Value::Num(b)) = (a, b) else {
                     return Err(EvalError::new(
                         DiagKind::TypeMismatch,
@@ -1491,7 +1489,7 @@ impl Runner<'_> {
                 calls: 0,
                 notes: Vec::new(),
             };
-            let r = ev.eval(&s.expr).and_then(|v| {
+            let r = ev.eval(s.expr).and_then(|v| {
                 if let Some(u) = &s.unit {
                     eval::check_declared(&v, u, &s.expr.span)?;
                 }
@@ -1594,7 +1592,7 @@ impl analysis::Evaluate for Runner<'_> {
 }
 
 impl<'m> Runner<'m> {
-    fn new(model: &'m Model, interrupt: &'m Interrupt) -> Self {
+    fn new(model: &'m Model<'m>, interrupt: &'m Interrupt) -> Self {
         Runner {
             model,
             reg: Registry::default(),
@@ -1830,7 +1828,7 @@ fn side_texts(worst: Num, limit: Num) -> (String, String) {
     }
 }
 
-fn cell_of_stmt(model: &Model, cells: &[Cell], key: &str) -> Option<usize> {
+fn cell_of_stmt(model: &Model<'_>, cells: &[Cell], key: &str) -> Option<usize> {
     if let Some(name) = key.strip_prefix("d:") {
         return model.index.get(name).map(|&i| model.defs[i].cell);
     }
@@ -1983,7 +1981,7 @@ fn evaluate(
                             base: Some((&an.reg, &an.nominal, &an.bounds)),
                             fast: options.fast_sweeps,
                         },
-                        &s.stmt,
+                        s.stmt,
                         &cells[s.cell].source,
                     )? {
                         Ok(t) => report.sweeps.push(t),
@@ -2132,7 +2130,7 @@ fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
 
 /// What a sweep needs of the worksheet: re-running it with one definition pinned.
 pub(crate) struct SweepHost<'a> {
-    model: &'a Model,
+    model: &'a Model<'a>,
     interrupt: &'a Interrupt,
     /// The parts the worksheet chose: a sweep shows how that design behaves, so it keeps
     /// them rather than choosing again at every point.
@@ -2151,7 +2149,7 @@ impl crate::compile::TapeSource for SweepHost<'_> {
         if d.static_error.is_some() {
             return None;
         }
-        Some((i, &d.expr))
+        Some((i, d.expr))
     }
     fn function(&self, name: &str) -> Option<&Function> {
         self.model.funcs.get(name)
