@@ -1,6 +1,7 @@
 //! Criterion micro-benchmarks of the language's hot paths: parsing, evaluating the reference
-//! cell, the worst case over 16 uncertain inputs, and a sweep of the ten-definition chain beside
-//! the hand-written loop of the same formulas. `cargo bench -p worksheet-lang --bench micro`.
+//! cell, the worst case over 16 uncertain inputs, rerunning one cell of a notebook-sized
+//! worksheet, and a sweep of the ten-definition chain beside the hand-written loop of the
+//! same formulas. `cargo bench -p worksheet-lang --bench micro`.
 
 mod shared;
 
@@ -26,6 +27,41 @@ fn sixteen_inputs() -> String {
     s
 }
 
+/// A notebook-sized worksheet: one cell with the supply, then `n` cells each sizing its own
+/// regulator, heatsink chain and LED resistor from it (the reference cell, renamed).
+fn notebook(n: usize) -> Vec<(String, String)> {
+    let mut cells = vec![(
+        "supply".to_string(),
+        "given vin = 10.8 V .. 13.2 V\ngiven ta = 50 °C".to_string(),
+    )];
+    for k in 1..=n {
+        let text = format!(
+            "given iload{k} = {} mA ± 20 %\n\
+             u{k} = reg.linear(vin, vout: 5 V, iout: iload{k}, iq: 4 mA, dropout: 2 V)\n\
+             θ{k} = 6 K/W + 0.4 K/W + (22 K/W || 60 K/W)\n\
+             tj{k} [°C] = heat.junction(u{k}.loss, ambient: ta, theta: θ{k}, tj_max: 125 °C)\n\
+             check tj{k} <= 125 °C\n\
+             R{k} = res.led(supply: 5 V, vf: 2.1 V, current: 8 mA, series: E24)",
+            100 + 10 * k
+        );
+        cells.push((format!("c{k}"), text));
+    }
+    cells
+}
+
+fn loaded(cells: &[(String, String)]) -> Worksheet {
+    let mut sheet = Worksheet::new();
+    for (key, text) in cells {
+        let ex = sheet.execute(Some(key), text, &Interrupt::new());
+        assert!(
+            !ex.report.has_errors(),
+            "{key}: {:?}",
+            ex.report.diagnostics
+        );
+    }
+    sheet
+}
+
 fn run(source: &str) -> worksheet_lang::Execution {
     let mut sheet = Worksheet::new();
     let execution = sheet.execute(Some("bench"), black_box(source), &Interrupt::new());
@@ -45,6 +81,22 @@ fn benches(c: &mut Criterion) {
 
     let many = sixteen_inputs();
     c.bench_function("worst case, 16 uncertain inputs", |b| b.iter(|| run(&many)));
+
+    // A run recomputes only the cells its change can reach: rerunning a cell nothing reads
+    // costs one cell however large the notebook; rerunning the supply recomputes them all.
+    let cells = notebook(20);
+    let mut group = c.benchmark_group("rerun in a 21-cell notebook");
+    group.sample_size(20);
+    let mut sheet = loaded(&cells);
+    let (leaf, leaf_text) = &cells[20];
+    group.bench_function("a cell nothing reads", |b| {
+        b.iter(|| sheet.execute(Some(leaf), black_box(leaf_text), &Interrupt::new()))
+    });
+    let (root, root_text) = &cells[0];
+    group.bench_function("the supply every cell reads", |b| {
+        b.iter(|| sheet.execute(Some(root), black_box(root_text), &Interrupt::new()))
+    });
+    group.finish();
 
     let mut group = c.benchmark_group("sweep of the ten-definition chain");
     group.throughput(Throughput::Elements(SWEEP_POINTS as u64));

@@ -759,8 +759,9 @@ impl<'a> Parser<'a> {
         Ok(unit)
     }
 
-    /// The unit written in the folded range, trimmed. Whether it is a unit is for the
-    /// evaluator to say (it resolves every declared and `as` unit and reports on it).
+    /// The unit written in the folded range, trimmed, parsed if it is one. What is wrong with
+    /// it is for the evaluator to say (it resolves every declared and `as` unit and reports
+    /// on it).
     fn unit_text(&mut self, from: usize, to: usize) -> UnitExpr {
         let raw = self.ftext.get(from..to).unwrap_or("");
         let lead = raw.len() - raw.trim_start().len();
@@ -770,7 +771,7 @@ impl<'a> Parser<'a> {
         UnitExpr {
             text: text.to_string(),
             span,
-            parsed: None,
+            parsed: crate::units::parse_unit(text).ok().map(Box::new),
         }
     }
 

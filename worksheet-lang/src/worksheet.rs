@@ -16,6 +16,7 @@ use crate::results::{Bounds, CellReport, Change, CheckRow, Share, Shown, ValueRo
 use crate::units::{self, Dim, Unit};
 use crate::value::{Num, Value};
 use rustc_hash::FxHashMap as HashMap;
+use std::borrow::Cow;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 
@@ -70,21 +71,109 @@ pub(crate) struct Cell {
     pub program: Arc<Program>,
     /// When it was last run (a counter), to settle a name defined in two cells.
     pub last_run: u64,
+    /// What every run needs from the text alone, worked out once (shared like the tree).
+    pub facts: Arc<[StmtFacts]>,
 }
 
-/// A cell's text and its syntax tree (none when the text is over the size limit, which
-/// `Worksheet::execute_prepared` then reports).
+/// What a statement's text alone says, for building the model on every run.
+#[derive(Debug)]
+pub(crate) struct StmtFacts {
+    /// The key its scalars are recorded under (`CELL:INDEX`; a definition's are under
+    /// `d:NAME`), and a check's sides and their difference (`KEY:lhs`, …).
+    pub key: String,
+    pub def_key: Option<String>,
+    pub side_keys: Option<[String; 3]>,
+    /// The names its expressions read, before looking inside the functions it calls.
+    pub reads: Vec<String>,
+    /// One of its expressions did not parse (the parser has reported why).
+    pub parse_failed: bool,
+}
+
+/// Per statement: the names it reads and whether it parsed.
+type TextFacts = Vec<(Vec<String>, bool)>;
+
+/// What each statement's syntax tree says on its own: the names it reads and whether it
+/// parsed. Worked out with the parse (`Prepared::new`), like a compiler's table of free names.
+fn text_facts(program: &Program) -> TextFacts {
+    program
+        .stmts
+        .iter()
+        .map(|st| {
+            let mut reads = Vec::new();
+            stmt_reads(st, &mut reads);
+            let parse_failed = match &st.kind {
+                StmtKind::Given(d) | StmtKind::Define(d) => eval::has_error(&d.value),
+                StmtKind::Check { lhs, rhs, .. } => eval::has_error(lhs) || eval::has_error(rhs),
+                StmtKind::Show { expr, .. } => eval::has_error(expr),
+                _ => false,
+            };
+            (reads, parse_failed)
+        })
+        .collect()
+}
+
+impl Cell {
+    #[cfg(test)]
+    fn new(key: String, source: Arc<str>, program: Arc<Program>, last_run: u64) -> Cell {
+        let text = text_facts(&program);
+        Cell::with_facts(key, source, program, text, last_run)
+    }
+
+    /// A cell from its parsed text and `text_facts` of it.
+    fn with_facts(
+        key: String,
+        source: Arc<str>,
+        program: Arc<Program>,
+        text: TextFacts,
+        last_run: u64,
+    ) -> Cell {
+        let facts = program
+            .stmts
+            .iter()
+            .zip(text)
+            .enumerate()
+            .map(|(si, (st, (reads, parse_failed)))| {
+                let key = eval::join(&[&key, ":", itoa::Buffer::new().format(si)]);
+                StmtFacts {
+                    def_key: match &st.kind {
+                        StmtKind::Given(d) | StmtKind::Define(d) => Some(def_key(&d.name.name)),
+                        _ => None,
+                    },
+                    side_keys: matches!(st.kind, StmtKind::Check { .. })
+                        .then(|| [":lhs", ":rhs", ":diff"].map(|side| eval::join(&[&key, side]))),
+                    key,
+                    reads,
+                    parse_failed,
+                }
+            })
+            .collect();
+        Cell {
+            key,
+            source,
+            program,
+            last_run,
+            facts,
+        }
+    }
+}
+
+/// A cell's text, its syntax tree and what the tree says on its own (`text_facts`); none
+/// when the text is over the size limit, which `Worksheet::execute_prepared` then reports.
 #[derive(Debug)]
 pub struct Prepared<'s> {
     source: &'s str,
-    program: Option<Program>,
+    program: Option<(Program, TextFacts)>,
 }
 
 impl<'s> Prepared<'s> {
     pub fn new(source: &'s str) -> Self {
         Prepared {
             source,
-            program: (source.len() <= MAX_CELL_BYTES).then(|| parser::parse(source)),
+            program: (source.len() <= MAX_CELL_BYTES).then(|| {
+                let program = parser::parse(source);
+                let facts = text_facts(&program);
+                (program, facts)
+            }),
         }
     }
 }
@@ -147,7 +236,7 @@ impl Worksheet {
         interrupt: &Interrupt,
     ) -> Execution {
         let Prepared { source, program } = prepared;
-        let Some(program) = program else {
+        let Some((program, text)) = program else {
             let mut report = CellReport {
                 cell: cell.unwrap_or("").to_string(),
                 ..CellReport::default()
@@ -177,12 +266,13 @@ impl Worksheet {
         self.runs += 1;
         let mut cells = self.cells.clone();
         let mut changed = defined_names(&program);
-        let new_cell = Cell {
-            key: key.clone(),
-            source: Arc::from(source),
-            program: Arc::new(program),
-            last_run: self.runs,
-        };
+        let new_cell = Cell::with_facts(
+            key.clone(),
+            Arc::from(source),
+            Arc::new(program),
+            text,
+            self.runs,
+        );
         let run = match cells.iter().position(|c| c.key == key) {
             Some(i) => {
                 changed.extend(defined_names(&cells[i].program));
@@ -531,9 +621,11 @@ fn changes(old: Option<&CellReport>, new: &CellReport) -> Vec<Change> {
 struct DefEntry<'c> {
     name: String,
     /// The statement key ("d:NAME") its scalars and sites are recorded under.
-    key: String,
+    key: &'c str,
     cell: usize,
     expr: &'c Expr,
+    /// The names its text reads (`StmtFacts::reads`; none for a value set from outside).
+    reads: &'c [String],
     /// Where the value stands in the cell (errors in an override point here).
     value_span: Span,
     name_span: Span,
@@ -555,9 +647,9 @@ struct DefEntry<'c> {
 
 struct CheckEntry<'c> {
     cell: usize,
-    key: String,
+    key: &'c str,
     /// The keys its two sides and their difference are recorded under (`KEY:lhs`, …).
-    side_keys: [String; 3],
+    side_keys: &'c [String; 3],
     lhs: &'c Expr,
     op: CmpOp,
     rhs: &'c Expr,
@@ -568,7 +660,7 @@ struct CheckEntry<'c> {
 
 struct ShowEntry<'c> {
     cell: usize,
-    key: String,
+    key: &'c str,
     expr: &'c Expr,
     unit: Option<Unit>,
     unit_error: Option<EvalError>,
@@ -597,7 +689,7 @@ struct Model<'c> {
     /// The definitions each definition reads by name (also inside the functions it calls).
     deps: Vec<Vec<usize>>,
     /// The names behind `deps`, defined or not.
-    reads: Vec<Vec<String>>,
+    reads: Vec<Cow<'c, [String]>>,
     /// The cells evaluated (None: all); `order` then holds only what they need.
     live: Option<Vec<bool>>,
     checks: Vec<CheckEntry<'c>>,
@@ -670,7 +762,8 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
     for (ci, c) in cells.iter().enumerate() {
         let mut seen: Vec<String> = Vec::new();
         for (si, s) in c.program.stmts.iter().enumerate() {
-            let key = format!("{}:{si}", c.key);
+            let facts = &c.facts[si];
+            let key = facts.key.as_str();
             match &s.kind {
                 StmtKind::Given(d) | StmtKind::Define(d) => {
                     let given = matches!(s.kind, StmtKind::Given(_));
@@ -686,7 +779,7 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
                         ));
                         continue;
                     }
-                    let parse_failed = eval::has_error(&d.value);
+                    let parse_failed = c.facts[si].parse_failed;
                     let (unit, mut static_error) = match d.unit.as_ref().map(resolve_unit) {
                         Some(Ok(u)) => (Some(u), None),
                         Some(Err(e)) => (None, Some(e)),
@@ -707,10 +800,16 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
                     };
                     let idx = m.defs.len();
                     m.defs.push(DefEntry {
-                        key: def_key(&d.name.name),
+                        key: facts.def_key.as_deref().unwrap_or_default(),
                         name: d.name.name.clone(),
                         cell: ci,
                         expr: ov.map_or(&d.value, |o| &o.expr),
+                        // An override is a literal (`set_override` refuses names).
+                        reads: if ov.is_some() {
+                            &[]
+                        } else {
+                            &c.facts[si].reads
+                        },
                         value_span: d.value.span.clone(),
                         name_span: d.name.span.clone(),
                         unit,
@@ -759,13 +858,13 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
                     );
                 }
                 StmtKind::Check { lhs, op, rhs, note } => {
-                    if eval::has_error(lhs) || eval::has_error(rhs) {
+                    if c.facts[si].parse_failed {
                         continue;
                     }
                     m.items[ci].push(Item::Check(m.checks.len()));
                     m.checks.push(CheckEntry {
                         cell: ci,
-                        side_keys: [":lhs", ":rhs", ":diff"].map(|side| eval::join(&[&key, side])),
+                        side_keys: facts.side_keys.as_ref().unwrap_or(&NO_SIDES),
                         key,
                         lhs,
                         op: *op,
@@ -776,7 +875,7 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
                     });
                 }
                 StmtKind::Show { expr, as_unit } => {
-                    if eval::has_error(expr) {
+                    if c.facts[si].parse_failed {
                         continue;
                     }
                     let (unit, unit_error) = match as_unit.as_ref().map(resolve_unit) {
@@ -854,16 +953,10 @@ fn source_text(src: &str, span: Span) -> String {
 }
 
 /// Topological order of the definitions; definitions on a cycle get an error naming it.
-fn order_definitions(m: &mut Model<'_>) {
+fn order_definitions<'c>(m: &mut Model<'c>) {
     let n = m.defs.len();
-    let reads: Vec<Vec<String>> = (0..n)
-        .map(|i| {
-            let mut names = Vec::new();
-            eval::free_names(m.defs[i].expr, &[], &mut names);
-            through_functions(&m.funcs, &mut names);
-            names
-        })
-        .collect();
+    let reads: Vec<Cow<'c, [String]>> =
+        m.defs.iter().map(|d| expanded(&m.funcs, d.reads)).collect();
     let deps: Vec<Vec<usize>> = reads
         .iter()
         .map(|names| {
@@ -936,6 +1029,18 @@ fn order_definitions(m: &mut Model<'_>) {
     m.order = order;
     m.deps = deps;
     m.reads = reads;
+}
+
+/// `names` with the names read inside the user functions among them (`through_functions`),
+/// borrowed when there is no call to a user function.
+fn expanded<'a>(funcs: &HashMap<String, Function>, names: &'a [String]) -> Cow<'a, [String]> {
+    if names.iter().any(|n| funcs.contains_key(n)) {
+        let mut all = names.to_vec();
+        through_functions(funcs, &mut all);
+        Cow::Owned(all)
+    } else {
+        Cow::Borrowed(names)
+    }
 }
 
 /// Adds to `names` the names read inside the user functions among them, transitively: a
@@ -1025,10 +1130,9 @@ fn cells_to_evaluate(
         }
     }
     let mut live = vec![false; cells.len()];
-    let mut names = Vec::new();
     for (ci, c) in cells.iter().enumerate() {
         let mut dirty = ci == run;
-        for s in &c.program.stmts {
+        for (s, facts) in c.program.stmts.iter().zip(c.facts.iter()) {
             if dirty {
                 break;
             }
@@ -1037,9 +1141,7 @@ fn cells_to_evaluate(
                 StmtKind::Function { name, .. } => Some(&name.name),
                 _ => None,
             };
-            names.clear();
-            stmt_reads(s, &mut names);
-            through_functions(&model.funcs, &mut names);
+            let names = expanded(&model.funcs, &facts.reads);
             dirty = defines.is_some_and(|n| changed.contains(n))
                 || hit(&names)
                 || names
@@ -1207,6 +1309,9 @@ fn numeric_leaves(v: &Value, out: &mut Vec<Num>) {
 /// A definition's value at a point, with the scalars its evaluation recorded.
 type CachedDef = (Value, Vec<(usize, Num)>);
 
+/// Side keys of a statement that is no check (never used).
+static NO_SIDES: [String; 3] = [String::new(), String::new(), String::new()];
+
 fn def_key(name: &str) -> String {
     format!("d:{name}")
 }
@@ -1328,7 +1433,7 @@ impl Runner<'_> {
                     names: &scope,
                     reg: &mut self.reg,
                     pass: &mut pass,
-                    stmt_key: &def.key,
+                    stmt_key: def.key,
                     stmt_label: &def.name,
                     given: def.given,
                     locals: Vec::new(),
@@ -1369,7 +1474,7 @@ impl Runner<'_> {
                                 names: &NoNames,
                                 reg: &mut self.reg,
                                 pass: &mut pass,
-                                stmt_key: &def.key,
+                                stmt_key: def.key,
                                 stmt_label: &def.name,
                                 given: def.given,
                                 locals: Vec::new(),
@@ -1377,7 +1482,7 @@ impl Runner<'_> {
                                 calls: 0,
                                 notes: Vec::new(),
                             };
-                            ev.record_value(&def.key, &v);
+                            ev.record_value(def.key, &v);
                             if nominal {
                                 self.leaves[d] = Some(pass.touched[leaf_start..].to_vec());
                             }
@@ -1430,7 +1535,7 @@ impl Runner<'_> {
                 names: &scope,
                 reg: &mut self.reg,
                 pass: &mut pass,
-                stmt_key: &c.key,
+                stmt_key: c.key,
                 stmt_label: "check",
                 given: false,
                 locals: Vec::new(),
@@ -1481,7 +1586,7 @@ impl Runner<'_> {
                 names: &scope,
                 reg: &mut self.reg,
                 pass: &mut pass,
-                stmt_key: &s.key,
+                stmt_key: s.key,
                 stmt_label: &s.text,
                 given: false,
                 locals: Vec::new(),
@@ -1495,7 +1600,7 @@ impl Runner<'_> {
                 }
                 Ok(v)
             });
-            let r = r.inspect(|v| ev.record_value(&s.key, v));
+            let r = r.inspect(|v| ev.record_value(s.key, v));
             let notes = std::mem::take(&mut ev.notes);
             if nominal {
                 self.notes.extend(notes.into_iter().map(|n| (s.cell, n)));
@@ -1959,7 +2064,7 @@ fn evaluate(
                     let s = &model.shows[*i];
                     if let Some(v) = shown.get(i) {
                         an.value_rows(
-                            &s.key,
+                            s.key,
                             &s.text,
                             v,
                             s.unit.as_ref(),
@@ -2321,12 +2426,12 @@ mod tests {
     /// The cells as they will be once `source` runs as cell `key`.
     fn after(ws: &Worksheet, key: &str, source: &str) -> Vec<Cell> {
         let mut cells = ws.cells.clone();
-        let cell = Cell {
-            key: key.to_string(),
-            source: Arc::from(source),
-            program: Arc::new(parser::parse(source)),
-            last_run: ws.runs + 1,
-        };
+        let cell = Cell::new(
+            key.to_string(),
+            Arc::from(source),
+            Arc::new(parser::parse(source)),
+            ws.runs + 1,
+        );
         match cells.iter_mut().find(|c| c.key == key) {
             Some(c) => *c = cell,
             None => cells.push(cell),
