@@ -1250,7 +1250,9 @@ struct Runner<'m> {
     depends: Vec<Vec<usize>>,
     boxed: Vec<usize>,
     /// Definitions evaluated at points: (definition, its inputs' values) → value and scalars.
-    cache: HashMap<(usize, Vec<u64>), CachedDef>,
+    /// Per definition, a short list searched in order (a definition is seen at a few
+    /// points only, so this beats hashing a key built for every lookup).
+    cache: Vec<Vec<(Vec<u64>, CachedDef)>>,
     /// The scalar ids of each definition's numeric leaves, from the nominal pass.
     leaves: Vec<Option<Vec<usize>>>,
     /// The inputs each definition registered itself in the nominal pass (its tolerance
@@ -1321,22 +1323,39 @@ impl Runner<'_> {
     /// the inputs it depends on. None until every box pass has shown those inputs (a
     /// derivative enclosure of exactly zero over the box proves independence), and for
     /// passes over intervals.
-    fn cache_key(&self, d: usize, mode: &Mode) -> Option<(usize, Vec<u64>)> {
+    fn cache_key(&self, d: usize, mode: &Mode) -> Option<Vec<u64>> {
+        let values = self.cacheable(d, mode)?;
+        self.depends[d]
+            .iter()
+            .map(|&k| values.get(k).map(|v| v.lo.to_bits()))
+            .collect()
+    }
+
+    /// The pass's input values when definition `d` may be looked up in the cache: a pass
+    /// at a point for every input `d` depends on, all of them known.
+    fn cacheable<'v>(&self, d: usize, mode: &'v Mode) -> Option<&'v [Interval]> {
         let Mode::Assign { values, seed: None } = mode else {
             return None;
         };
         if self.boxed.get(d).copied() != Some(self.reg.inputs.len()) || self.reg.inputs.is_empty() {
             return None;
         }
-        let mut key = Vec::with_capacity(self.depends[d].len());
-        for &k in &self.depends[d] {
-            let v = values.get(k)?;
-            if !v.is_point() {
-                return None;
-            }
-            key.push(v.lo.to_bits());
-        }
-        Some((d, key))
+        self.depends[d]
+            .iter()
+            .all(|&k| values.get(k).is_some_and(|v| v.is_point()))
+            .then_some(values.as_slice())
+    }
+
+    /// What definition `d` gave at this point of the inputs it depends on, if it was seen.
+    fn cached(&self, d: usize, mode: &Mode) -> Option<&CachedDef> {
+        let values = self.cacheable(d, mode)?;
+        let deps = &self.depends[d];
+        self.cache.get(d)?.iter().find_map(|(key, hit)| {
+            deps.iter()
+                .zip(key)
+                .all(|(&k, &bits)| values[k].lo.to_bits() == bits)
+                .then_some(hit)
+        })
     }
 
     /// Every input each definition can reach: the ones it registered in the nominal pass and
@@ -1412,8 +1431,7 @@ impl Runner<'_> {
             }
             // At a point of the input box already seen for the inputs this definition
             // depends on, its value and everything it recorded are known.
-            let cache_key = self.cache_key(d, &pass.mode);
-            if let Some((v, recorded)) = cache_key.as_ref().and_then(|k| self.cache.get(k)) {
+            if let Some((v, recorded)) = self.cached(d, &pass.mode) {
                 for (id, n) in recorded {
                     pass.set_scalar(*id, *n);
                 }
@@ -1504,8 +1522,12 @@ impl Runner<'_> {
                             self.boxed[d] += 1;
                         }
                         self.boxed_value[d] = Some((v.clone(), recorded));
-                    } else if let Some(key) = cache_key {
-                        self.cache.insert(key, (v.clone(), recorded.collect()));
+                    } else if let Some(key) = self.cache_key(d, &pass.mode) {
+                        let entry = (key, (v.clone(), recorded.collect()));
+                        if self.cache.len() <= d {
+                            self.cache.resize_with(d + 1, Vec::new);
+                        }
+                        self.cache[d].push(entry);
                     }
                     values[d] = Some(Ok(v));
                 }
@@ -1710,7 +1732,7 @@ impl<'m> Runner<'m> {
             shown: HashMap::default(),
             depends: vec![Vec::new(); model.defs.len()],
             boxed: vec![0; model.defs.len()],
-            cache: HashMap::default(),
+            cache: Vec::new(),
             leaves: vec![None; model.defs.len()],
             own_inputs: vec![0..0; model.defs.len()],
             nominal_ok: vec![false; model.defs.len()],
