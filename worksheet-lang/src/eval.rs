@@ -831,6 +831,7 @@ impl<'a> Evaluator<'a> {
             ev: self,
             call_key,
             exact,
+            buf: String::new(),
         };
         let mut ctx = CallCtx { host: &mut host };
         (b.call)(&mut ctx, &slots).map_err(|e: CallError| {
@@ -1087,6 +1088,16 @@ struct Host<'e, 'a> {
     call_key: String,
     /// The arguments' ranges when every argument is exact (`is_certain`).
     exact: Option<Vec<Option<Interval>>>,
+    /// Where the keys of its choices and probes are built (one buffer for the call).
+    buf: String,
+}
+
+/// `parts`, joined into `buf`.
+fn fill(buf: &mut String, parts: &[&str]) {
+    buf.clear();
+    for p in parts {
+        buf.push_str(p);
+    }
 }
 
 impl CallHost for Host<'_, '_> {
@@ -1098,8 +1109,8 @@ impl CallHost for Host<'_, '_> {
         key: &str,
         pick: &mut dyn FnMut() -> Result<f64, CallError>,
     ) -> Result<f64, CallError> {
-        let k = join(&[&self.call_key, ":", key]);
-        if let Some(&v) = self.ev.reg.choices.get(&k) {
+        fill(&mut self.buf, &[&self.call_key, ":", key]);
+        if let Some(&v) = self.ev.reg.choices.get(self.buf.as_str()) {
             return Ok(v);
         }
         if !self.ev.nominal() {
@@ -1108,7 +1119,7 @@ impl CallHost for Host<'_, '_> {
             ));
         }
         let v = pick()?;
-        self.ev.reg.choices.insert(k, v);
+        self.ev.reg.choices.insert(self.buf.clone(), v);
         Ok(v)
     }
     fn part_input(
@@ -1145,9 +1156,9 @@ impl CallHost for Host<'_, '_> {
         }
     }
     fn probe(&mut self, key: &str, value: Num, rule: WarnRule) {
-        let k = join(&["probe:", &self.call_key, ":", key]);
+        fill(&mut self.buf, &["probe:", &self.call_key, ":", key]);
         if self.ev.nominal() {
-            let scalar = self.ev.reg.scalar_id(&k);
+            let scalar = self.ev.reg.scalar_id(&self.buf);
             if !self
                 .ev
                 .reg
@@ -1163,7 +1174,7 @@ impl CallHost for Host<'_, '_> {
                 });
             }
         }
-        self.ev.record(&k, value);
+        self.ev.record(&self.buf, value);
     }
     fn arg_range(&self, param: usize) -> Option<Interval> {
         if let Some(ranges) = &self.exact {

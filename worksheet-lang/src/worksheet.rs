@@ -1856,11 +1856,11 @@ impl Analysed<'_, '_> {
                 let si = nom.x.value();
                 let text = fmt_value(si, nom.dim, nom.abs, u);
                 let range_text = b.as_ref().map(|b| {
-                    format!(
-                        "{} … {}",
-                        fmt_value(b.min, nom.dim, nom.abs, u),
-                        fmt_value(b.max, nom.dim, nom.abs, u)
-                    )
+                    eval::join(&[
+                        &fmt_value(b.min, nom.dim, nom.abs, u),
+                        " … ",
+                        &fmt_value(b.max, nom.dim, nom.abs, u),
+                    ])
                 });
                 out.push(ValueRow {
                     preferred: preferred.clone(),
@@ -1881,8 +1881,8 @@ impl Analysed<'_, '_> {
             Value::Record(r) => {
                 for (i, f) in r.fields.iter().enumerate() {
                     self.value_rows(
-                        &format!("{key}.{}", f.name),
-                        &format!("{name}.{}", f.name),
+                        &eval::join(&[key, ".", f.name]),
+                        &eval::join(&[name, ".", f.name]),
                         &f.value,
                         None,
                         f.display,
@@ -2177,10 +2177,8 @@ fn evaluate(
             };
             // Of several rules on one value (same statement, same label), the most
             // severe one speaks: over tj_max, not also within 10 K of it.
-            let same = |f: &(usize, String, f64, WarningRow)| {
-                f.0 == ci && f.1 == format!("{}\u{0}{}", p.stmt, p.rule.label)
-            };
-            let id = format!("{}\u{0}{}", p.stmt, p.rule.label);
+            let id = eval::join(&[&p.stmt, "\u{0}", &p.rule.label]);
+            let same = |f: &(usize, String, f64, WarningRow)| f.0 == ci && f.1 == id;
             match fired.iter_mut().find(|f| same(f)) {
                 Some(f) if (above && limit > f.2) || (!above && limit < f.2) => {
                     *f = (ci, id, limit, row)
