@@ -79,27 +79,23 @@ impl<'e, E: Evaluate> Passes<'e, E> {
         self.key
             .extend(a.iter().flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()]));
         self.key.push(seed.map_or(u64::MAX, |x| x as u64));
-        if !self.memo.contains_key(&self.key) {
-            if self.interrupted {
-                return None;
-            }
-            self.count += 1;
-            match self.eval.pass(Mode::Assign {
-                values: a.to_vec(),
-                seed,
-            }) {
-                Some(p) => {
-                    self.memo.insert(self.key.clone(), p);
-                }
-                None => {
-                    self.interrupted = true;
-                    return None;
-                }
-            }
+        if let Some(p) = self.memo.get(&self.key) {
+            return p.scalars.get(s).copied().flatten();
         }
-        self.memo
-            .get(&self.key)
-            .and_then(|p| p.scalars.get(s).copied().flatten())
+        if self.interrupted {
+            return None;
+        }
+        self.count += 1;
+        let Some(p) = self.eval.pass(Mode::Assign {
+            values: a.to_vec(),
+            seed,
+        }) else {
+            self.interrupted = true;
+            return None;
+        };
+        let value = p.scalars.get(s).copied().flatten();
+        self.memo.insert(self.key.clone(), p);
+        value
     }
 
     pub fn box_pass(&mut self, seed: Option<usize>) -> Option<Pass> {
