@@ -285,12 +285,10 @@ impl Worksheet {
             }
         };
         // Only the cells this run can change are evaluated, when the others' reports are
-        // those of the same worksheet under the same overrides and options.
-        let focus = (cells.len() > 1
-            && !self.stale
-            && self.overrides.is_empty()
-            && self.reports.len() + 1 >= cells.len())
-        .then_some(Focus { run, changed });
+        // those of the same options (`stale`). With values set from outside, every cell is:
+        // the first cell reports an override that names no given, whichever cell defines it.
+        let focus = (cells.len() > 1 && !self.stale && self.overrides.is_empty())
+            .then_some(Focus { run, changed });
         let Some(reports) = evaluate(
             &cells,
             &self.overrides,
@@ -647,6 +645,8 @@ struct DefEntry<'c> {
 
 struct CheckEntry<'c> {
     cell: usize,
+    /// The names its two sides read (`StmtFacts::reads`).
+    reads: &'c [String],
     key: &'c str,
     /// The keys its two sides and their difference are recorded under (`KEY:lhs`, …).
     side_keys: &'c [String; 3],
@@ -660,6 +660,8 @@ struct CheckEntry<'c> {
 
 struct ShowEntry<'c> {
     cell: usize,
+    /// The names it reads (`StmtFacts::reads`).
+    reads: &'c [String],
     key: &'c str,
     expr: &'c Expr,
     unit: Option<Unit>,
@@ -864,6 +866,7 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
                     m.items[ci].push(Item::Check(m.checks.len()));
                     m.checks.push(CheckEntry {
                         cell: ci,
+                        reads: &facts.reads,
                         side_keys: facts.side_keys.as_ref().unwrap_or(&NO_SIDES),
                         key,
                         lhs,
@@ -886,6 +889,7 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
                     m.items[ci].push(Item::Show(m.shows.len()));
                     m.shows.push(ShowEntry {
                         cell: ci,
+                        reads: &facts.reads,
                         key,
                         expr,
                         unit,
@@ -1166,19 +1170,15 @@ fn restrict(model: &mut Model<'_>, live: Vec<bool>) {
             stack.push(d);
         }
     }
-    let mut names = Vec::new();
-    for (cell, expr) in model
+    let reads = model
         .checks
         .iter()
-        .flat_map(|c| [(c.cell, &c.lhs), (c.cell, &c.rhs)])
-        .chain(model.shows.iter().map(|s| (s.cell, &s.expr)))
-    {
-        if live[cell] {
-            eval::free_names(expr, &[], &mut names);
-        }
+        .map(|c| (c.cell, c.reads))
+        .chain(model.shows.iter().map(|s| (s.cell, s.reads)));
+    for (_, names) in reads.filter(|(cell, _)| live[*cell]) {
+        let names = expanded(&model.funcs, names);
+        stack.extend(names.iter().filter_map(|n| model.index.get(n).copied()));
     }
-    through_functions(&model.funcs, &mut names);
-    stack.extend(names.iter().filter_map(|n| model.index.get(n).copied()));
     while let Some(d) = stack.pop() {
         if !needed[d] {
             needed[d] = true;
