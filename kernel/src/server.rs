@@ -6,8 +6,11 @@
 //! - `execute` turns a worksheet run into what is published; `history` keeps the inputs;
 //! - `cursor` converts Jupyter's code-point positions to the language's byte offsets.
 //!
-//! Tasks: the heartbeat echo, the iopub publisher, a reader and a worker for shell (the
-//! worker runs evaluation on a blocking thread), the control loop, and a SIGINT watcher.
+//! Two threads, each with a current-thread tokio runtime. The shell thread serves shell and
+//! iopub: a reader, the worker (which evaluates cells on this thread, without handing them
+//! to another) and the iopub publisher. The main thread serves control, heartbeat and stdin,
+//! and watches SIGINT and the parent process, so an interrupt or a shutdown never waits for
+//! a cell.
 //! IOPub is a plain PUB socket: XPUB in `zeromq` 0.7 stalls every subscriber when one stops
 //! reading.
 
@@ -42,18 +45,12 @@ pub fn serve(connection_file: &Path) -> anyhow::Result<()> {
         libc::umask(0o077);
     }
     let conn = Connection::load(connection_file)?;
-    // The socket tasks share one thread: a request, its evaluation's hand-off and the
-    // replies cross no other thread (a third less of the kernel's time per trivial execute).
-    // Cells run on the blocking threads, so the sockets never wait for them.
+    // The tasks of each thread share it: a request, its evaluation and its replies cross no
+    // other thread. (This thread was started with the evaluator's stack by main.rs.)
     let runtime = tokio::runtime::Builder::new_current_thread()
-        // Evaluation recurses over nested expressions and calls (both capped by the
-        // language); a roomy stack keeps the deepest allowed worksheet far from the guard.
-        .thread_stack_size(EVAL_STACK_BYTES)
         .enable_all()
         .build()?;
     let result = runtime.block_on(run(&conn));
-    // An evaluation still running on a blocking thread has been interrupted; do not wait
-    // long for it.
     runtime.shutdown_timeout(Duration::from_millis(200));
     for path in conn.ipc_paths() {
         let _ = std::fs::remove_file(path);
@@ -63,18 +60,6 @@ pub fn serve(connection_file: &Path) -> anyhow::Result<()> {
 
 async fn run(conn: &Connection) -> anyhow::Result<()> {
     let ep = conn.endpoints();
-    let mut shell = zeromq::RouterSocket::new();
-    connection::bind(&mut shell, &ep.shell).await?;
-    let mut control = zeromq::RouterSocket::new();
-    connection::bind(&mut control, &ep.control).await?;
-    let mut stdin = zeromq::RouterSocket::new();
-    connection::bind(&mut stdin, &ep.stdin).await?;
-    let mut iopub = zeromq::PubSocket::new();
-    connection::bind(&mut iopub, &ep.iopub).await?;
-    let mut heartbeat = zeromq::RepSocket::new();
-    connection::bind(&mut heartbeat, &ep.heartbeat).await?;
-    tracing::info!("kernel listening on {}", ep.shell);
-
     let (iopub_tx, iopub_rx) = mpsc::unbounded_channel();
     let shared = Arc::new(Shared {
         session: wire::Session::new(conn.key.clone()),
@@ -85,18 +70,34 @@ async fn run(conn: &Connection) -> anyhow::Result<()> {
         busy: std::sync::atomic::AtomicBool::new(false),
         seen: Default::default(),
     });
+    // The shell thread binds its sockets while this one binds the others.
+    let (bound_tx, bound_rx) = tokio::sync::oneshot::channel();
+    let shell_shared = shared.clone();
+    let (shell_ep, iopub_ep) = (ep.shell.clone(), ep.iopub.clone());
+    std::thread::Builder::new()
+        .name("headroom-shell".into())
+        // Evaluation recurses over nested expressions and calls (both capped by the
+        // language); a roomy stack keeps the deepest allowed worksheet far from the guard.
+        .stack_size(EVAL_STACK_BYTES)
+        .spawn(move || serve_shell(shell_ep, iopub_ep, shell_shared, iopub_rx, bound_tx))?;
 
-    tokio::spawn(publish(iopub, iopub_rx));
+    let mut control = zeromq::RouterSocket::new();
+    connection::bind(&mut control, &ep.control).await?;
+    let mut stdin = zeromq::RouterSocket::new();
+    connection::bind(&mut stdin, &ep.stdin).await?;
+    let mut heartbeat = zeromq::RepSocket::new();
+    connection::bind(&mut heartbeat, &ep.heartbeat).await?;
+    match bound_rx.await {
+        Ok(Ok(())) => {}
+        Ok(Err(e)) => return Err(e),
+        Err(_) => anyhow::bail!("the shell thread stopped while binding its sockets"),
+    }
+    tracing::info!("kernel listening on {}", ep.shell);
+
     tokio::spawn(echo_heartbeat(heartbeat));
     tokio::spawn(drain_stdin(stdin));
     tokio::spawn(interrupt_on_sigint(shared.interrupt.clone()));
     tokio::spawn(exit_with_parent(shared.clone()));
-
-    let (shell_send, shell_recv) = shell.split();
-    let (queue_tx, queue_rx) = mpsc::unbounded_channel();
-    tokio::spawn(handlers::read_shell(shell_recv, shared.clone(), queue_tx));
-    let replier = Replier { socket: shell_send };
-    tokio::spawn(Shell::new(shared.clone(), replier, queue_rx).run());
 
     let (control_send, control_recv) = control.split();
     let replier = Replier {
@@ -119,6 +120,46 @@ async fn run(conn: &Connection) -> anyhow::Result<()> {
     }
     tokio::time::sleep(SHUTDOWN_GRACE).await;
     Ok(())
+}
+
+/// The shell thread: binds shell and iopub (saying how that went on `bound`), then serves
+/// them until the process ends.
+fn serve_shell(
+    shell_ep: String,
+    iopub_ep: String,
+    shared: Arc<Shared>,
+    iopub_rx: mpsc::UnboundedReceiver<zeromq::ZmqMessage>,
+    bound: tokio::sync::oneshot::Sender<anyhow::Result<()>>,
+) {
+    let runtime = match tokio::runtime::Builder::new_current_thread()
+        .enable_all()
+        .build()
+    {
+        Ok(r) => r,
+        Err(e) => {
+            let _ = bound.send(Err(e.into()));
+            return;
+        }
+    };
+    runtime.block_on(async move {
+        let mut shell = zeromq::RouterSocket::new();
+        let mut iopub = zeromq::PubSocket::new();
+        let binding = async {
+            connection::bind(&mut shell, &shell_ep).await?;
+            connection::bind(&mut iopub, &iopub_ep).await
+        };
+        if let Err(e) = binding.await {
+            let _ = bound.send(Err(e));
+            return;
+        }
+        let _ = bound.send(Ok(()));
+        tokio::spawn(publish(iopub, iopub_rx));
+        let (shell_send, shell_recv) = shell.split();
+        let (queue_tx, queue_rx) = mpsc::unbounded_channel();
+        tokio::spawn(handlers::read_shell(shell_recv, shared.clone(), queue_tx));
+        let replier = Replier { socket: shell_send };
+        Shell::new(shared, replier, queue_rx).run().await;
+    });
 }
 
 /// How long a shutdown waits for a running request's reply.

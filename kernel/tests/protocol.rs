@@ -834,8 +834,9 @@ async fn sigint_does_not_kill_the_kernel() {
 // ---------------------------------------------------------------------------------------
 // Tests of outputs: they need the language's evaluator.
 
-/// A cell that runs for seconds: ten million points with worst-case bands.
-const LONG_CELL: &str = "given a = 1 V ± 1 %\nsweep a over 1 V .. 2 V steps 10000000: a * a * a";
+/// A cell that runs for seconds: ten million points with worst-case bands, each calling a
+/// function that doubles itself ten times over (1 024 calls a point).
+const LONG_CELL: &str = "given a = 1 V ± 1 %\nf0(p) = p\nf1(p) = f0(p) + f0(p)\nf2(p) = f1(p) + f1(p)\nf3(p) = f2(p) + f2(p)\nf4(p) = f3(p) + f3(p)\nf5(p) = f4(p) + f4(p)\nf6(p) = f5(p) + f5(p)\nf7(p) = f6(p) + f6(p)\nf8(p) = f7(p) + f7(p)\nf9(p) = f8(p) + f8(p)\nf10(p) = f9(p) + f9(p)\nsweep a over 1 V .. 2 V steps 10000000: f10(a * a * a)";
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn an_error_aborts_the_queued_executes() {
@@ -909,6 +910,15 @@ async fn interrupt_stops_a_long_run_and_control_stays_responsive() {
             json!({"code": LONG_CELL, "silent": false, "store_history": true}),
         )
         .await;
+    // Queued behind the long cell while it runs: the interrupted cell fails, so this one is
+    // aborted (stop_on_error), though it waited in the socket all the while.
+    let queued = c
+        .send(
+            Channel::Shell,
+            "execute_request",
+            json!({"code": "b = 3 V", "silent": false, "store_history": true}),
+        )
+        .await;
     // Once execute_input is out the cell is running; give it a moment to get deep in.
     loop {
         let m = c.iopub_msg(REPLY_TIMEOUT).await.expect("execute_input");
@@ -938,6 +948,10 @@ async fn interrupt_stops_a_long_run_and_control_stays_responsive() {
     assert!(
         latency < Duration::from_secs(3),
         "stopped promptly: {latency:?}"
+    );
+    assert_eq!(
+        c.reply(Channel::Shell, &queued).await.content,
+        json!({"status": "aborted"})
     );
     // The kernel lives on, with the worksheet as it was.
     let (r, out) = c.execute("b * 2", json!({})).await;

@@ -1,7 +1,8 @@
 //! Request handling: one dispatch function per channel, each arm a call to a small handler.
 //!
-//! The shell channel is served in order by one task; evaluation runs on a blocking thread so
-//! that the control channel (interrupt, shutdown) stays responsive meanwhile.
+//! The shell channel is served in order by one task on the shell thread, which evaluates
+//! cells itself; the control channel (interrupt, shutdown) lives on another thread and stays
+//! responsive meanwhile.
 
 use super::cursor;
 use super::execute::{Outcome, Update};
@@ -17,7 +18,8 @@ use jupyter_protocol::{
 use ring::hmac;
 use serde_json::{json, Map, Value};
 use std::collections::{HashMap, VecDeque};
-use std::sync::{Arc, Mutex, MutexGuard};
+use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::sync::Arc;
 use tokio::sync::{mpsc, Notify};
 use worksheet_lang::{Completeness, Interrupt, Worksheet};
 use zeromq::{RouterSendHalf, SocketSend, ZmqMessage};
@@ -25,6 +27,10 @@ use zeromq::{RouterSendHalf, SocketSend, ZmqMessage};
 /// How long a failed cell's reply waits for requests sent right behind it, which
 /// `stop_on_error` then aborts. Short enough not to be noticed.
 const ABORT_WINDOW: std::time::Duration = std::time::Duration::from_millis(50);
+
+/// How long the shell reader gets, after a failed cell, to queue the requests that came
+/// while the cell ran: they are already in the socket, so a tick of the runtime suffices.
+const READ_BACKLOG: std::time::Duration = std::time::Duration::from_millis(2);
 
 /// What every task of the kernel shares.
 pub(crate) struct Shared {
@@ -181,9 +187,10 @@ fn bad_request(err: &serde_json::Error) -> Value {
     })
 }
 
-fn lock(ws: &Mutex<Worksheet>) -> MutexGuard<'_, Worksheet> {
-    // A panic inside the evaluator must not take the session down with it.
-    ws.lock().unwrap_or_else(|poisoned| poisoned.into_inner())
+/// Runs `f` on the worksheet, turning a panic inside the evaluator into `None`: a bug in
+/// one cell must not take the session down with it (the panic hook has logged it).
+fn guarded<T>(ws: &mut Worksheet, f: impl FnOnce(&mut Worksheet) -> T) -> Option<T> {
+    catch_unwind(AssertUnwindSafe(|| f(ws))).ok()
 }
 
 pub(crate) fn kernel_info() -> Value {
@@ -281,8 +288,8 @@ async fn shutdown(shared: &Shared, replier: &mut Replier, req: &Incoming) {
 // ---------------------------------------------------------------------------------------
 // shell
 
-/// Reads the shell socket continuously, so requests queue up while a cell runs (and
-/// `stop_on_error` can tell which were waiting).
+/// Reads the shell socket into the queue whenever the shell thread is free, so requests that
+/// wait behind a cell are known (and `stop_on_error` can tell which were waiting).
 pub(crate) async fn read_shell(
     mut recv: zeromq::RouterRecvHalf,
     shared: Arc<Shared>,
@@ -312,7 +319,8 @@ pub(crate) struct Shell {
     pub queue: mpsc::UnboundedReceiver<Incoming>,
     /// Requests taken off the queue after an error; their executes are aborted.
     pub aborting: VecDeque<Incoming>,
-    pub worksheet: Arc<Mutex<Worksheet>>,
+    /// Owned by the shell task: cells, completion and inspection run on the shell thread.
+    pub worksheet: Worksheet,
     pub execution_count: usize,
     pub history: History,
 }
@@ -328,7 +336,7 @@ impl Shell {
             replier,
             queue,
             aborting: VecDeque::new(),
-            worksheet: Arc::new(Mutex::new(Worksheet::new())),
+            worksheet: Worksheet::new(),
             execution_count: 0,
             history: History::default(),
         }
@@ -389,8 +397,8 @@ impl Shell {
                 reply
             }
             "kernel_info_request" => kernel_info(),
-            "complete_request" => self.complete(&req).await,
-            "inspect_request" => self.inspect(&req).await,
+            "complete_request" => self.complete(&req),
+            "inspect_request" => self.inspect(&req),
             "is_complete_request" => is_complete(&req),
             "history_request" => self.history(&req),
             _ => wire::content(&CommInfoReply::default(), &["comms"]),
@@ -411,9 +419,11 @@ impl Shell {
     /// This happens before the failed cell's reply is sent, so nothing a client sends in
     /// answer to that reply is aborted. A cell can fail faster than the requests sent right
     /// behind it ("run all") arrive, so stragglers get a short window from the moment the
-    /// failed cell started; a cell that ran longer than that waits no more.
+    /// failed cell started. Requests that came while the cell held the thread are still in
+    /// the socket: the reader gets a moment to queue them, however long the cell ran.
     async fn abort_queued(&mut self, started: tokio::time::Instant) {
-        tokio::time::sleep_until(started + ABORT_WINDOW).await;
+        let now = tokio::time::Instant::now();
+        tokio::time::sleep_until((started + ABORT_WINDOW).max(now + READ_BACKLOG)).await;
         while let Ok(r) = self.queue.try_recv() {
             self.aborting.push_back(r);
         }
@@ -454,16 +464,19 @@ impl Shell {
 
         let cell = cell_key(&req.metadata);
         let deleted = deleted_cells(&req.metadata);
-        let code = request.code.clone();
-        let worksheet = self.worksheet.clone();
-        let (outcome, evaluation) = tokio::task::spawn_blocking(move || {
-            let mut ws = lock(&worksheet);
+        let code = &request.code;
+        // The cell runs on this thread and holds it until it ends. One yield first lets the
+        // publisher and the socket's writer tasks (woken by the two messages above, and run
+        // before this task resumes) put `busy` and `execute_input` on the wire, so a client
+        // sees a long cell start when it starts.
+        tokio::task::yield_now().await;
+        let run = guarded(&mut self.worksheet, |ws| {
             // Cells deleted in the front end go first: their names are gone, and the cells
             // that used them say so.
             let keys: Vec<&str> = deleted.iter().map(String::as_str).collect();
             let mut gone = ws.forget(&keys, &interrupt).unwrap_or_default();
             // The timer leaves out parsing, as Python's figure leaves out compiling the cell.
-            let prepared = worksheet_lang::Prepared::new(&code);
+            let prepared = worksheet_lang::Prepared::new(code);
             let started = std::time::Instant::now();
             let mut ex = ws.execute_prepared(cell.as_deref(), prepared, &interrupt);
             let evaluation = started.elapsed();
@@ -473,13 +486,12 @@ impl Shell {
             });
             ex.updated.splice(0..0, gone);
             (Outcome::of(&ex), Some(evaluation))
-        })
-        .await
-        .unwrap_or_else(|e| {
-            tracing::error!("the evaluator failed: {e}");
+        });
+        let (outcome, evaluation) = run.unwrap_or_else(|| {
+            tracing::error!("the evaluator failed");
             let failed = Outcome::Failed {
                 ename: "InternalError".into(),
-                evalue: format!("the evaluator failed ({e}); please report this cell"),
+                evalue: "the evaluator failed; please report this cell".into(),
                 traceback: Vec::new(),
             };
             (failed, None)
@@ -580,7 +592,7 @@ impl Shell {
         }
     }
 
-    async fn complete(&mut self, req: &Incoming) -> Value {
+    fn complete(&mut self, req: &Incoming) -> Value {
         let cps = req.content["code"]
             .as_str()
             .map_or(0, |c| c.chars().count());
@@ -590,12 +602,8 @@ impl Shell {
             Err(e) => return bad_request(&e),
         };
         let byte = cursor::byte_of(&request.code, request.cursor_pos);
-        let worksheet = self.worksheet.clone();
-        let code = request.code.clone();
         let completion =
-            tokio::task::spawn_blocking(move || lock(&worksheet).complete(&code, byte))
-                .await
-                .unwrap_or_default();
+            guarded(&mut self.worksheet, |ws| ws.complete(&request.code, byte)).unwrap_or_default();
         let (start, end) = if completion.matches.is_empty() {
             (request.cursor_pos, request.cursor_pos)
         } else {
@@ -614,7 +622,7 @@ impl Shell {
         wire::content(&reply, &["metadata"])
     }
 
-    async fn inspect(&mut self, req: &Incoming) -> Value {
+    fn inspect(&mut self, req: &Incoming) -> Value {
         let cps = req.content["code"]
             .as_str()
             .map_or(0, |c| c.chars().count());
@@ -624,12 +632,7 @@ impl Shell {
             Err(e) => return bad_request(&e),
         };
         let byte = cursor::byte_of(&request.code, request.cursor_pos);
-        let worksheet = self.worksheet.clone();
-        let code = request.code;
-        let found = tokio::task::spawn_blocking(move || lock(&worksheet).inspect(&code, byte))
-            .await
-            .ok()
-            .flatten();
+        let found = guarded(&mut self.worksheet, |ws| ws.inspect(&request.code, byte)).flatten();
         let reply = match found {
             Some(i) => InspectReply {
                 found: true,
