@@ -59,8 +59,9 @@ const CAPPED: &str = "margin: 6px 0 2px 0; padding: 4px 8px; \
 border-left: 3px solid rgba(128, 128, 128, 0.6); background: rgba(128, 128, 128, 0.10)";
 
 /// Text escaped for element content.
-fn esc(s: &str) -> String {
-    encode_text(s).into_owned()
+/// The text escaped for HTML; borrowed when it needs no escaping.
+fn esc(s: &str) -> std::borrow::Cow<'_, str> {
+    encode_text(s)
 }
 
 fn section(out: &mut String, title: &str, span: usize) {
@@ -192,7 +193,7 @@ fn report_with(r: &CellReport, sweep_tables: bool) -> String {
         .iter()
         .map(|w| format!("<b>{}</b>: {}", esc(&w.source), esc(&w.text)))
         .collect();
-    warnings.extend(diagnostic_warnings(r).iter().map(|w| esc(w)));
+    warnings.extend(diagnostic_warnings(r).iter().map(|w| esc(w).into_owned()));
     if !warnings.is_empty() {
         let _ = write!(
             out,

@@ -37,16 +37,25 @@ fn document<'a>(
     warnings: impl IntoIterator<Item = &'a WarningRow>,
     sweeps: impl IntoIterator<Item = &'a SweepTable>,
 ) -> Value {
-    json!({
-        "version": 1,
-        "values": values.into_iter().map(value).collect::<Vec<_>>(),
-        "checks": checks.into_iter().map(check).collect::<Vec<_>>(),
-        "warnings": warnings
-            .into_iter()
-            .map(|w| json!({ "source": w.source, "text": w.text }))
-            .collect::<Vec<_>>(),
-        "sweeps": sweeps.into_iter().map(sweep).collect::<Vec<_>>(),
-    })
+    object([
+        ("version", json!(1)),
+        ("values", values.into_iter().map(value).collect()),
+        ("checks", checks.into_iter().map(check).collect()),
+        (
+            "warnings",
+            warnings
+                .into_iter()
+                .map(|w| json!({ "source": w.source, "text": w.text }))
+                .collect(),
+        ),
+        ("sweeps", sweeps.into_iter().map(sweep).collect()),
+    ])
+}
+
+/// A JSON object of built values, moved in. (`json!` would serialize each one again: a deep
+/// copy of every array and object it is given.)
+fn object<const N: usize>(pairs: [(&str, Value); N]) -> Value {
+    Value::Object(pairs.into_iter().map(|(k, v)| (k.to_string(), v)).collect())
 }
 
 /// A JSON number. The language turns every NaN or infinity into a domain error before it
@@ -118,13 +127,13 @@ fn sweep(s: &SweepTable) -> Value {
             Value::Object(m)
         })
         .collect();
-    json!({
-        "over": s.over,
-        "unit": unit_symbol(s.dim),
-        "absolute": s.absolute,
-        "points": nums(&pick(&s.points)),
-        "series": series,
-    })
+    object([
+        ("over", json!(s.over)),
+        ("unit", json!(unit_symbol(s.dim))),
+        ("absolute", json!(s.absolute)),
+        ("points", nums(&pick(&s.points))),
+        ("series", Value::Array(series)),
+    ])
 }
 
 /// Indices of the sweep points the data keeps: all of them up to `MAX_SWEEP_POINTS`, else

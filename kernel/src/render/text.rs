@@ -27,17 +27,25 @@ impl Grid<'_> {
     fn lines(&self) -> Vec<String> {
         let ncol = self.align.len();
         let mut widths = vec![0usize; ncol];
-        for row in &self.rows {
+        // Each cell's display width, measured once.
+        let cell_widths: Vec<Vec<usize>> = self
+            .rows
+            .iter()
+            .map(|row| row.iter().map(|c| c.width()).collect())
+            .collect();
+        for row in &cell_widths {
             for (w, cell) in widths.iter_mut().zip(row) {
-                *w = (*w).max(cell.width());
+                *w = (*w).max(*cell);
             }
         }
+        let pad = |line: &mut String, n: usize| line.extend(std::iter::repeat_n(' ', n));
         self.rows
             .iter()
-            .map(|row| {
+            .zip(&cell_widths)
+            .map(|(row, row_widths)| {
                 let mut line = String::from(INDENT);
                 let mut first = true;
-                for (i, cell) in row.iter().enumerate().take(ncol) {
+                for (i, (cell, width)) in row.iter().zip(row_widths).enumerate().take(ncol) {
                     if widths[i] == 0 {
                         continue;
                     }
@@ -45,19 +53,19 @@ impl Grid<'_> {
                         line.push_str(self.gaps[i]);
                     }
                     first = false;
-                    let pad = " ".repeat(widths[i] - cell.width());
                     match self.align[i] {
                         Align::Left => {
                             line.push_str(cell);
-                            line.push_str(&pad);
+                            pad(&mut line, widths[i] - width);
                         }
                         Align::Right => {
-                            line.push_str(&pad);
+                            pad(&mut line, widths[i] - width);
                             line.push_str(cell);
                         }
                     }
                 }
-                line.trim_end().to_string()
+                line.truncate(line.trim_end().len());
+                line
             })
             .collect()
     }

@@ -561,13 +561,13 @@ impl Shell {
 
     fn publish_outputs(&self, req: &Incoming, count: ExecutionCount, o: Outputs) {
         let shared = &self.shared;
+        // The bundles are moved into the content: `json!` would serialize them again.
         let display = |msg_type: &str, display_id: &str, data: Map<String, Value>| {
-            let content = json!({
-                "data": data,
-                "metadata": {},
-                "transient": {"display_id": display_id},
-            });
-            shared.publish(msg_type, req, &content);
+            let mut content = Map::new();
+            content.insert("data".into(), Value::Object(data));
+            content.insert("metadata".into(), json!({}));
+            content.insert("transient".into(), json!({"display_id": display_id}));
+            shared.publish(msg_type, req, &Value::Object(content));
         };
         if let Some(data) = o.block {
             display("display_data", &o.display_id, data);
@@ -576,12 +576,11 @@ impl Shell {
             display("display_data", &c.display_id, c.bundle);
         }
         if let Some(data) = o.shown {
-            let content = json!({
-                "execution_count": count.value(),
-                "data": data,
-                "metadata": {},
-            });
-            shared.publish("execute_result", req, &content);
+            let mut content = Map::new();
+            content.insert("execution_count".into(), json!(count.value()));
+            content.insert("data".into(), Value::Object(data));
+            content.insert("metadata".into(), json!({}));
+            shared.publish("execute_result", req, &Value::Object(content));
         }
         if let Some(text) = o.stderr {
             let s = StreamContent::stderr(&text);
