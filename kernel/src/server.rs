@@ -141,25 +141,37 @@ fn serve_shell(
             return;
         }
     };
-    runtime.block_on(async move {
-        let mut shell = zeromq::RouterSocket::new();
-        let mut iopub = zeromq::PubSocket::new();
-        let binding = async {
-            connection::bind(&mut shell, &shell_ep).await?;
-            connection::bind(&mut iopub, &iopub_ep).await
-        };
-        if let Err(e) = binding.await {
-            let _ = bound.send(Err(e));
-            return;
-        }
-        let _ = bound.send(Ok(()));
-        tokio::spawn(publish(iopub, iopub_rx));
-        let (shell_send, shell_recv) = shell.split();
-        let (queue_tx, queue_rx) = mpsc::unbounded_channel();
-        tokio::spawn(handlers::read_shell(shell_recv, shared.clone(), queue_tx));
-        let replier = Replier { socket: shell_send };
-        Shell::new(shared, replier, queue_rx).run().await;
-    });
+    let on_exit = shared.clone();
+    let served = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+        runtime.block_on(async move {
+            let mut shell = zeromq::RouterSocket::new();
+            let mut iopub = zeromq::PubSocket::new();
+            let binding = async {
+                connection::bind(&mut shell, &shell_ep).await?;
+                connection::bind(&mut iopub, &iopub_ep).await
+            };
+            if let Err(e) = binding.await {
+                let _ = bound.send(Err(e));
+                return false;
+            }
+            let _ = bound.send(Ok(()));
+            tokio::spawn(publish(iopub, iopub_rx));
+            let (shell_send, shell_recv) = shell.split();
+            let (queue_tx, queue_rx) = mpsc::unbounded_channel();
+            tokio::spawn(handlers::read_shell(shell_recv, shared.clone(), queue_tx));
+            let replier = Replier { socket: shell_send };
+            Shell::new(shared, replier, queue_rx).run().await;
+            true
+        })
+    }));
+    // Serving ends only when the shell socket closes or the worker panics outside a cell
+    // (a cell's own panic is caught and answered). A kernel without its shell would look
+    // alive to the heartbeat and answer nothing: it shuts down, so the client can restart it.
+    if served.unwrap_or(true) {
+        tracing::error!("the shell channel stopped; shutting the kernel down");
+        on_exit.interrupt.raise();
+        on_exit.shutdown.notify_one();
+    }
 }
 
 /// How long a shutdown waits for a running request's reply.
