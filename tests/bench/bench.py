@@ -507,8 +507,8 @@ def main():
         "before the kernel is spawned; start-up is timed from the spawn to the reply.",
         "¹ Both inside their kernel, during the reference-cell round trips: Python "
         "`time.perf_counter()` around the cell's own code inside the cell "
-        "(tests/bench/python/reference_cell.py), printed; Headroom's timer on its evaluator "
-        "thread from the parsed cell to its report (`Worksheet::execute_prepared`; the parse "
+        "(tests/bench/python/reference_cell.py), printed; Headroom's timer on its shell "
+        "thread, which evaluates the cell, from the parsed cell to its report (`Worksheet::execute_prepared`; the parse "
         "stays outside, as the compiling of the Python cell does), sent in the execute_reply's metadata "
         "(`headroom.evaluation_seconds`). For comparison, the same evaluation in-process in a "
         "tight loop (the `figures` bench binary, worksheet-lang/benches/figures.rs, with the "
