@@ -58,8 +58,7 @@ const MARK: &str = "text-align: left; padding: 2px 4px 2px 12px; white-space: no
 const CAPPED: &str = "margin: 6px 0 2px 0; padding: 4px 8px; \
 border-left: 3px solid rgba(128, 128, 128, 0.6); background: rgba(128, 128, 128, 0.10)";
 
-/// Text escaped for element content.
-/// The text escaped for HTML; borrowed when it needs no escaping.
+/// Text escaped for element content; borrowed when it needs no escaping.
 fn esc(s: &str) -> std::borrow::Cow<'_, str> {
     encode_text(s)
 }
