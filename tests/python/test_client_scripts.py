@@ -115,7 +115,11 @@ def test_interrupt_stops_a_long_sweep_and_the_kernel_lives_on(kernel):
     km, kc = kernel
     kc.execute("given b = 2 V")
     kc.get_shell_msg(timeout=TIMEOUT)
-    long_cell = "given a = 1 V ± 1 %\nsweep a over 1 V .. 2 V steps 10000000: a * a * a"
+    # Seconds of work: ten million points with worst-case bands, each calling a function
+    # that doubles itself ten times over (1 024 calls a point).
+    long_cell = ("given a = 1 V ± 1 %\nf0(p) = p" + "".join(
+        f"\nf{i}(p) = f{i - 1}(p) + f{i - 1}(p)" for i in range(1, 11))
+        + "\nsweep a over 1 V .. 2 V steps 10000000: f10(a * a * a)")
     msg_id = kc.execute(long_cell)
     # Once execute_input is out the cell is running; give it a moment to get deep in.
     while True:
