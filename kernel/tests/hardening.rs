@@ -1240,7 +1240,20 @@ async fn soak_20000_executes_none_lost_memory_flat() {
 /// A worksheet with tolerances and a ten-million-point sweep over it. Each point calls a
 /// function that doubles itself ten times over (1 024 calls), so the sweep runs for seconds
 /// however fast plain sweeps get, and every interrupt below lands while it runs.
-const SWEEP_SETUP: &str = "given r = 10 Ω ± 1 %\ngiven x = 0.5 V\ny = x * x / r\nf0(p) = p\nf1(p) = f0(p) + f0(p)\nf2(p) = f1(p) + f1(p)\nf3(p) = f2(p) + f2(p)\nf4(p) = f3(p) + f3(p)\nf5(p) = f4(p) + f4(p)\nf6(p) = f5(p) + f5(p)\nf7(p) = f6(p) + f6(p)\nf8(p) = f7(p) + f7(p)\nf9(p) = f8(p) + f8(p)\nf10(p) = f9(p) + f9(p)";
+const SWEEP_SETUP: &str = concat!(
+    "given r = 10 Ω ± 1 %\ngiven x = 0.5 V\ny = x * x / r\n",
+    "f0(p) = p\n",
+    "f1(p) = f0(p) + f0(p)\n",
+    "f2(p) = f1(p) + f1(p)\n",
+    "f3(p) = f2(p) + f2(p)\n",
+    "f4(p) = f3(p) + f3(p)\n",
+    "f5(p) = f4(p) + f4(p)\n",
+    "f6(p) = f5(p) + f5(p)\n",
+    "f7(p) = f6(p) + f6(p)\n",
+    "f8(p) = f7(p) + f7(p)\n",
+    "f9(p) = f8(p) + f8(p)\n",
+    "f10(p) = f9(p) + f9(p)\n",
+);
 const LONG_SWEEP: &str = "sweep x over 0 V .. 1 V steps 10000000: f10(y)";
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]

@@ -836,7 +836,21 @@ async fn sigint_does_not_kill_the_kernel() {
 
 /// A cell that runs for seconds: ten million points with worst-case bands, each calling a
 /// function that doubles itself ten times over (1 024 calls a point).
-const LONG_CELL: &str = "given a = 1 V ± 1 %\nf0(p) = p\nf1(p) = f0(p) + f0(p)\nf2(p) = f1(p) + f1(p)\nf3(p) = f2(p) + f2(p)\nf4(p) = f3(p) + f3(p)\nf5(p) = f4(p) + f4(p)\nf6(p) = f5(p) + f5(p)\nf7(p) = f6(p) + f6(p)\nf8(p) = f7(p) + f7(p)\nf9(p) = f8(p) + f8(p)\nf10(p) = f9(p) + f9(p)\nsweep a over 1 V .. 2 V steps 10000000: f10(a * a * a)";
+const LONG_CELL: &str = concat!(
+    "given a = 1 V ± 1 %\n",
+    "f0(p) = p\n",
+    "f1(p) = f0(p) + f0(p)\n",
+    "f2(p) = f1(p) + f1(p)\n",
+    "f3(p) = f2(p) + f2(p)\n",
+    "f4(p) = f3(p) + f3(p)\n",
+    "f5(p) = f4(p) + f4(p)\n",
+    "f6(p) = f5(p) + f5(p)\n",
+    "f7(p) = f6(p) + f6(p)\n",
+    "f8(p) = f7(p) + f7(p)\n",
+    "f9(p) = f8(p) + f8(p)\n",
+    "f10(p) = f9(p) + f9(p)\n",
+    "sweep a over 1 V .. 2 V steps 10000000: f10(a * a * a)",
+);
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn an_error_aborts_the_queued_executes() {
