@@ -13,6 +13,12 @@ from jupyter_client.manager import start_new_kernel
 KERNEL_NAME = "headroom"
 TIMEOUT = 15
 
+# Worksheet functions f0 … f10, each calling the one below it twice: f10 makes 1 024 calls.
+# A sweep of ten million points over f10 runs for seconds however fast plain sweeps get,
+# so a test can interrupt it while it runs.
+DOUBLING = "f0(p) = p" + "".join(
+    f"\nf{i}(p) = f{i - 1}(p) + f{i - 1}(p)" for i in range(1, 11))
+
 
 def pytest_configure(config: pytest.Config) -> None:
     try:

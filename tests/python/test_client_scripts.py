@@ -13,7 +13,7 @@ from jupyter_client.manager import KernelManager
 from jupyter_client.session import Session
 from jupyter_kernel_test.msgspec_v5 import msg_structure_validator, validate_message
 
-from conftest import KERNEL_NAME, TIMEOUT
+from conftest import DOUBLING, KERNEL_NAME, TIMEOUT
 
 
 def collect_outputs(kc, msg_id: str) -> list[dict]:
@@ -115,11 +115,9 @@ def test_interrupt_stops_a_long_sweep_and_the_kernel_lives_on(kernel):
     km, kc = kernel
     kc.execute("given b = 2 V")
     kc.get_shell_msg(timeout=TIMEOUT)
-    # Seconds of work: ten million points with worst-case bands, each calling a function
-    # that doubles itself ten times over (1 024 calls a point).
-    long_cell = ("given a = 1 V ± 1 %\nf0(p) = p" + "".join(
-        f"\nf{i}(p) = f{i - 1}(p) + f{i - 1}(p)" for i in range(1, 11))
-        + "\nsweep a over 1 V .. 2 V steps 10000000: f10(a * a * a)")
+    # Seconds of work: ten million points with worst-case bands, 1 024 calls a point.
+    long_cell = (f"given a = 1 V ± 1 %\n{DOUBLING}\n"
+                 "sweep a over 1 V .. 2 V steps 10000000: f10(a * a * a)")
     msg_id = kc.execute(long_cell)
     # Once execute_input is out the cell is running; give it a moment to get deep in.
     while True:
