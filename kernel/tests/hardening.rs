@@ -6,6 +6,9 @@
 //! Every server here binds 127.0.0.1 (or IPC files in a private temporary directory). Each
 //! test prints its figures; bounds are generous so a loaded machine does not fail them.
 
+#[macro_use]
+mod common;
+
 use hmac::{Hmac, Mac};
 use serde_json::{json, Value};
 use sha2::Sha256;
@@ -1242,17 +1245,7 @@ async fn soak_20000_executes_none_lost_memory_flat() {
 /// however fast plain sweeps get, and every interrupt below lands while it runs.
 const SWEEP_SETUP: &str = concat!(
     "given r = 10 Ω ± 1 %\ngiven x = 0.5 V\ny = x * x / r\n",
-    "f0(p) = p\n",
-    "f1(p) = f0(p) + f0(p)\n",
-    "f2(p) = f1(p) + f1(p)\n",
-    "f3(p) = f2(p) + f2(p)\n",
-    "f4(p) = f3(p) + f3(p)\n",
-    "f5(p) = f4(p) + f4(p)\n",
-    "f6(p) = f5(p) + f5(p)\n",
-    "f7(p) = f6(p) + f6(p)\n",
-    "f8(p) = f7(p) + f7(p)\n",
-    "f9(p) = f8(p) + f8(p)\n",
-    "f10(p) = f9(p) + f9(p)\n",
+    doubling_functions!(),
 );
 const LONG_SWEEP: &str = "sweep x over 0 V .. 1 V steps 10000000: f10(y)";
 

@@ -4,6 +4,9 @@
 //! kernel's `ring`-based code, and reads every message as raw JSON so that the shapes the
 //! message specification asks for are checked as sent.
 
+#[macro_use]
+mod common;
+
 use hmac::{Hmac, Mac};
 use serde_json::{json, Value};
 use sha2::Sha256;
@@ -838,17 +841,7 @@ async fn sigint_does_not_kill_the_kernel() {
 /// function that doubles itself ten times over (1 024 calls a point).
 const LONG_CELL: &str = concat!(
     "given a = 1 V ± 1 %\n",
-    "f0(p) = p\n",
-    "f1(p) = f0(p) + f0(p)\n",
-    "f2(p) = f1(p) + f1(p)\n",
-    "f3(p) = f2(p) + f2(p)\n",
-    "f4(p) = f3(p) + f3(p)\n",
-    "f5(p) = f4(p) + f4(p)\n",
-    "f6(p) = f5(p) + f5(p)\n",
-    "f7(p) = f6(p) + f6(p)\n",
-    "f8(p) = f7(p) + f7(p)\n",
-    "f9(p) = f8(p) + f8(p)\n",
-    "f10(p) = f9(p) + f9(p)\n",
+    doubling_functions!(),
     "sweep a over 1 V .. 2 V steps 10000000: f10(a * a * a)",
 );
 
