@@ -45,8 +45,9 @@ pub fn serve(connection_file: &Path) -> anyhow::Result<()> {
         libc::umask(0o077);
     }
     let conn = Connection::load(connection_file)?;
-    // The tasks of each thread share it: a request, its evaluation and its replies cross no
-    // other thread. (This thread was started with the evaluator's stack by main.rs.)
+    // This thread serves control, heartbeat and stdin; `run` starts the shell thread, which
+    // serves shell and iopub and evaluates. Each thread's tasks share it, so a request, its
+    // evaluation and its replies cross no other thread.
     let runtime = tokio::runtime::Builder::new_current_thread()
         .enable_all()
         .build()?;
