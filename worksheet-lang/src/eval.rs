@@ -1095,6 +1095,7 @@ struct Host<'e, 'a> {
 /// `parts`, joined into `buf`.
 fn fill(buf: &mut String, parts: &[&str]) {
     buf.clear();
+    buf.reserve(parts.iter().map(|p| p.len()).sum());
     for p in parts {
         buf.push_str(p);
     }

@@ -1264,6 +1264,9 @@ struct Runner<'m> {
     nominal_ok: Vec<bool>,
     /// Each definition's value and recorded scalars in the latest box pass.
     boxed_value: Vec<Option<CachedDef>>,
+    /// Each definition's value and recorded scalars in the nominal pass: what a pass at a
+    /// point gives where every input the definition depends on is at its nominal value.
+    nominal_def: Vec<Option<CachedDef>>,
 }
 
 /// A value with every derivative set to zero: what a definition that cannot reach an input
@@ -1346,10 +1349,19 @@ impl Runner<'_> {
             .then_some(values.as_slice())
     }
 
-    /// What definition `d` gave at this point of the inputs it depends on, if it was seen.
+    /// What definition `d` gave at this point of the inputs it depends on, if it was seen
+    /// (in the nominal pass, or in an earlier pass at a point).
     fn cached(&self, d: usize, mode: &Mode) -> Option<&CachedDef> {
         let values = self.cacheable(d, mode)?;
         let deps = &self.depends[d];
+        let at_nominal = deps
+            .iter()
+            .all(|&k| values[k].lo.to_bits() == self.reg.inputs[k].nominal.to_bits());
+        if at_nominal {
+            if let Some(hit) = &self.nominal_def[d] {
+                return Some(hit);
+            }
+        }
         self.cache.get(d)?.iter().find_map(|(key, hit)| {
             deps.iter()
                 .zip(key)
@@ -1513,7 +1525,9 @@ impl Runner<'_> {
                     let recorded = pass.touched[first_touched..]
                         .iter()
                         .filter_map(|&id| pass.scalars[id].map(|n| (id, n)));
-                    if let Mode::Box { seed } = pass.mode {
+                    if nominal {
+                        self.nominal_def[d] = Some((v.clone(), recorded.collect()));
+                    } else if let Mode::Box { seed } = pass.mode {
                         let recorded: Vec<(usize, Num)> = recorded.collect();
                         if let Some(k) = seed {
                             if recorded.iter().any(|(_, n)| n.x.d != Interval::ZERO) {
@@ -1738,6 +1752,7 @@ impl<'m> Runner<'m> {
             nominal_ok: vec![false; model.defs.len()],
             reach: None,
             boxed_value: vec![None; model.defs.len()],
+            nominal_def: vec![None; model.defs.len()],
         }
     }
 }
