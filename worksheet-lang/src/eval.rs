@@ -11,6 +11,7 @@ use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::num::{Dual, Interval};
 use crate::units::{self, Dim};
 use crate::value::{Num, Record, Value};
+use arrayvec::ArrayVec;
 use rustc_hash::FxHashMap as HashMap;
 use std::sync::Arc;
 
@@ -169,7 +170,7 @@ impl Pass {
         Pass {
             mode,
             scalars: vec![None; n_scalars],
-            touched: Vec::new(),
+            touched: Vec::with_capacity(n_scalars),
         }
     }
     pub(crate) fn set_scalar(&mut self, id: usize, n: Num) {
@@ -736,13 +737,18 @@ impl<'a> Evaluator<'a> {
         args: &[Arg],
         span: &Span,
     ) -> R<Value> {
-        let mut slots: Vec<Option<Value>> = vec![None; b.params.len()];
-        let mut spans: Vec<Span> = vec![span.clone(); b.params.len()];
+        // On the stack: a call is made in every pass (every built-in has at most
+        // MAX_PARAMS parameters, which a test checks).
+        let n = b.params.len().min(builtins::MAX_PARAMS);
+        let mut slots: ArrayVec<Option<Value>, { builtins::MAX_PARAMS }> =
+            (0..n).map(|_| None).collect();
+        let mut spans: ArrayVec<Span, { builtins::MAX_PARAMS }> =
+            (0..n).map(|_| span.clone()).collect();
         let mut positional = 0;
         for a in args {
             let idx = match &a.name {
                 None => {
-                    if positional >= b.params.len() {
+                    if positional >= n {
                         return Err(EvalError::new(
                             DiagKind::Argument,
                             &a.value.span,
@@ -753,7 +759,10 @@ impl<'a> Evaluator<'a> {
                     positional += 1;
                     positional - 1
                 }
-                Some(n) => match b.params.iter().position(|p| p.name == n.name) {
+                Some(n) => match b.params[..slots.len()]
+                    .iter()
+                    .position(|p| p.name == n.name)
+                {
                     Some(i) => i,
                     None => {
                         let names: Vec<String> =
@@ -786,6 +795,7 @@ impl<'a> Evaluator<'a> {
         if let Some((i, p)) = b
             .params
             .iter()
+            .take(n)
             .enumerate()
             .find(|(i, p)| p.required && slots[*i].is_none())
         {

@@ -1194,7 +1194,11 @@ pub fn parse_unit(text: &str) -> Result<Unit, UnitError> {
     }
     let mut p = Parser {
         src: text,
-        chars: text.chars().collect(),
+        chars: {
+            let mut chars = Vec::with_capacity(text.len());
+            chars.extend(text.chars());
+            chars
+        },
         pos: 0,
         depth: 0,
     };

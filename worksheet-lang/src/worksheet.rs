@@ -1767,12 +1767,12 @@ struct Analysed<'r, 'm> {
 }
 
 impl Analysed<'_, '_> {
-    fn scalar_by_id(&self, id: usize) -> Option<(Num, Option<ScalarBounds>)> {
+    fn scalar_by_id(&self, id: usize) -> Option<(Num, Option<&ScalarBounds>)> {
         let n = self.nominal.scalars.get(id).copied().flatten()?;
-        Some((n, self.bounds.get(id).cloned().flatten()))
+        Some((n, self.bounds.get(id).and_then(Option::as_ref)))
     }
 
-    fn scalar(&self, key: &str) -> Option<(Num, Option<ScalarBounds>)> {
+    fn scalar(&self, key: &str) -> Option<(Num, Option<&ScalarBounds>)> {
         self.scalar_by_id(self.reg.find_scalar(key)?)
     }
 
@@ -1865,12 +1865,12 @@ impl Analysed<'_, '_> {
         };
         match v {
             Value::Num(n) => {
-                let (nom, b) = self.scalar(key).unwrap_or((*n, None));
                 let preferred = display.and_then(|t| self.reg.unit(t).ok().cloned());
+                let (nom, b) = self.scalar(key).unwrap_or((*n, None));
                 let u = unit.or(preferred.as_ref());
                 let si = nom.x.value();
                 let text = fmt_value(si, nom.dim, nom.abs, u);
-                let range_text = b.as_ref().map(|b| {
+                let range_text = b.map(|b| {
                     eval::join(&[
                         &fmt_value(b.min, nom.dim, nom.abs, u),
                         " … ",
@@ -1887,7 +1887,7 @@ impl Analysed<'_, '_> {
                                 dim: nom.dim,
                                 absolute: nom.abs,
                             },
-                            bounds: b.as_ref().map(|b| self.bounds_of(b)),
+                            bounds: b.map(|b| self.bounds_of(b)),
                         },
                         text,
                     )
@@ -2134,7 +2134,7 @@ fn evaluate(
         }
     }
     // Warnings of the built-ins, judged at their worst case.
-    let probes = an.reg.probes.clone();
+    let probes = std::mem::take(&mut an.reg.probes);
     let mut fired: Vec<(usize, String, f64, WarningRow)> = Vec::new();
     for p in &probes {
         let Some(ci) = cell_of_stmt(&model, cells, &p.stmt) else {
@@ -2147,12 +2147,13 @@ fn evaluate(
             crate::builtins::WarnWhen::MaxAbove(l) => (true, l),
             crate::builtins::WarnWhen::MinBelow(l) => (false, l),
         };
-        let v = match &b {
+        let v = match b {
             Some(b) if above => b.max,
             Some(b) => b.min,
             None => nom.x.value(),
         };
         if (above && v > limit) || (!above && v < limit) {
+            let b = b.cloned();
             let at = match &b {
                 Some(b) => {
                     let corner = if above {
@@ -2234,8 +2235,9 @@ fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
     let (lhs, _) = an.scalar(lk)?;
     let (rhs, _) = an.scalar(rk)?;
     let (diff, b) = an.scalar(dk)?;
+    let conservative = b.is_some_and(|b| b.conservative);
     let le = matches!(c.op, CmpOp::Lt | CmpOp::Le);
-    let (worst_diff, at) = match &b {
+    let (worst_diff, at) = match b {
         Some(b) if le => (b.max, Some(b.max_at.clone())),
         Some(b) => (b.min, Some(b.min_at.clone())),
         None => (diff.x.value(), None),
@@ -2261,7 +2263,7 @@ fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
         absolute: worst.abs && limit.abs,
         margin,
         dim: diff.dim,
-        conservative: b.as_ref().is_some_and(|b| b.conservative),
+        conservative,
         worst_text,
         limit_text,
         margin_text: units::format_difference(margin, diff.dim, SIG),

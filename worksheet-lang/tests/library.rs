@@ -1597,3 +1597,16 @@ proptest! {
         }
     }
 }
+
+/// The evaluator gathers a call's arguments on the stack, room for `MAX_PARAMS` of them.
+#[test]
+fn every_builtin_has_room_for_its_parameters() {
+    for b in builtins::all() {
+        assert!(
+            b.params.len() <= builtins::MAX_PARAMS,
+            "{} has {} parameters",
+            b.path,
+            b.params.len()
+        );
+    }
+}

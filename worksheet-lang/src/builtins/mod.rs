@@ -23,6 +23,9 @@ use crate::units::Dim;
 use crate::value::{Num, Value};
 
 /// A built-in function of the library.
+/// The most parameters a built-in has (its arguments are gathered on the stack).
+pub const MAX_PARAMS: usize = 12;
+
 pub struct Builtin {
     /// Full path, e.g. "reg.linear".
     pub path: &'static str,
