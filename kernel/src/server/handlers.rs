@@ -117,7 +117,7 @@ impl Shared {
         let topic = Bytes::from(format!("kernel.{}.{msg_type}", self.session.id));
         let frames = self
             .session
-            .encode(&[topic], msg_type, Some(&parent.header), content);
+            .encode(&[topic], msg_type, Some(&parent.header_bytes), content);
         // The publisher task only stops when the kernel does.
         let _ = self.iopub.send(frames);
     }
@@ -150,7 +150,7 @@ impl Replier {
         let frames = shared.session.encode_with_metadata(
             &req.identities,
             msg_type,
-            Some(&req.header),
+            Some(&req.header_bytes),
             metadata,
             content,
         );

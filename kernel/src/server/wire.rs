@@ -30,9 +30,9 @@ const DELIMITER: &[u8] = b"<IDS|MSG>";
 pub(crate) struct Incoming {
     /// Routing frames (the ROUTER socket puts the peer's identity first).
     pub identities: Vec<Bytes>,
-    /// The header exactly as sent: it becomes the parent header of every message we send
-    /// in response.
-    pub header: Value,
+    /// The header exactly as sent, byte for byte: it becomes the parent header of every
+    /// message we send in response (a re-serialised copy could differ, e.g. in its date).
+    pub header_bytes: Bytes,
     pub msg_type: String,
     pub metadata: Value,
     pub content: Value,
@@ -76,7 +76,7 @@ pub(crate) fn decode(frames: ZmqMessage, key: &Option<hmac::Key>) -> Result<Inco
         .to_string();
     Ok(Incoming {
         identities: raw.zmq_identities,
-        header,
+        header_bytes: raw.jparts[0].clone(),
         msg_type,
         metadata,
         content,
@@ -118,7 +118,7 @@ impl Session {
         &self,
         identities: &[Bytes],
         msg_type: &str,
-        parent: Option<&Value>,
+        parent: Option<&Bytes>,
         content: &Value,
     ) -> ZmqMessage {
         let empty = Value::Object(Map::new());
@@ -131,7 +131,7 @@ impl Session {
         &self,
         identities: &[Bytes],
         msg_type: &str,
-        parent: Option<&Value>,
+        parent: Option<&Bytes>,
         metadata: &Value,
         content: &Value,
     ) -> ZmqMessage {
@@ -144,10 +144,9 @@ impl Session {
             msg_type,
             version: PROTOCOL_VERSION,
         };
-        let empty = Value::Object(Map::new());
         let parts = [
             Bytes::from(serde_json::to_vec(&header).unwrap_or_default()),
-            to_bytes(parent.unwrap_or(&empty)),
+            parent.cloned().unwrap_or_else(|| Bytes::from_static(b"{}")),
             to_bytes(metadata),
             to_bytes(content),
         ];
@@ -179,10 +178,11 @@ fn to_bytes(v: &Value) -> Bytes {
 }
 
 fn hex(bytes: &[u8]) -> String {
-    use std::fmt::Write;
+    const DIGITS: &[u8; 16] = b"0123456789abcdef";
     let mut s = String::with_capacity(bytes.len() * 2);
-    for b in bytes {
-        let _ = write!(s, "{b:02x}");
+    for &b in bytes {
+        s.push(char::from(DIGITS[usize::from(b >> 4)]));
+        s.push(char::from(DIGITS[usize::from(b & 0x0f)]));
     }
     s
 }
@@ -256,7 +256,8 @@ mod tests {
     fn encoded_messages_verify_and_decode() {
         let key = Some(hmac::Key::new(hmac::HMAC_SHA256, b"k"));
         let s = Session::new(key.clone());
-        let parent = json!({"msg_id": "p1", "msg_type": "kernel_info_request"});
+        // The parent header goes out byte for byte as the request carried it.
+        let parent = Bytes::from_static(br#"{"msg_type":"kernel_info_request", "msg_id": "p1"}"#);
         let id = [Bytes::from_static(b"peer")];
         let frames = s.encode(
             &id,
@@ -264,17 +265,20 @@ mod tests {
             Some(&parent),
             &json!({"status": "ok"}),
         );
+        assert_eq!(frames.get(4), Some(&parent));
         let m = decode(frames.clone(), &key).expect("our own message verifies");
         assert_eq!(m.msg_type, "kernel_info_reply");
         assert_eq!(m.identities, id.to_vec());
-        assert_eq!(m.header["version"], PROTOCOL_VERSION);
-        assert_eq!(m.header["session"], s.id.as_str());
-        assert_eq!(m.header["username"], "headroom");
-        let date = m.header["date"].as_str().expect("a date");
+        let header: Value = serde_json::from_slice(&m.header_bytes).expect("a JSON header");
+        assert_eq!(header["version"], PROTOCOL_VERSION);
+        assert_eq!(header["session"], s.id.as_str());
+        assert_eq!(header["username"], "headroom");
+        let date = header["date"].as_str().expect("a date");
         assert_eq!(date.len(), "2023-11-14T22:13:20.123456Z".len(), "{date}");
         // Every message has its own id.
         let again = decode(s.encode(&id, "status", None, &json!({})), &key).expect("verifies");
-        assert_ne!(again.header["msg_id"], m.header["msg_id"]);
+        let again: Value = serde_json::from_slice(&again.header_bytes).expect("a JSON header");
+        assert_ne!(again["msg_id"], header["msg_id"]);
         // A different key must not verify.
         let other = Some(hmac::Key::new(hmac::HMAC_SHA256, b"other"));
         assert!(decode(frames, &other).is_err());
