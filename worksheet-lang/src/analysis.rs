@@ -20,7 +20,7 @@
 //! differentiation in interval arithmetic as in L. B. Rall, "Automatic Differentiation:
 //! Techniques and Applications", Springer LNCS 120, 1981.
 
-use crate::eval::{InputInfo, Mode, Pass, Registry};
+use crate::eval::{InputInfo, Mode, Pass};
 use crate::num::Interval;
 use crate::value::Num;
 use rustc_hash::FxHashMap as HashMap;
@@ -130,11 +130,11 @@ fn sign(d: Interval) -> Sign {
 
 /// Analyses every scalar of the nominal pass. Returns None when interrupted.
 pub fn analyse<E: Evaluate>(
-    reg: &Registry,
+    inputs: &[InputInfo],
     nominal: &Pass,
     passes: &mut Passes<'_, E>,
 ) -> Option<Vec<Option<ScalarBounds>>> {
-    let n = reg.inputs.len();
+    let n = inputs.len();
     let m = nominal.scalars.len();
     let mut out = vec![None; m];
     if n == 0 {
@@ -148,11 +148,7 @@ pub fn analyse<E: Evaluate>(
             d[k] = p.scalars.get(s).copied().flatten().map(|x| x.x.d);
         }
     }
-    let nominal_point: Vec<Interval> = reg
-        .inputs
-        .iter()
-        .map(|i| Interval::point(i.nominal))
-        .collect();
+    let nominal_point: Vec<Interval> = inputs.iter().map(|i| Interval::point(i.nominal)).collect();
     for s in 0..m {
         let Some(nom) = nominal.scalars[s] else {
             continue;
@@ -170,7 +166,7 @@ pub fn analyse<E: Evaluate>(
             continue;
         }
         let end = |k: usize, want_max: bool| -> Interval {
-            let i = &reg.inputs[k];
+            let i = &inputs[k];
             match (signs[k], want_max) {
                 (Sign::Up, false) | (Sign::Down, true) => Interval::point(i.lo),
                 (Sign::Up, true) | (Sign::Down, false) => Interval::point(i.hi),
@@ -202,8 +198,8 @@ pub fn analyse<E: Evaluate>(
                 3 => 2,
                 _ => 1,
             };
-            let lo = enclose(reg, passes, s, &min_at, &unknown, pieces, false);
-            let hi = enclose(reg, passes, s, &max_at, &unknown, pieces, true);
+            let lo = enclose(inputs, passes, s, &min_at, &unknown, pieces, false);
+            let hi = enclose(inputs, passes, s, &max_at, &unknown, pieces, true);
             if passes.interrupted {
                 return None;
             }
@@ -222,9 +218,9 @@ pub fn analyse<E: Evaluate>(
         let mut half_swings = Vec::with_capacity(depends.len());
         for &k in &depends {
             let mut a = nominal_point.clone();
-            a[k] = Interval::point(reg.inputs[k].lo);
+            a[k] = Interval::point(inputs[k].lo);
             let f_lo = passes.at(&a, s).map(|x| x.x.value());
-            a[k] = Interval::point(reg.inputs[k].hi);
+            a[k] = Interval::point(inputs[k].hi);
             let f_hi = passes.at(&a, s).map(|x| x.x.value());
             if passes.interrupted {
                 return None;
@@ -251,7 +247,7 @@ pub fn analyse<E: Evaluate>(
 /// the others fixed at their deciding ends. Also returns the worst sampled point, and
 /// whether every sub-range proved monotone (then the bound is exact).
 fn enclose<E: Evaluate>(
-    reg: &Registry,
+    inputs: &[InputInfo],
     passes: &mut Passes<'_, E>,
     s: usize,
     base: &[Interval],
@@ -278,7 +274,7 @@ fn enclose<E: Evaluate>(
         for &k in unknown {
             let j = idx % pieces;
             idx /= pieces;
-            a[k] = sub_range(&reg.inputs[k], j, pieces);
+            a[k] = sub_range(&inputs[k], j, pieces);
         }
         let v = passes.at(&a, s)?;
         if !v.x.is_finite() {

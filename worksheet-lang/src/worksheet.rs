@@ -1760,7 +1760,6 @@ impl<'m> Runner<'m> {
 /// The analysed state of one evaluation: the nominal pass, the bounds of every scalar,
 /// and the memoised passes (to read other scalars at a deciding corner).
 struct Analysed<'r, 'm> {
-    reg: Registry,
     nominal: Pass,
     bounds: Vec<Option<ScalarBounds>>,
     passes: Passes<'r, Runner<'m>>,
@@ -1773,12 +1772,12 @@ impl Analysed<'_, '_> {
     }
 
     fn scalar(&self, key: &str) -> Option<(Num, Option<&ScalarBounds>)> {
-        self.scalar_by_id(self.reg.find_scalar(key)?)
+        self.scalar_by_id(self.passes.eval.reg.find_scalar(key)?)
     }
 
     /// Scalar `key` at the assignment `at`.
     fn at(&mut self, at: &[Interval], key: &str) -> Option<Num> {
-        let id = self.reg.find_scalar(key)?;
+        let id = self.passes.eval.reg.find_scalar(key)?;
         self.passes.at(at, id)
     }
 
@@ -1790,7 +1789,7 @@ impl Analysed<'_, '_> {
         let total: f64 = b.half_swings.iter().map(|&h| scaled(h)).sum();
         let mut shares: Vec<Share> = Vec::new();
         for (k, &h) in b.depends.iter().zip(&b.half_swings) {
-            let label = &self.reg.inputs[*k].label;
+            let label = &self.passes.eval.reg.inputs[*k].label;
             let f = if total > 0.0 { scaled(h) / total } else { 0.0 };
             match shares.iter_mut().find(|x| &x.input == label) {
                 Some(x) => x.fraction += f,
@@ -1821,13 +1820,13 @@ impl Analysed<'_, '_> {
     fn describe_corner(&mut self, b: &ScalarBounds, at: &[Interval]) -> String {
         let mut parts: Vec<String> = Vec::new();
         for &k in &b.depends {
-            let Some(&sid) = self.reg.input_scalars.get(k) else {
+            let Some(&sid) = self.passes.eval.reg.input_scalars.get(k) else {
                 continue;
             };
             if sid == usize::MAX {
                 continue;
             }
-            let label = self.reg.inputs[k].label.clone();
+            let label = self.passes.eval.reg.inputs[k].label.clone();
             if let Some(v) = self.passes.at(at, sid) {
                 let t = format!(
                     "{label} = {}",
@@ -1865,7 +1864,7 @@ impl Analysed<'_, '_> {
         };
         match v {
             Value::Num(n) => {
-                let preferred = display.and_then(|t| self.reg.unit(t).ok().cloned());
+                let preferred = display.and_then(|t| self.passes.eval.reg.unit(t).ok().cloned());
                 let (nom, b) = self.scalar(key).unwrap_or((*n, None));
                 let u = unit.or(preferred.as_ref());
                 let si = nom.x.value();
@@ -2029,13 +2028,12 @@ fn evaluate(
             (runner, nominal)
         }
     };
-    let reg = runner.reg.clone();
+    let inputs = runner.reg.inputs.clone();
     let nominal_values = std::mem::take(&mut runner.nominal_values);
     let shown = std::mem::take(&mut runner.shown);
     let mut passes = Passes::new(&mut runner);
-    let bounds = analysis::analyse(&reg, &nominal, &mut passes)?;
+    let bounds = analysis::analyse(&inputs, &nominal, &mut passes)?;
     let mut an = Analysed {
-        reg,
         nominal,
         bounds,
         passes,
@@ -2118,9 +2116,9 @@ fn evaluate(
                         &SweepHost {
                             model: &model,
                             interrupt,
-                            choices: &an.reg.choices,
-                            known: &an.reg.known,
-                            base: Some((&an.reg, &an.nominal, &an.bounds)),
+                            choices: &an.passes.eval.reg.choices,
+                            known: &an.passes.eval.reg.known,
+                            base: Some((&an.passes.eval.reg, &an.nominal, &an.bounds)),
                             fast: options.fast_sweeps,
                         },
                         s.stmt,
@@ -2134,7 +2132,7 @@ fn evaluate(
         }
     }
     // Warnings of the built-ins, judged at their worst case.
-    let probes = std::mem::take(&mut an.reg.probes);
+    let probes = std::mem::take(&mut an.passes.eval.reg.probes);
     let mut fired: Vec<(usize, String, f64, WarningRow)> = Vec::new();
     for p in &probes {
         let Some(ci) = cell_of_stmt(&model, cells, &p.stmt) else {
@@ -2207,7 +2205,7 @@ fn evaluate(
     for (ci, _, _, row) in fired {
         reports[ci].warnings.push(row);
     }
-    for (label, key, text) in &an.reg.warnings {
+    for (label, key, text) in &an.passes.eval.reg.warnings {
         if let Some(ci) = cell_of_stmt(&model, cells, key) {
             reports[ci].warnings.push(WarningRow {
                 source: label.clone(),
@@ -2431,8 +2429,9 @@ impl SweepHost<'_> {
                 });
             }
         }
+        let inputs = reg.inputs.clone();
         let mut passes = Passes::new(&mut r);
-        let bounds = analysis::analyse(&reg, &nominal, &mut passes)?;
+        let bounds = analysis::analyse(&inputs, &nominal, &mut passes)?;
         let values = (0..exprs.len())
             .map(|j| {
                 let id = reg.find_scalar(&format!("sw:{j}"))?;
