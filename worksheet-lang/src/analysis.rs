@@ -47,11 +47,18 @@ pub trait Evaluate {
     fn pass(&mut self, mode: Mode) -> Option<Pass>;
 }
 
+/// Below this many memoised passes a lookup compares assignments in place; from there on
+/// it hashes them (a subdivided analysis runs hundreds of passes).
+const SCAN_LIMIT: usize = 32;
+
 /// Runs passes with memoisation: the same assignment is evaluated once.
 pub struct Passes<'e, E: Evaluate> {
     pub eval: &'e mut E,
-    memo: HashMap<Vec<u64>, Pass>,
-    /// The key being looked up (reused: most lookups find a pass already run).
+    /// The passes run, with their assignment and seed.
+    memo: Vec<(Vec<Interval>, Option<usize>, Pass)>,
+    /// The memo's index by the bits of assignment and seed, used past `SCAN_LIMIT`.
+    index: HashMap<Vec<u64>, usize>,
+    /// The key being looked up (reused).
     key: Vec<u64>,
     pub count: usize,
     pub interrupted: bool,
@@ -61,7 +68,8 @@ impl<'e, E: Evaluate> Passes<'e, E> {
     pub fn new(eval: &'e mut E) -> Self {
         Passes {
             eval,
-            memo: HashMap::default(),
+            memo: Vec::new(),
+            index: HashMap::default(),
             key: Vec::new(),
             count: 0,
             interrupted: false,
@@ -75,12 +83,22 @@ impl<'e, E: Evaluate> Passes<'e, E> {
 
     /// The value of scalar `s` under `a`, with the derivative of input `seed` carried.
     pub fn at_seeded(&mut self, a: &[Interval], seed: Option<usize>, s: usize) -> Option<Num> {
-        self.key.clear();
-        self.key
-            .extend(a.iter().flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()]));
-        self.key.push(seed.map_or(u64::MAX, |x| x as u64));
-        if let Some(p) = self.memo.get(&self.key) {
-            return p.scalars.get(s).copied().flatten();
+        let same = |x: &Interval, y: &Interval| {
+            x.lo.to_bits() == y.lo.to_bits() && x.hi.to_bits() == y.hi.to_bits()
+        };
+        let found = if self.memo.len() < SCAN_LIMIT {
+            self.memo.iter().position(|(at, sd, _)| {
+                *sd == seed && at.len() == a.len() && at.iter().zip(a).all(|(x, y)| same(x, y))
+            })
+        } else {
+            self.key.clear();
+            self.key
+                .extend(a.iter().flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()]));
+            self.key.push(seed.map_or(u64::MAX, |x| x as u64));
+            self.index.get(&self.key).copied()
+        };
+        if let Some(i) = found {
+            return self.memo[i].2.scalars.get(s).copied().flatten();
         }
         if self.interrupted {
             return None;
@@ -94,7 +112,19 @@ impl<'e, E: Evaluate> Passes<'e, E> {
             return None;
         };
         let value = p.scalars.get(s).copied().flatten();
-        self.memo.insert(self.key.clone(), p);
+        self.memo.push((a.to_vec(), seed, p));
+        if self.memo.len() >= SCAN_LIMIT {
+            // Index every pass once the memo is long enough to be hashed.
+            for i in self.index.len()..self.memo.len() {
+                let (at, sd, _) = &self.memo[i];
+                let key = at
+                    .iter()
+                    .flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()])
+                    .chain([sd.map_or(u64::MAX, |x| x as u64)])
+                    .collect();
+                self.index.insert(key, i);
+            }
+        }
         value
     }
 
