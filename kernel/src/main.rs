@@ -1,5 +1,6 @@
 //! `headroom`: the Jupyter kernel and the command line of the Headroom worksheet language.
 
+mod alloc;
 mod install;
 mod notebook;
 mod outputs;
@@ -11,10 +12,9 @@ use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-/// A cell's evaluation makes many small, short-lived allocations (values, keys, texts);
-/// mimalloc serves them faster than the system allocator.
+/// mimalloc (see `alloc`): a cell's evaluation makes many small, short-lived allocations.
 #[global_allocator]
-static ALLOC: mimalloc::MiMalloc = mimalloc::MiMalloc;
+static ALLOC: alloc::Mimalloc = alloc::Mimalloc;
 
 #[derive(Parser)]
 #[command(

@@ -12,10 +12,11 @@
 
 mod shared;
 
-/// The kernel's allocator (kernel/src/main.rs), so the in-process figures run on what the
-/// kernel runs on.
+/// The kernel's allocator, so the in-process figures run on what the kernel runs on.
+#[path = "../../kernel/src/alloc.rs"]
+mod alloc;
 #[global_allocator]
-static ALLOC: mimalloc::MiMalloc = mimalloc::MiMalloc;
+static ALLOC: alloc::Mimalloc = alloc::Mimalloc;
 
 use std::hint::black_box;
 use std::process::ExitCode;
