@@ -170,27 +170,29 @@ pub fn analyse<E: Evaluate>(
     if n == 0 {
         return Some(out);
     }
-    // Box passes: derivative enclosures per input.
-    let mut derivs: Vec<Vec<Option<Interval>>> = vec![vec![None; n]; m];
+    // Box passes: derivative enclosures per input, scalar s's row at s·n.
+    let mut derivs: Vec<Option<Interval>> = vec![None; m * n];
     for k in 0..n {
         let p = passes.box_pass(Some(k))?;
-        for (s, d) in derivs.iter_mut().enumerate() {
+        for (s, d) in derivs.chunks_exact_mut(n).enumerate() {
             d[k] = p.scalars.get(s).copied().flatten().map(|x| x.x.d);
         }
     }
     let nominal_point: Vec<Interval> = inputs.iter().map(|i| Interval::point(i.nominal)).collect();
+    // Scratch rows, reused from scalar to scalar.
+    let mut signs: Vec<Sign> = Vec::with_capacity(n);
+    let mut unknown: Vec<usize> = Vec::with_capacity(n);
+    let mut one_at_a_time = nominal_point.clone();
     for s in 0..m {
         let Some(nom) = nominal.scalars[s] else {
             continue;
         };
-        let signs: Vec<Sign> = derivs[s]
-            .iter()
-            .map(|d| match d {
-                Some(d) => sign(*d),
-                // Failed in a box pass (its error is reported elsewhere): treat as unknown.
-                None => Sign::Unknown,
-            })
-            .collect();
+        signs.clear();
+        signs.extend(derivs[s * n..(s + 1) * n].iter().map(|d| match d {
+            Some(d) => sign(*d),
+            // Failed in a box pass (its error is reported elsewhere): treat as unknown.
+            None => Sign::Unknown,
+        }));
         let depends: Vec<usize> = (0..n).filter(|&k| signs[k] != Sign::Zero).collect();
         if depends.is_empty() {
             continue;
@@ -203,11 +205,13 @@ pub fn analyse<E: Evaluate>(
                 _ => Interval::point(i.nominal),
             }
         };
-        let unknown: Vec<usize> = depends
-            .iter()
-            .copied()
-            .filter(|&k| signs[k] == Sign::Unknown)
-            .collect();
+        unknown.clear();
+        unknown.extend(
+            depends
+                .iter()
+                .copied()
+                .filter(|&k| signs[k] == Sign::Unknown),
+        );
         let mut min_at: Vec<Interval> = (0..n).map(|k| end(k, false)).collect();
         let mut max_at: Vec<Interval> = (0..n).map(|k| end(k, true)).collect();
         let (min, max, conservative) = if unknown.is_empty() {
@@ -247,11 +251,12 @@ pub fn analyse<E: Evaluate>(
         };
         let mut half_swings = Vec::with_capacity(depends.len());
         for &k in &depends {
-            let mut a = nominal_point.clone();
+            let a = &mut one_at_a_time;
             a[k] = Interval::point(inputs[k].lo);
-            let f_lo = passes.at(&a, s).map(|x| x.x.value());
+            let f_lo = passes.at(a, s).map(|x| x.x.value());
             a[k] = Interval::point(inputs[k].hi);
-            let f_hi = passes.at(&a, s).map(|x| x.x.value());
+            let f_hi = passes.at(a, s).map(|x| x.x.value());
+            a[k] = nominal_point[k];
             if passes.interrupted {
                 return None;
             }

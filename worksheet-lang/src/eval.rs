@@ -100,6 +100,8 @@ pub struct Registry {
     /// Set when a built-in asked for an argument range that was not known yet.
     pub wanted_ranges: std::cell::Cell<bool>,
     units: Vec<(String, Result<units::Unit, units::UnitError>)>,
+    /// A buffer for building keys, lent to each built-in call in turn.
+    key_buf: String,
 }
 
 impl Registry {
@@ -837,14 +839,17 @@ impl<'a> Evaluator<'a> {
                 })
                 .collect()
         });
+        let buf = std::mem::take(&mut self.reg.key_buf);
         let mut host = Host {
             ev: self,
             call_key,
             exact,
-            buf: String::new(),
+            buf,
         };
         let mut ctx = CallCtx { host: &mut host };
-        (b.call)(&mut ctx, &slots).map_err(|e: CallError| {
+        let result = (b.call)(&mut ctx, &slots);
+        host.ev.reg.key_buf = host.buf;
+        result.map_err(|e: CallError| {
             let at = e
                 .param
                 .and_then(|i| spans.get(i).cloned())
@@ -1098,7 +1103,8 @@ struct Host<'e, 'a> {
     call_key: String,
     /// The arguments' ranges when every argument is exact (`is_certain`).
     exact: Option<Vec<Option<Interval>>>,
-    /// Where the keys of its choices and probes are built (one buffer for the call).
+    /// Where the keys of its choices and probes are built (the registry's buffer, lent for
+    /// the call).
     buf: String,
 }
 
