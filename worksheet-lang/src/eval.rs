@@ -100,8 +100,12 @@ pub struct Registry {
     /// Set when a built-in asked for an argument range that was not known yet.
     pub wanted_ranges: std::cell::Cell<bool>,
     units: Vec<(String, Result<units::Unit, units::UnitError>)>,
-    /// A buffer for building keys, lent to each built-in call in turn.
+    /// Buffers for building keys, lent to each built-in call in turn: its own key, and the
+    /// keys of its choices and probes.
+    call_buf: String,
     key_buf: String,
+    /// The buffer for the keys of tolerance sites.
+    site_buf: String,
 }
 
 impl Registry {
@@ -304,25 +308,33 @@ impl<'a> Evaluator<'a> {
         site_value: impl Fn(Dual) -> R<Num>,
     ) -> R<Num> {
         let mut offset = itoa::Buffer::new();
-        let key = join(&[self.stmt_key, "@", offset.format(span.start)]);
+        // "input:statement@offset": the scalar of the site; the site's key is what follows
+        // "input:". Built in the registry's buffer (lost, harmlessly, on an error).
+        const SCALAR: &str = "input:";
+        let mut skey = std::mem::take(&mut self.reg.site_buf);
+        fill(
+            &mut skey,
+            &[SCALAR, self.stmt_key, "@", offset.format(span.start)],
+        );
+        let key = &skey[SCALAR.len()..];
         // The label is read only where the site is registered, in the nominal pass.
         let label = match (self.nominal(), self.given) {
             (false, _) => String::new(),
             (true, true) => self.stmt_label.to_string(),
             (true, false) => join(&["tolerance in ", self.stmt_label]),
         };
-        let e = self.input(&key, label, nominal, lo, hi)?;
+        let e = self.input(key, label, nominal, lo, hi)?;
         let n = site_value(e)?;
-        let skey = join(&["input:", &key]);
         if self.nominal() {
             let sid = self.reg.scalar_id(&skey);
-            let iid = self.reg.input_index[&key];
+            let iid = self.reg.input_index[key];
             if self.reg.input_scalars.len() <= iid {
                 self.reg.input_scalars.resize(iid + 1, usize::MAX);
             }
             self.reg.input_scalars[iid] = sid;
         }
         self.record(&skey, n);
+        self.reg.site_buf = skey;
         Ok(n)
     }
 
@@ -812,7 +824,11 @@ impl<'a> Evaluator<'a> {
         // "statement#offset": the call's key, under which its choices, parts and probes
         // are known from pass to pass.
         let mut offset = itoa::Buffer::new();
-        let call_key = join(&[self.stmt_key, "#", offset.format(span.start)]);
+        let mut call_key = std::mem::take(&mut self.reg.call_buf);
+        fill(
+            &mut call_key,
+            &[self.stmt_key, "#", offset.format(span.start)],
+        );
         if matches!(self.pass.mode, Mode::Box { .. }) && !self.reg.observed.contains_key(&call_key)
         {
             let ranges = slots
@@ -849,6 +865,7 @@ impl<'a> Evaluator<'a> {
         let mut ctx = CallCtx { host: &mut host };
         let result = (b.call)(&mut ctx, &slots);
         host.ev.reg.key_buf = host.buf;
+        host.ev.reg.call_buf = host.call_key;
         result.map_err(|e: CallError| {
             let at = e
                 .param
