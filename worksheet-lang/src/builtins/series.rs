@@ -54,14 +54,14 @@ const SLACK: f64 = 1e-9;
 
 impl Series {
     /// The printed values as exact integers in hundredths (4.7 → 470, 9.20 → 920).
-    fn mantissas(&self) -> impl Iterator<Item = u32> + '_ {
+    fn mantissas(&self) -> impl DoubleEndedIterator<Item = u32> + '_ {
         self.values.iter().map(|v| (v * 100.0).round() as u32)
     }
 
     /// The preferred values of the decade starting at 10^k, ascending. Computed from the
     /// integer mantissa with one correctly rounded operation, so 4.7 kΩ is exactly 4700.0
     /// and 0.47 Ω is the double nearest to 0.47.
-    fn decade(&self, k: i32) -> impl Iterator<Item = f64> + '_ {
+    fn decade(&self, k: i32) -> impl DoubleEndedIterator<Item = f64> + '_ {
         self.mantissas().map(move |m| scaled(m, k - 2))
     }
 
@@ -86,16 +86,12 @@ impl Series {
         let k = x.log10().floor() as i32;
         // Two decades either side cover every rounding, also where log10 rounds across a
         // decade boundary.
-        let candidates: Vec<f64> = (k - 2..=k + 2)
-            .flat_map(|k| self.decade(k).collect::<Vec<_>>())
-            .collect();
+        // Ascending, computed as they are looked at.
+        let mut candidates = (k - 2..=k + 2).flat_map(move |k| self.decade(k));
         match rounding {
-            Rounding::Up => candidates.into_iter().find(|&c| c >= x * (1.0 - SLACK)),
-            Rounding::Down => candidates
-                .into_iter()
-                .rev()
-                .find(|&c| c <= x * (1.0 + SLACK)),
-            Rounding::Nearest => candidates.into_iter().min_by(|&a, &b| {
+            Rounding::Up => candidates.find(|&c| c >= x * (1.0 - SLACK)),
+            Rounding::Down => candidates.rev().find(|&c| c <= x * (1.0 + SLACK)),
+            Rounding::Nearest => candidates.min_by(|&a, &b| {
                 let da = (a / x).ln().abs();
                 let db = (b / x).ln().abs();
                 if (da - db).abs() <= 1e-12 {
