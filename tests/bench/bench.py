@@ -11,6 +11,7 @@ import datetime
 import json
 import os
 import platform
+import queue
 import re
 import secrets
 import shutil
@@ -96,6 +97,24 @@ class Kernel:
         msg_id = self.client.kernel_info()
         self.wait_shell(msg_id, timeout)
         return time.perf_counter() - t0
+
+    def wait_iopub(self, timeout=30.0):
+        """Sends kernel_info requests until the status messages of one arrive on iopub. A reply
+        on shell does not mean the iopub subscription has reached the kernel yet, and what a
+        kernel publishes before that is lost (as jupyter_client's own wait for a kernel
+        checks)."""
+        deadline = time.monotonic() + timeout
+        while time.monotonic() < deadline:
+            msg_id = self.client.kernel_info()
+            self.wait_shell(msg_id, timeout)
+            try:
+                while True:
+                    m = self.client.get_iopub_msg(timeout=0.2)
+                    if m["parent_header"].get("msg_id") == msg_id:
+                        return
+            except queue.Empty:
+                continue
+        raise TimeoutError(f"{self.name}: iopub not connected within {timeout} s")
 
     def wait_shell(self, msg_id, timeout):
         deadline = time.monotonic() + timeout
@@ -226,6 +245,7 @@ def round_trips(workdir, reps):
             k = Kernel(name, workdir)
             kernels[name] = k
             k.start()
+            k.wait_iopub()
             if name == PYTHON_KERNEL:
                 k.execute(setup_py, "setup")
             for _ in range(5):
