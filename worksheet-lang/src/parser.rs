@@ -43,10 +43,10 @@ pub fn parse(source: &str) -> Program {
     };
     let mut stmts = Vec::new();
     loop {
-        while p.toks[p.pos].kind == TokenKind::Newline {
+        while matches!(p.toks[p.pos].kind, TokenKind::Newline) {
             p.pos += 1;
         }
-        if p.toks[p.pos].kind == TokenKind::Eof {
+        if matches!(p.toks[p.pos].kind, TokenKind::Eof) {
             break;
         }
         stmts.push(p.statement());
@@ -289,12 +289,12 @@ impl<'a> Parser<'a> {
         self.toks[..i]
             .iter()
             .rev()
-            .find(|t| t.kind != TokenKind::Newline)
+            .find(|t| !matches!(t.kind, TokenKind::Newline))
     }
 
     /// Moves over line breaks that do not end the statement.
     fn skip_joined_lines(&mut self) {
-        if self.toks[self.pos].kind != TokenKind::Newline {
+        if !matches!(self.toks[self.pos].kind, TokenKind::Newline) {
             return;
         }
         let joined = !self.brackets.is_empty()
@@ -302,7 +302,7 @@ impl<'a> Parser<'a> {
                 .prev_token(self.pos)
                 .is_some_and(|t| t.kind.continues_line());
         if joined {
-            while self.toks[self.pos].kind == TokenKind::Newline {
+            while matches!(self.toks[self.pos].kind, TokenKind::Newline) {
                 self.pos += 1;
             }
         }
@@ -325,7 +325,7 @@ impl<'a> Parser<'a> {
         let mut left = n;
         while left > 0 && i + 1 < self.toks.len() {
             i += 1;
-            if self.toks[i].kind != TokenKind::Newline {
+            if !matches!(self.toks[i].kind, TokenKind::Newline) {
                 left -= 1;
             }
         }
@@ -396,7 +396,7 @@ impl<'a> Parser<'a> {
         if let Some(stop) = self.unclosed(t) {
             return stop;
         }
-        if t.kind == TokenKind::Invalid {
+        if matches!(t.kind, TokenKind::Invalid) {
             // The lexer has reported this character.
             self.err_at = self.pos;
             return Stop;
@@ -419,7 +419,7 @@ impl<'a> Parser<'a> {
         if self.matches[b].is_some() {
             return None;
         }
-        if t.kind != TokenKind::Eof && t.line == self.toks[b].line {
+        if !matches!(t.kind, TokenKind::Eof) && t.line == self.toks[b].line {
             return None;
         }
         let d = self.unclosed_diag(b, self.describe(t));
@@ -675,12 +675,12 @@ impl<'a> Parser<'a> {
         name: &Ident,
         given: bool,
     ) -> PResult<(Option<UnitExpr>, Expr, Option<Note>)> {
-        let unit = if self.peek() == &TokenKind::LBracket {
+        let unit = if matches!(self.peek(), TokenKind::LBracket) {
             Some(self.unit_in_brackets()?)
         } else {
             None
         };
-        if self.peek() != &TokenKind::Eq {
+        if !matches!(self.peek(), TokenKind::Eq) {
             let hint = match self.peek() {
                 TokenKind::LParen if given => {
                     Some("an input is a value; define a function without `given`".to_string())
@@ -779,7 +779,7 @@ impl<'a> Parser<'a> {
         let name = self.name("the function name")?;
         self.bump(); // `(`
         let mut params = Vec::new();
-        if self.peek() != &TokenKind::RParen {
+        if !matches!(self.peek(), TokenKind::RParen) {
             loop {
                 params.push(self.name("a parameter name")?);
                 match self.peek() {
@@ -797,12 +797,12 @@ impl<'a> Parser<'a> {
             }
         }
         self.bump(); // `)`
-        let unit = if self.peek() == &TokenKind::LBracket {
+        let unit = if matches!(self.peek(), TokenKind::LBracket) {
             Some(self.unit_in_brackets()?)
         } else {
             None
         };
-        if self.peek() != &TokenKind::Eq {
+        if !matches!(self.peek(), TokenKind::Eq) {
             return Err(self.fail("`=`", None));
         }
         self.bump();
@@ -1005,7 +1005,7 @@ impl<'a> Parser<'a> {
                     if !self.prev_token(p).is_some_and(|t| t.kind.continues_line()) {
                         return p;
                     }
-                    while self.toks[p].kind == TokenKind::Newline {
+                    while matches!(self.toks[p].kind, TokenKind::Newline) {
                         p += 1;
                     }
                 }
@@ -1083,7 +1083,7 @@ impl<'a> Parser<'a> {
     /// The first token of the line holding token `e` (not before `start`).
     fn line_start(&self, start: usize, e: usize) -> usize {
         let mut i = e.min(self.toks.len() - 1);
-        while i > start && self.toks[i - 1].kind != TokenKind::Newline {
+        while i > start && !matches!(self.toks[i - 1].kind, TokenKind::Newline) {
             i -= 1;
         }
         i
@@ -1095,7 +1095,7 @@ impl<'a> Parser<'a> {
         while !matches!(self.toks[i].kind, TokenKind::Newline | TokenKind::Eof) {
             i += 1;
         }
-        while self.toks[i].kind == TokenKind::Newline {
+        while matches!(self.toks[i].kind, TokenKind::Newline) {
             i += 1;
         }
         i
@@ -1158,7 +1158,7 @@ impl<'a> Parser<'a> {
             let node = match &t.kind {
                 TokenKind::Minus | TokenKind::Plus => {
                     self.room(ops)?;
-                    let neg = t.kind == TokenKind::Minus;
+                    let neg = matches!(t.kind, TokenKind::Minus);
                     ops.push(Op::Prefix {
                         neg,
                         tok: self.bump(),
@@ -1173,7 +1173,7 @@ impl<'a> Parser<'a> {
                 TokenKind::LBracket => {
                     self.room(ops)?;
                     let open = self.bump();
-                    if self.peek() == &TokenKind::RBracket {
+                    if matches!(self.peek(), TokenKind::RBracket) {
                         let close = self.bump();
                         Node {
                             e: Expr {
@@ -1287,7 +1287,7 @@ impl<'a> Parser<'a> {
                     let Some(callee) = vals.pop() else {
                         return Err(Stop);
                     };
-                    if self.peek() == &TokenKind::RParen {
+                    if matches!(self.peek(), TokenKind::RParen) {
                         let close = self.bump();
                         let node = self.call_node(callee, Vec::new(), 0, close)?;
                         vals.push(node);
@@ -1339,9 +1339,9 @@ impl<'a> Parser<'a> {
                 TokenKind::RParen | TokenKind::RBracket => {
                     let fits = match innermost_group(ops) {
                         Some(Group::Paren { .. } | Group::Call { .. }) => {
-                            kind == &TokenKind::RParen
+                            matches!(kind, TokenKind::RParen)
                         }
-                        Some(Group::List { .. }) => kind == &TokenKind::RBracket,
+                        Some(Group::List { .. }) => matches!(kind, TokenKind::RBracket),
                         None => return Ok(false),
                     };
                     if !fits {
@@ -1354,7 +1354,7 @@ impl<'a> Parser<'a> {
                 TokenKind::Caret => (Op::Pow { tok: self.pos }, PREC_POW),
                 TokenKind::PlusMinus | TokenKind::DotDot => (
                     Op::Tol {
-                        range: kind == &TokenKind::DotDot,
+                        range: matches!(kind, TokenKind::DotDot),
                         tok: self.pos,
                     },
                     PREC_TOL,
@@ -1381,7 +1381,9 @@ impl<'a> Parser<'a> {
             }
             self.room(ops)?;
             let op_tok = self.bump();
-            if self.toks[op_tok].kind == TokenKind::Star && self.peek() == &TokenKind::Star {
+            if matches!(self.toks[op_tok].kind, TokenKind::Star)
+                && matches!(self.peek(), TokenKind::Star)
+            {
                 let hint = "write a power with `^`: `x^2`".to_string();
                 return Err(self.fail("an expression", Some(hint)));
             }
@@ -1392,7 +1394,9 @@ impl<'a> Parser<'a> {
 
     /// `name:` at the start of a call argument.
     fn argument_name(&mut self) -> PResult<Option<Ident>> {
-        if matches!(self.peek(), TokenKind::Name(_)) && self.peek_after(1) == &TokenKind::Colon {
+        if matches!(self.peek(), TokenKind::Name(_))
+            && matches!(self.peek_after(1), TokenKind::Colon)
+        {
             let name = self.name("an argument name")?;
             self.bump(); // `:`
             return Ok(Some(name));
