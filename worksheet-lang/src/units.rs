@@ -1222,10 +1222,61 @@ pub fn parse_unit(text: &str) -> Result<Unit, UnitError> {
 /// a value that rounds up to the next power of ten gets the larger exponent (999.7 → 100, 3).
 fn round_sig(x: f64, sig: usize) -> (bool, Digits, i32) {
     let sig = sig.clamp(1, 17);
-    if let Some((digits, exp)) = round_shortest(x.abs(), sig) {
+    if let Some((digits, exp)) = round_scaled(x.abs(), sig).or_else(|| round_shortest(x.abs(), sig))
+    {
         return (x < 0.0, digits, exp);
     }
     round_exact(x, sig)
+}
+
+/// The powers of ten a double holds exactly (10^0 to 10^22).
+const EXACT_POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// `round_sig` by scaling `x` to `sig` digits before the point and rounding to an integer,
+/// where that provably gives the correctly rounded result; None where it may not (then the
+/// slower conversions decide).
+///
+/// Why it holds: with 10^k exact (|k| ≤ 22), `x·10^k` (or `x / 10^-k`) is one correctly
+/// rounded operation, so the computed `s` is within a relative 2⁻⁵³ of the exact product
+/// `t`. Rounding to the nearest integer changes only across a half-integer; when `s` lies
+/// further than 2⁻⁵⁰·s from one, `t` lies on the same side, and both round alike. A value
+/// next to a power of ten rounds to that power whichever exponent is assumed, so the
+/// exponent estimated from `log10` only needs to bring `s` into range. Up to 15 digits the
+/// integer is exact in a double. The property tests below check it against the exact
+/// conversion.
+fn round_scaled(x: f64, sig: usize) -> Option<(Digits, i32)> {
+    if sig > 15 || !x.is_normal() || x <= 0.0 {
+        return None;
+    }
+    let (lo, hi) = (EXACT_POW10[sig - 1], EXACT_POW10[sig]);
+    let scaled = |e: i32| -> Option<f64> {
+        let k = sig as i32 - 1 - e;
+        let p = *EXACT_POW10.get(k.unsigned_abs() as usize)?;
+        Some(if k >= 0 { x * p } else { x / p })
+    };
+    let mut e = x.log10().floor() as i32;
+    let mut s = scaled(e)?;
+    if s < lo {
+        e -= 1;
+        s = scaled(e)?;
+    } else if s >= hi {
+        e += 1;
+        s = scaled(e)?;
+    }
+    if !(lo..hi).contains(&s) || (s - s.floor() - 0.5).abs() <= s * 4.0 * f64::EPSILON {
+        return None;
+    }
+    let mut r = s.round();
+    if r >= hi {
+        // 999.7 → 1000: one digit more, so the next power of ten.
+        r = lo;
+        e += 1;
+    }
+    let mut text = itoa::Buffer::new();
+    Digits::from(text.format(r as u64)).ok().map(|d| (d, e))
 }
 
 /// `round_sig` from the shortest decimal that reads back as `x` (a fast conversion), where
@@ -1556,6 +1607,16 @@ mod tests {
             // Any bit pattern, and the subnormal range.
             let x = f64::from_bits(bits);
             prop_assume!(x.is_finite() && x != 0.0);
+            let (fast, exact) = both(x, sig);
+            prop_assert_eq!(fast, exact);
+        }
+
+        #[test]
+        fn engineering_magnitudes_round_as_the_exact_conversion(
+            mantissa in 1.0f64..10.0, k in -22i32..=22, sig in 1usize..=17,
+        ) {
+            // Where rounding by scaling applies: values from 10⁻²² to 10²³, every digit count.
+            let x = mantissa * 10f64.powi(k);
             let (fast, exact) = both(x, sig);
             prop_assert_eq!(fast, exact);
         }
