@@ -168,6 +168,7 @@ pub fn lex(source: &str) -> Lexed {
             line: 0,
             tokens: Vec::new(),
             diags: Vec::new(),
+            units: UnitMemo::default(),
         };
         lx.run();
         (lx.tokens, lx.diags)
@@ -244,7 +245,23 @@ enum Exponent {
 /// of it that parses and ends at the end or before a `/` or `*` outside parentheses, with
 /// no `·` in the rest. So `V/s` is one unit, `V*x` is the unit `V` followed by `*x`, and
 /// `W/m·K` is an unknown unit (the unit parser says why).
-fn scan_unit(s: &str, start: usize) -> UnitScan {
+/// Units parsed so far in one source, by text: a worksheet writes the same few units again and
+/// again.
+#[derive(Default)]
+struct UnitMemo(Vec<(String, units::Unit)>);
+
+impl UnitMemo {
+    fn parse(&mut self, text: &str) -> Result<units::Unit, units::UnitError> {
+        if let Some((_, u)) = self.0.iter().find(|(t, _)| t == text) {
+            return Ok(u.clone());
+        }
+        let u = units::parse_unit(text)?;
+        self.0.push((text.to_string(), u.clone()));
+        Ok(u)
+    }
+}
+
+fn scan_unit(s: &str, start: usize, memo: &mut UnitMemo) -> UnitScan {
     let rest = &s[start..];
     if !rest.chars().next().is_some_and(is_unit_start) {
         return UnitScan::NotUnit;
@@ -327,7 +344,7 @@ fn scan_unit(s: &str, start: usize) -> UnitScan {
         if s[cut..end].contains(UNIT_DOT) {
             continue;
         }
-        if let Ok(unit) = units::parse_unit(&s[start..cut]) {
+        if let Ok(unit) = memo.parse(&s[start..cut]) {
             return UnitScan::Unit {
                 end: cut,
                 unit: Box::new(unit),
@@ -400,6 +417,7 @@ struct Lexer<'a> {
     line: usize,
     tokens: Vec<Token>,
     diags: Vec<Diagnostic>,
+    units: UnitMemo,
 }
 
 impl Lexer<'_> {
@@ -637,7 +655,7 @@ impl Lexer<'_> {
         let next = self.char_at(end);
         // A unit written directly after the number: `85mA`, `10K`, `25°C`.
         if next.is_some_and(is_unit_start) {
-            match scan_unit(s, end) {
+            match scan_unit(s, end, &mut self.units) {
                 UnitScan::Unit {
                     end: unit_end,
                     unit,
@@ -662,7 +680,7 @@ impl Lexer<'_> {
         }
         // A unit after exactly one space: `12 V`, `0.5 K/W`.
         if next == Some(' ') && self.char_at(end + 1).is_some_and(is_unit_start) {
-            match scan_unit(s, end + 1) {
+            match scan_unit(s, end + 1, &mut self.units) {
                 UnitScan::Unit {
                     end: unit_end,
                     unit,
@@ -731,7 +749,10 @@ impl Lexer<'_> {
         }
         // `4k7x` is no code; `4k7Ω` is a code with a unit after it (reported).
         if self.char_at(end).is_some_and(is_name_continue)
-            && !matches!(scan_unit(self.s, end), UnitScan::Unit { .. })
+            && !matches!(
+                scan_unit(self.s, end, &mut UnitMemo::default()),
+                UnitScan::Unit { .. }
+            )
         {
             return None;
         }
@@ -771,7 +792,7 @@ impl Lexer<'_> {
             _ => None,
         };
         if let Some(u) = unit_at {
-            match scan_unit(self.s, u) {
+            match scan_unit(self.s, u, &mut self.units) {
                 UnitScan::Unit { end, .. } => {
                     self.diag(
                         Diagnostic::error(
