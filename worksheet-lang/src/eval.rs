@@ -99,7 +99,7 @@ pub struct Registry {
     pub known: HashMap<String, Vec<Option<Interval>>>,
     /// Set when a built-in asked for an argument range that was not known yet.
     pub wanted_ranges: std::cell::Cell<bool>,
-    units: Vec<(String, Result<units::Unit, units::UnitError>)>,
+    units: units::UnitCache,
     /// Buffers for building keys, lent to each built-in call in turn: its own key, and the
     /// keys of its choices and probes.
     call_buf: String,
@@ -109,17 +109,9 @@ pub struct Registry {
 }
 
 impl Registry {
-    /// A unit by its text, parsed once per evaluation (a worksheet uses few distinct units,
-    /// so a short list beats hashing).
+    /// A unit by its text, parsed once per evaluation.
     pub fn unit(&mut self, text: &str) -> Result<&units::Unit, units::UnitError> {
-        let i = match self.units.iter().position(|(t, _)| t == text) {
-            Some(i) => i,
-            None => {
-                self.units.push((text.to_string(), units::parse_unit(text)));
-                self.units.len() - 1
-            }
-        };
-        self.units[i].1.as_ref().map_err(Clone::clone)
+        self.units.get(text)
     }
 
     pub fn scalar_id(&mut self, key: &str) -> usize {

@@ -168,7 +168,7 @@ pub fn lex(source: &str) -> Lexed {
             line: 0,
             tokens: Vec::new(),
             diags: Vec::new(),
-            units: UnitMemo::default(),
+            units: units::UnitCache::default(),
         };
         lx.run();
         (lx.tokens, lx.diags)
@@ -245,23 +245,7 @@ enum Exponent {
 /// of it that parses and ends at the end or before a `/` or `*` outside parentheses, with
 /// no `·` in the rest. So `V/s` is one unit, `V*x` is the unit `V` followed by `*x`, and
 /// `W/m·K` is an unknown unit (the unit parser says why).
-/// Units parsed so far in one source, by text: a worksheet writes the same few units again and
-/// again.
-#[derive(Default)]
-struct UnitMemo(Vec<(String, units::Unit)>);
-
-impl UnitMemo {
-    fn parse(&mut self, text: &str) -> Result<units::Unit, units::UnitError> {
-        if let Some((_, u)) = self.0.iter().find(|(t, _)| t == text) {
-            return Ok(u.clone());
-        }
-        let u = units::parse_unit(text)?;
-        self.0.push((text.to_string(), u.clone()));
-        Ok(u)
-    }
-}
-
-fn scan_unit(s: &str, start: usize, memo: &mut UnitMemo) -> UnitScan {
+fn scan_unit(s: &str, start: usize, memo: &mut units::UnitCache) -> UnitScan {
     let rest = &s[start..];
     if !rest.chars().next().is_some_and(is_unit_start) {
         return UnitScan::NotUnit;
@@ -344,7 +328,7 @@ fn scan_unit(s: &str, start: usize, memo: &mut UnitMemo) -> UnitScan {
         if s[cut..end].contains(UNIT_DOT) {
             continue;
         }
-        if let Ok(unit) = memo.parse(&s[start..cut]) {
+        if let Ok(unit) = memo.get(&s[start..cut]).cloned() {
             return UnitScan::Unit {
                 end: cut,
                 unit: Box::new(unit),
@@ -417,7 +401,8 @@ struct Lexer<'a> {
     line: usize,
     tokens: Vec<Token>,
     diags: Vec<Diagnostic>,
-    units: UnitMemo,
+    /// The units met so far in this source.
+    units: units::UnitCache,
 }
 
 impl Lexer<'_> {
@@ -750,7 +735,7 @@ impl Lexer<'_> {
         // `4k7x` is no code; `4k7Ω` is a code with a unit after it (reported).
         if self.char_at(end).is_some_and(is_name_continue)
             && !matches!(
-                scan_unit(self.s, end, &mut UnitMemo::default()),
+                scan_unit(self.s, end, &mut units::UnitCache::default()),
                 UnitScan::Unit { .. }
             )
         {

@@ -1179,6 +1179,25 @@ impl Parser<'_> {
     }
 }
 
+/// Units parsed once per text, within one source or one evaluation: a worksheet writes the same
+/// few units again and again, so a short list beats hashing.
+#[derive(Debug, Default, Clone)]
+pub struct UnitCache(Vec<(String, Result<Unit, UnitError>)>);
+
+impl UnitCache {
+    /// `parse_unit(text)`, parsed the first time only.
+    pub fn get(&mut self, text: &str) -> Result<&Unit, UnitError> {
+        let i = match self.0.iter().position(|(t, _)| t == text) {
+            Some(i) => i,
+            None => {
+                self.0.push((text.to_string(), parse_unit(text)));
+                self.0.len() - 1
+            }
+        };
+        self.0[i].1.as_ref().map_err(Clone::clone)
+    }
+}
+
 /// Parses a unit as written without spaces: `V`, `mA`, `K/W`, `W/(m·K)`, `A·h`, `m^2`, `mm²`.
 ///
 /// Products use `·` or `*` (shown as `·`), quotients `/` (once, with a single factor or a
