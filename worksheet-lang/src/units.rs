@@ -1285,10 +1285,23 @@ fn round_scaled(x: f64, sig: usize) -> Option<(Digits, i32)> {
         e += 1;
         s = scaled(e)?;
     }
-    if !(lo..hi).contains(&s) || (s - s.floor() - 0.5).abs() <= s * 4.0 * f64::EPSILON {
+    if !(lo..hi).contains(&s) {
         return None;
     }
-    let mut r = s.round();
+    let mut r = if (s - s.floor() - 0.5).abs() > s * 4.0 * f64::EPSILON {
+        s.round()
+    } else if s - s.floor() == 0.5 && scaled_exactly(x, s, sig as i32 - 1 - e) {
+        // An exact tie (370.5 to three digits, common for a tolerance applied to a
+        // preferred value): halves go to the even neighbour, as in the exact conversion.
+        let f = s.floor();
+        if f % 2.0 == 0.0 {
+            f
+        } else {
+            f + 1.0
+        }
+    } else {
+        return None;
+    };
     if r >= hi {
         // 999.7 → 1000: one digit more, so the next power of ten.
         r = lo;
@@ -1296,6 +1309,19 @@ fn round_scaled(x: f64, sig: usize) -> Option<(Digits, i32)> {
     }
     let mut text = itoa::Buffer::new();
     Digits::from(text.format(r as u64)).ok().map(|d| (d, e))
+}
+
+/// Whether `s`, the rounded `x·10^k` (`x / 10^-k` for negative `k`), is that value exactly:
+/// the residual of one fused multiply-add is exact, so it is zero only then.
+fn scaled_exactly(x: f64, s: f64, k: i32) -> bool {
+    let Some(&p) = EXACT_POW10.get(k.unsigned_abs() as usize) else {
+        return false;
+    };
+    if k >= 0 {
+        x.mul_add(p, -s) == 0.0
+    } else {
+        s.mul_add(p, -x) == 0.0
+    }
 }
 
 /// `round_sig` from the shortest decimal that reads back as `x` (a fast conversion), where
@@ -1447,12 +1473,13 @@ pub fn format_number(x: f64, sig: usize) -> String {
     render(neg, &digits, exp)
 }
 
-fn with_unit(number: String, unit: &str) -> String {
-    if unit.is_empty() || unit == "1" {
-        number
-    } else {
-        format!("{number} {unit}")
+fn with_unit(mut number: String, unit: &str) -> String {
+    if !(unit.is_empty() || unit == "1") {
+        number.reserve(unit.len() + 1);
+        number.push(' ');
+        number.push_str(unit);
     }
+    number
 }
 
 fn prefix_symbol(e: i32) -> &'static str {
@@ -1551,14 +1578,13 @@ pub fn format_in(si: f64, absolute: bool, unit: &Unit, sig: usize) -> String {
 /// A signed difference (a check's margin) in the unit of its dimension: "+34.0 K",
 /// "-2.10 V"; temperature differences in K. Exactly zero shows without a sign ("0 K").
 pub fn format_difference(si: f64, dim: Dim, sig: usize) -> String {
-    let body = format_si(si.abs(), dim, false, sig);
+    let mut body = format_si(si.abs(), dim, false, sig);
     if si > 0.0 {
-        format!("+{body}")
+        body.insert(0, '+');
     } else if si < 0.0 {
-        format!("-{body}")
-    } else {
-        body
+        body.insert(0, '-');
     }
+    body
 }
 
 /// Unit symbols offered by completion after a number: every symbol of the table with each
@@ -1593,9 +1619,14 @@ mod tests {
 
     #[test]
     fn ties_and_carries_round_as_the_exact_conversion() {
-        // Exact binary ties (0.125, 2.5, 0.375) go to the exact conversion; 0.15 and 9.995
-        // are not ties in binary; 9.96 and 999.5 carry into the next power of ten.
+        // Exact binary ties (0.125, 2.5, 0.375; 370.5 and 409.5, a 390 Ω part ± 5 %) go to
+        // the even neighbour; 0.15 and 9.995 are not ties in binary; 9.96 and 999.5 carry
+        // into the next power of ten.
         for (x, sig) in [
+            (370.5, 3),
+            (409.5, 3),
+            (3_705_000.0, 3),
+            (0.0625, 2),
             (0.125, 2),
             (2.5, 1),
             (0.375, 2),
@@ -1636,6 +1667,17 @@ mod tests {
         ) {
             // Where rounding by scaling applies: values from 10⁻²² to 10²³, every digit count.
             let x = mantissa * 10f64.powi(k);
+            let (fast, exact) = both(x, sig);
+            prop_assert_eq!(fast, exact);
+        }
+
+        #[test]
+        fn binary_fractions_round_as_the_exact_conversion(
+            n in 1u64..4_000_000, j in 0i32..16, k in -8i32..8, sig in 1usize..=8,
+        ) {
+            // Odd multiples of powers of two, scaled by powers of ten: exact ties at many
+            // digit counts, reached by multiplying and by dividing.
+            let x = (n as f64 / 2f64.powi(j)) * 10f64.powi(k);
             let (fast, exact) = both(x, sig);
             prop_assert_eq!(fast, exact);
         }
