@@ -832,26 +832,14 @@ impl<'a> Evaluator<'a> {
                 .collect();
             self.reg.observed.insert(call_key.clone(), ranges);
         }
-        // Arguments that no tolerance, range or part can reach have point ranges in every
-        // pass: a choice that asks for them needs no box pass to learn them.
-        let exact = (self.locals.is_empty()
-            && args
-                .iter()
-                .all(|a| is_certain(&a.value, &|n| self.names.certain(n))))
-        .then(|| {
-            slots
-                .iter()
-                .map(|v| match v {
-                    Some(Value::Num(n)) => Some(n.x.v),
-                    _ => None,
-                })
-                .collect()
-        });
         let buf = std::mem::take(&mut self.reg.key_buf);
+        let in_function = !self.locals.is_empty();
         let mut host = Host {
             ev: self,
             call_key,
-            exact,
+            args,
+            slots: &slots,
+            in_function,
             buf,
         };
         let mut ctx = CallCtx { host: &mut host };
@@ -1110,8 +1098,11 @@ struct Host<'e, 'a> {
     ev: &'e mut Evaluator<'a>,
     /// "statement#offset" of the call.
     call_key: String,
-    /// The arguments' ranges when every argument is exact (`is_certain`).
-    exact: Option<Vec<Option<Interval>>>,
+    /// The call's arguments, as written and as evaluated.
+    args: &'e [Arg],
+    slots: &'e [Option<Value>],
+    /// Made inside a worksheet function (whose parameters may be uncertain).
+    in_function: bool,
     /// Where the keys of its choices and probes are built (the registry's buffer, lent for
     /// the call).
     buf: String,
@@ -1157,18 +1148,22 @@ impl CallHost for Host<'_, '_> {
         hi: f64,
         dim: Dim,
     ) -> Dual {
-        let k = join(&[&self.call_key, ":", key]);
+        // "input:call:key", built in the registry's site buffer (a part is met in every
+        // pass); the input's own key is what follows "input:".
+        const SCALAR: &str = "input:";
+        let mut skey = std::mem::take(&mut self.ev.reg.site_buf);
+        fill(&mut skey, &[SCALAR, &self.call_key, ":", key]);
+        let k = &skey[SCALAR.len()..];
         let label = if self.ev.nominal() {
             format!("{label} in {}", self.ev.stmt_label)
         } else {
             label
         };
-        match self.ev.input(&k, label, nominal, lo, hi) {
+        let x = match self.ev.input(k, label, nominal, lo, hi) {
             Ok(x) => {
-                let skey = join(&["input:", &k]);
                 if self.ev.nominal() {
                     let sid = self.ev.reg.scalar_id(&skey);
-                    if let Some(&iid) = self.ev.reg.input_index.get(&k) {
+                    if let Some(&iid) = self.ev.reg.input_index.get(&skey[SCALAR.len()..]) {
                         if self.ev.reg.input_scalars.len() <= iid {
                             self.ev.reg.input_scalars.resize(iid + 1, usize::MAX);
                         }
@@ -1179,7 +1174,9 @@ impl CallHost for Host<'_, '_> {
                 x
             }
             Err(_) => Dual::constant(nominal),
-        }
+        };
+        self.ev.reg.site_buf = skey;
+        x
     }
     fn probe(&mut self, key: &str, value: Num, rule: WarnRule) {
         fill(&mut self.buf, &["probe:", &self.call_key, ":", key]);
@@ -1203,8 +1200,19 @@ impl CallHost for Host<'_, '_> {
         self.ev.record(&self.buf, value);
     }
     fn arg_range(&self, param: usize) -> Option<Interval> {
-        if let Some(ranges) = &self.exact {
-            return ranges.get(param).copied().flatten();
+        // Arguments that no tolerance, range or part can reach have point ranges in every
+        // pass: a choice that asks for them needs no box pass to learn them.
+        let names = self.ev.names;
+        if !self.in_function
+            && self
+                .args
+                .iter()
+                .all(|a| is_certain(&a.value, &|n| names.certain(n)))
+        {
+            return match self.slots.get(param) {
+                Some(Some(Value::Num(n))) => Some(n.x.v),
+                _ => None,
+            };
         }
         let key = &self.call_key;
         // Once a box pass has seen this call, every argument's range is known; one that

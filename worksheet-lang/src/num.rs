@@ -324,6 +324,15 @@ impl Mul for Dual {
         if o.is_one() {
             return self;
         }
+        // Without derivatives (most passes carry none) the derivative stays zero. Where the
+        // full rule would give NaN (0·∞), the value is not finite either, so the pass reports
+        // the same domain error.
+        if self.d == Interval::ZERO && o.d == Interval::ZERO {
+            return Dual {
+                v: self.v * o.v,
+                d: Interval::ZERO,
+            };
+        }
         Dual {
             v: self.v * o.v,
             d: self.d * o.v + self.v * o.d,
@@ -337,6 +346,13 @@ impl Div for Dual {
             return self;
         }
         let v = self.v / o.v;
+        // As for the product: without derivatives the quotient's stays zero.
+        if self.d == Interval::ZERO && o.d == Interval::ZERO {
+            return Dual {
+                v,
+                d: Interval::ZERO,
+            };
+        }
         // d(a/b) = (da - (a/b)·db) / b
         Dual {
             v,

@@ -1267,6 +1267,8 @@ struct Runner<'m> {
     /// Each definition's value and recorded scalars in the nominal pass: what a pass at a
     /// point gives where every input the definition depends on is at its nominal value.
     nominal_def: Vec<Option<CachedDef>>,
+    /// The scalar ids of each check's two sides and their difference, from the nominal pass.
+    check_ids: Vec<Option<[usize; 3]>>,
 }
 
 /// A value with every derivative set to zero: what a definition that cannot reach an input
@@ -1579,6 +1581,7 @@ impl Runner<'_> {
                 calls: 0,
                 notes: Vec::new(),
             };
+            let known_ids = self.check_ids.get(i).copied().flatten();
             let r = (|| {
                 let a = ev.eval(c.lhs)?;
                 let b = ev.eval(c.rhs)?;
@@ -1594,18 +1597,37 @@ impl Runner<'_> {
                         e.message = format!("the two sides cannot be compared: {}", e.message);
                         e
                     })?;
-                let [lhs_key, rhs_key, diff_key] = &c.side_keys;
-                ev.record(lhs_key, a);
-                ev.record(rhs_key, b);
-                ev.record(diff_key, diff);
-                Ok(())
+                match known_ids {
+                    // Recorded under the ids the nominal pass gave them, without the keys.
+                    Some([l, r, d]) if !nominal => {
+                        ev.pass.set_scalar(l, a);
+                        ev.pass.set_scalar(r, b);
+                        ev.pass.set_scalar(d, diff);
+                    }
+                    _ => {
+                        let [lhs_key, rhs_key, diff_key] = &c.side_keys;
+                        ev.record(lhs_key, a);
+                        ev.record(rhs_key, b);
+                        ev.record(diff_key, diff);
+                        if nominal {
+                            let reg = &*ev.reg;
+                            let ids = [lhs_key, rhs_key, diff_key].map(|k| reg.find_scalar(k));
+                            if let [Some(l), Some(r), Some(d)] = ids {
+                                return Ok(Some([l, r, d]));
+                            }
+                        }
+                    }
+                }
+                Ok(None)
             })();
             let notes = std::mem::take(&mut ev.notes);
             if nominal {
                 self.notes.extend(notes.into_iter().map(|n| (c.cell, n)));
             }
-            if let Err(e) = r {
-                self.fail(StmtId::Check(i), e);
+            match r {
+                Ok(Some(ids)) => self.check_ids[i] = Some(ids),
+                Ok(None) => {}
+                Err(e) => self.fail(StmtId::Check(i), e),
             }
         }
         for (i, s) in model.shows.iter().enumerate() {
@@ -1753,6 +1775,7 @@ impl<'m> Runner<'m> {
             reach: None,
             boxed_value: vec![None; model.defs.len()],
             nominal_def: vec![None; model.defs.len()],
+            check_ids: vec![None; model.checks.len()],
         }
     }
 }
