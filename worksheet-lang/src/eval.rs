@@ -87,7 +87,7 @@ pub struct Registry {
     input_index: HashMap<String, usize>,
     /// The scalar each input's site produces (its value, for describing corners).
     pub input_scalars: Vec<usize>,
-    pub scalar_keys: Vec<String>,
+    /// Scalar ids by key; ids are handed out in order, so the map's length is the count.
     scalar_index: HashMap<String, usize>,
     pub(crate) choices: HashMap<String, f64>,
     pub probes: Vec<ProbeInfo>,
@@ -118,10 +118,13 @@ impl Registry {
         if let Some(&i) = self.scalar_index.get(key) {
             return i;
         }
-        let i = self.scalar_keys.len();
-        self.scalar_keys.push(key.to_string());
+        let i = self.scalar_index.len();
         self.scalar_index.insert(key.to_string(), i);
         i
+    }
+    /// How many scalars the nominal pass registered.
+    pub fn scalar_count(&self) -> usize {
+        self.scalar_index.len()
     }
     pub fn find_scalar(&self, key: &str) -> Option<usize> {
         self.scalar_index.get(key).copied()

@@ -1304,11 +1304,19 @@ fn flat(n: Num) -> Num {
     }
 }
 
-/// The numbers of a value in the order `Evaluator::record_value` records them.
-fn numeric_leaves(v: &Value, out: &mut Vec<Num>) {
+/// Sets the numbers of a value, in the order `Evaluator::record_value` records them, under
+/// the ids `ids` gives in turn.
+fn set_leaves(v: &Value, ids: &mut std::slice::Iter<'_, usize>, pass: &mut Pass) {
     match v {
-        Value::Num(n) => out.push(*n),
-        Value::Record(r) => r.fields.iter().for_each(|f| numeric_leaves(&f.value, out)),
+        Value::Num(n) => {
+            if let Some(&id) = ids.next() {
+                pass.set_scalar(id, *n);
+            }
+        }
+        Value::Record(r) => r
+            .fields
+            .iter()
+            .for_each(|f| set_leaves(&f.value, ids, pass)),
         _ => {}
     }
 }
@@ -1411,7 +1419,7 @@ impl Runner<'_> {
         }
         let nominal = matches!(mode, Mode::Nominal);
         let model = self.model;
-        let mut pass = Pass::new(mode, self.reg.scalar_keys.len());
+        let mut pass = Pass::new(mode, self.reg.scalar_count());
         let mut values: Vec<Option<Result<Value, String>>> = vec![None; model.defs.len()];
         let seed = match pass.mode {
             Mode::Box { seed } => seed,
@@ -1494,13 +1502,7 @@ impl Runner<'_> {
                     // them (the same leaves in the same order), without building keys.
                     let leaf_start = pass.touched.len();
                     match self.leaves.get(d).and_then(Option::as_ref) {
-                        Some(ids) if !nominal => {
-                            let mut nums = Vec::with_capacity(ids.len());
-                            numeric_leaves(&v, &mut nums);
-                            for (id, n) in ids.iter().zip(nums) {
-                                pass.set_scalar(*id, n);
-                            }
-                        }
+                        Some(ids) if !nominal => set_leaves(&v, &mut ids.iter(), &mut pass),
                         _ => {
                             let mut ev = Evaluator {
                                 names: &NoNames,
@@ -1863,11 +1865,15 @@ impl Analysed<'_, '_> {
         parts.join(", ")
     }
 
+    /// The rows of a value: one per number, record fields as `name.field`. Its numbers are
+    /// read under `leaves` (the scalar ids the nominal pass recorded them under, in order)
+    /// where given, otherwise under their keys (`key`, `key.field`).
     #[allow(clippy::too_many_arguments)]
     fn value_rows(
         &mut self,
         key: &str,
-        name: &str,
+        leaves: &mut Option<std::slice::Iter<'_, usize>>,
+        name: String,
         v: &Value,
         unit: Option<&Unit>,
         display: Option<&'static str>,
@@ -1875,8 +1881,8 @@ impl Analysed<'_, '_> {
         given: bool,
         out: &mut Vec<ValueRow>,
     ) {
-        let row = |shown: Shown, text: String| ValueRow {
-            name: name.to_string(),
+        let row = |name: String, shown: Shown, text: String| ValueRow {
+            name,
             given,
             note: note.to_string(),
             shown,
@@ -1888,7 +1894,11 @@ impl Analysed<'_, '_> {
         match v {
             Value::Num(n) => {
                 let preferred = display.and_then(|t| self.passes.eval.reg.unit(t).ok().cloned());
-                let (nom, b) = self.scalar(key).unwrap_or((*n, None));
+                let found = match leaves.as_mut() {
+                    Some(ids) => ids.next().and_then(|&id| self.scalar_by_id(id)),
+                    None => self.scalar(key),
+                };
+                let (nom, b) = found.unwrap_or((*n, None));
                 let u = unit.or(preferred.as_ref());
                 let si = nom.x.value();
                 let text = fmt_value(si, nom.dim, nom.abs, u);
@@ -1903,6 +1913,7 @@ impl Analysed<'_, '_> {
                     preferred: preferred.clone(),
                     range_text,
                     ..row(
+                        name,
                         Shown::Number {
                             value: crate::results::Quantity {
                                 si,
@@ -1917,9 +1928,15 @@ impl Analysed<'_, '_> {
             }
             Value::Record(r) => {
                 for (i, f) in r.fields.iter().enumerate() {
+                    // The key is only read without the leaves' ids.
+                    let field_key = match leaves {
+                        Some(_) => String::new(),
+                        None => eval::join(&[key, ".", f.name]),
+                    };
                     self.value_rows(
-                        &eval::join(&[key, ".", f.name]),
-                        &eval::join(&[name, ".", f.name]),
+                        &field_key,
+                        leaves,
+                        eval::join(&[&name, ".", f.name]),
                         &f.value,
                         None,
                         f.display,
@@ -1929,10 +1946,10 @@ impl Analysed<'_, '_> {
                     );
                 }
             }
-            Value::Str(s) => out.push(row(Shown::Text(s.to_string()), s.to_string())),
+            Value::Str(s) => out.push(row(name, Shown::Text(s.to_string()), s.to_string())),
             Value::List(_) | Value::Series(_) => {
                 let t = plain(v);
-                out.push(row(Shown::Other(t.clone()), t));
+                out.push(row(name, Shown::Other(t.clone()), t));
             }
         }
     }
@@ -2090,9 +2107,13 @@ fn evaluate(
                         continue;
                     }
                     if let Some(Ok(v)) = &nominal_values[*d] {
+                        // Lent out for the rows, and back for any pass they ask for.
+                        let ids = an.passes.eval.leaves.get_mut(*d).and_then(Option::take);
+                        let mut leaves = ids.as_deref().map(<[usize]>::iter);
                         an.value_rows(
-                            &def_key(&def.name),
-                            &def.name,
+                            def.key,
+                            &mut leaves,
+                            def.name.clone(),
                             v,
                             def.unit.as_ref(),
                             None,
@@ -2100,6 +2121,9 @@ fn evaluate(
                             def.given,
                             &mut report.values,
                         );
+                        if let Some(slot) = an.passes.eval.leaves.get_mut(*d) {
+                            *slot = ids;
+                        }
                         if def.leads_with_minimum {
                             lead_with_minimum(report.values.last_mut());
                         }
@@ -2123,7 +2147,8 @@ fn evaluate(
                     if let Some(v) = shown.get(i) {
                         an.value_rows(
                             s.key,
-                            &s.text,
+                            &mut None,
+                            s.text.clone(),
                             v,
                             s.unit.as_ref(),
                             None,
