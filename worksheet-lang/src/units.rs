@@ -1263,7 +1263,7 @@ const EXACT_POW10: [f64; 23] = [
 /// `t`. Rounding to the nearest integer changes only across a half-integer; when `s` lies
 /// further than 2⁻⁵⁰·s from one, `t` lies on the same side, and both round alike. A value
 /// next to a power of ten rounds to that power whichever exponent is assumed, so the
-/// exponent estimated from `log10` only needs to bring `s` into range. Up to 15 digits the
+/// exponent estimated from the binary exponent only needs to bring `s` into range. Up to 15 digits the
 /// integer is exact in a double. The property tests below check it against the exact
 /// conversion.
 fn round_scaled(x: f64, sig: usize) -> Option<(Digits, i32)> {
@@ -1276,39 +1276,45 @@ fn round_scaled(x: f64, sig: usize) -> Option<(Digits, i32)> {
         let p = *EXACT_POW10.get(k.unsigned_abs() as usize)?;
         Some(if k >= 0 { x * p } else { x / p })
     };
-    let mut e = x.log10().floor() as i32;
+    // The power of ten of the leading digit, estimated from the binary exponent
+    // (⌊e₂·log₁₀2⌋ with log₁₀2 ≈ 78913/2¹⁸, the approximation of U. Adams, "Ryū: fast
+    // float-to-string conversion", PLDI 2018, from memory) and settled by comparing the
+    // scaled value with its range: at most a step or two, no logarithm.
+    let e2 = ((x.to_bits() >> 52) & 0x7ff) as i32 - 1023;
+    let mut e = (e2 * 78913) >> 18;
     let mut s = scaled(e)?;
-    if s < lo {
-        e -= 1;
-        s = scaled(e)?;
-    } else if s >= hi {
-        e += 1;
+    for _ in 0..3 {
+        if s < lo {
+            e -= 1;
+        } else if s >= hi {
+            e += 1;
+        } else {
+            break;
+        }
         s = scaled(e)?;
     }
     if !(lo..hi).contains(&s) {
         return None;
     }
-    let mut r = if (s - s.floor() - 0.5).abs() > s * 4.0 * f64::EPSILON {
-        s.round()
-    } else if s - s.floor() == 0.5 && scaled_exactly(x, s, sig as i32 - 1 - e) {
+    // `s` is below 10¹⁵, so its integer part is exact in a u64 and its fraction is exact.
+    let whole = s as u64;
+    let frac = s - whole as f64;
+    let mut r = if (frac - 0.5).abs() > s * 4.0 * f64::EPSILON {
+        whole + u64::from(frac > 0.5)
+    } else if frac == 0.5 && scaled_exactly(x, s, sig as i32 - 1 - e) {
         // An exact tie (370.5 to three digits, common for a tolerance applied to a
         // preferred value): halves go to the even neighbour, as in the exact conversion.
-        let f = s.floor();
-        if f % 2.0 == 0.0 {
-            f
-        } else {
-            f + 1.0
-        }
+        whole + (whole % 2)
     } else {
         return None;
     };
-    if r >= hi {
+    if r as f64 >= hi {
         // 999.7 → 1000: one digit more, so the next power of ten.
-        r = lo;
+        r = lo as u64;
         e += 1;
     }
     let mut text = itoa::Buffer::new();
-    Digits::from(text.format(r as u64)).ok().map(|d| (d, e))
+    Digits::from(text.format(r)).ok().map(|d| (d, e))
 }
 
 /// Whether `s`, the rounded `x·10^k` (`x / 10^-k` for negative `k`), is that value exactly:
