@@ -1263,9 +1263,9 @@ const EXACT_POW10: [f64; 23] = [
 /// `t`. Rounding to the nearest integer changes only across a half-integer; when `s` lies
 /// further than 2⁻⁵⁰·s from one, `t` lies on the same side, and both round alike. A value
 /// next to a power of ten rounds to that power whichever exponent is assumed, so the
-/// exponent estimated from the binary exponent only needs to bring `s` into range. Up to 15 digits the
-/// integer is exact in a double. The property tests below check it against the exact
-/// conversion.
+/// exponent estimated from the binary exponent only needs to bring `s` into range. Up to 15
+/// digits the integer is exact in a double. The property tests below check it against the
+/// exact conversion.
 fn round_scaled(x: f64, sig: usize) -> Option<(Digits, i32)> {
     if sig > 15 || !x.is_normal() || x <= 0.0 {
         return None;
