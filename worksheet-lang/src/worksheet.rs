@@ -1599,28 +1599,19 @@ impl Runner<'_> {
                         e.message = format!("the two sides cannot be compared: {}", e.message);
                         e
                     })?;
-                match known_ids {
-                    // Recorded under the ids the nominal pass gave them, without the keys.
-                    Some([l, r, d]) if !nominal => {
-                        ev.pass.set_scalar(l, a);
-                        ev.pass.set_scalar(r, b);
-                        ev.pass.set_scalar(d, diff);
-                    }
-                    _ => {
-                        let [lhs_key, rhs_key, diff_key] = &c.side_keys;
-                        ev.record(lhs_key, a);
-                        ev.record(rhs_key, b);
-                        ev.record(diff_key, diff);
-                        if nominal {
-                            let reg = &*ev.reg;
-                            let ids = [lhs_key, rhs_key, diff_key].map(|k| reg.find_scalar(k));
-                            if let [Some(l), Some(r), Some(d)] = ids {
-                                return Ok(Some([l, r, d]));
-                            }
-                        }
-                    }
-                }
-                Ok(None)
+                // The nominal pass registers the three scalars by key; later passes record
+                // them under its ids. (Where the nominal pass failed, nothing was
+                // registered, so there is nothing to record.)
+                let ids = match known_ids {
+                    _ if nominal => c.side_keys.each_ref().map(|k| ev.reg.scalar_id(k)),
+                    Some(ids) => ids,
+                    None => return Ok(None),
+                };
+                let [l, r, d] = ids;
+                ev.pass.set_scalar(l, a);
+                ev.pass.set_scalar(r, b);
+                ev.pass.set_scalar(d, diff);
+                Ok(nominal.then_some(ids))
             })();
             let notes = std::mem::take(&mut ev.notes);
             if nominal {
