@@ -1318,7 +1318,10 @@ fn round_scaled(x: f64, sig: usize) -> Option<(Digits, i32)> {
 }
 
 /// Whether `s`, the rounded `x·10^k` (`x / 10^-k` for negative `k`), is that value exactly:
-/// the residual of one fused multiply-add is exact, so it is zero only then.
+/// the residual of one fused multiply-add is exact, so it is zero only then. (The error of a
+/// rounded product is itself a double and an FMA yields it exactly: J.-M. Muller et al.,
+/// "Handbook of Floating-Point Arithmetic", 2nd ed., Birkhäuser 2018, on the FMA and
+/// error-free transformations, from memory. The property tests below check the result.)
 fn scaled_exactly(x: f64, s: f64, k: i32) -> bool {
     let Some(&p) = EXACT_POW10.get(k.unsigned_abs() as usize) else {
         return false;
