@@ -17,6 +17,7 @@ use crate::units::{self, Dim, Unit};
 use crate::value::{Num, Value};
 use rustc_hash::FxHashMap as HashMap;
 use std::borrow::Cow;
+use std::ops::Range;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::Arc;
 
@@ -1252,7 +1253,14 @@ struct Runner<'m> {
     /// Definitions evaluated at points: (definition, its inputs' values) → value and scalars.
     /// Per definition, a short list searched in order (a definition is seen at a few
     /// points only, so this beats hashing a key built for every lookup).
-    cache: Vec<Vec<(Vec<u64>, CachedDef)>>,
+    /// The key is a range of `cache_keys` (the bits of each input value, in the order of
+    /// `depends`).
+    cache: Vec<Vec<(Range<usize>, CachedDef)>>,
+    cache_keys: Vec<u64>,
+    /// The scalars each cached, boxed or nominal definition recorded (`CachedDef` holds a
+    /// range of it): one list for the whole run instead of one allocation per definition
+    /// and pass.
+    recorded: Vec<(usize, Num)>,
     /// The scalar ids of each definition's numeric leaves, from the nominal pass.
     leaves: Vec<Option<Vec<usize>>>,
     /// The inputs each definition registered itself in the nominal pass (its tolerance
@@ -1322,7 +1330,8 @@ fn set_leaves(v: &Value, ids: &mut std::slice::Iter<'_, usize>, pass: &mut Pass)
 }
 
 /// A definition's value at a point, with the scalars its evaluation recorded.
-type CachedDef = (Value, Vec<(usize, Num)>);
+/// A definition's value and the range of `Runner::recorded` holding the scalars it recorded.
+type CachedDef = (Value, Range<usize>);
 
 /// Side keys of a statement that is no check (never used).
 static NO_SIDES: [String; 3] = [String::new(), String::new(), String::new()];
@@ -1336,12 +1345,16 @@ impl Runner<'_> {
     /// the inputs it depends on. None until every box pass has shown those inputs (a
     /// derivative enclosure of exactly zero over the box proves independence), and for
     /// passes over intervals.
-    fn cache_key(&self, d: usize, mode: &Mode) -> Option<Vec<u64>> {
+    /// Appends the key of definition `d` at this pass's point to `cache_keys`; returns its
+    /// range, or None (leaving `cache_keys` as it was) when `d` is not cacheable here.
+    fn push_cache_key(&mut self, d: usize, mode: &Mode) -> Option<Range<usize>> {
         let values = self.cacheable(d, mode)?;
-        self.depends[d]
-            .iter()
-            .map(|&k| values.get(k).map(|v| v.lo.to_bits()))
-            .collect()
+        let start = self.cache_keys.len();
+        for &k in &self.depends[d] {
+            // `cacheable` saw every dependency's value.
+            self.cache_keys.push(values[k].lo.to_bits());
+        }
+        Some(start..self.cache_keys.len())
     }
 
     /// The pass's input values when definition `d` may be looked up in the cache: a pass
@@ -1374,7 +1387,7 @@ impl Runner<'_> {
         }
         self.cache.get(d)?.iter().find_map(|(key, hit)| {
             deps.iter()
-                .zip(key)
+                .zip(&self.cache_keys[key.clone()])
                 .all(|(&k, &bits)| values[k].lo.to_bits() == bits)
                 .then_some(hit)
         })
@@ -1436,7 +1449,7 @@ impl Runner<'_> {
                 (seed, self.reach.as_ref(), self.boxed_value[d].as_ref())
             {
                 if !reach[d].contains(&k) {
-                    for &(id, n) in recorded {
+                    for &(id, n) in &self.recorded[recorded.clone()] {
                         pass.set_scalar(id, flat(n));
                     }
                     values[d] = Some(Ok(without_derivative(v)));
@@ -1454,8 +1467,8 @@ impl Runner<'_> {
             // At a point of the input box already seen for the inputs this definition
             // depends on, its value and everything it recorded are known.
             if let Some((v, recorded)) = self.cached(d, &pass.mode) {
-                for (id, n) in recorded {
-                    pass.set_scalar(*id, *n);
+                for &(id, n) in &self.recorded[recorded.clone()] {
+                    pass.set_scalar(id, n);
                 }
                 values[d] = Some(Ok(v.clone()));
                 continue;
@@ -1526,26 +1539,40 @@ impl Runner<'_> {
                         self.own_inputs[d] = first_input..self.reg.inputs.len();
                         self.nominal_ok[d] = true;
                     }
-                    let recorded = pass.touched[first_touched..]
-                        .iter()
-                        .filter_map(|&id| pass.scalars[id].map(|n| (id, n)));
+                    // What it recorded, kept for reuse (a box pass's and a point's only
+                    // where they can be reused).
+                    let key = match pass.mode {
+                        Mode::Assign { .. } => self.push_cache_key(d, &pass.mode),
+                        _ => None,
+                    };
+                    let keep = nominal || key.is_some() || matches!(pass.mode, Mode::Box { .. });
+                    let start = self.recorded.len();
+                    if keep {
+                        self.recorded.extend(
+                            pass.touched[first_touched..]
+                                .iter()
+                                .filter_map(|&id| pass.scalars[id].map(|n| (id, n))),
+                        );
+                    }
+                    let recorded = start..self.recorded.len();
                     if nominal {
-                        self.nominal_def[d] = Some((v.clone(), recorded.collect()));
+                        self.nominal_def[d] = Some((v.clone(), recorded));
                     } else if let Mode::Box { seed } = pass.mode {
-                        let recorded: Vec<(usize, Num)> = recorded.collect();
                         if let Some(k) = seed {
-                            if recorded.iter().any(|(_, n)| n.x.d != Interval::ZERO) {
+                            if self.recorded[recorded.clone()]
+                                .iter()
+                                .any(|(_, n)| n.x.d != Interval::ZERO)
+                            {
                                 self.depends[d].push(k);
                             }
                             self.boxed[d] += 1;
                         }
                         self.boxed_value[d] = Some((v.clone(), recorded));
-                    } else if let Some(key) = self.cache_key(d, &pass.mode) {
-                        let entry = (key, (v.clone(), recorded.collect()));
+                    } else if let Some(key) = key {
                         if self.cache.len() <= d {
                             self.cache.resize_with(d + 1, Vec::new);
                         }
-                        self.cache[d].push(entry);
+                        self.cache[d].push((key, (v.clone(), recorded)));
                     }
                     values[d] = Some(Ok(v));
                 }
@@ -1762,6 +1789,8 @@ impl<'m> Runner<'m> {
             depends: vec![Vec::new(); model.defs.len()],
             boxed: vec![0; model.defs.len()],
             cache: Vec::new(),
+            cache_keys: Vec::new(),
+            recorded: Vec::new(),
             leaves: vec![None; model.defs.len()],
             own_inputs: vec![0..0; model.defs.len()],
             nominal_ok: vec![false; model.defs.len()],
