@@ -2,7 +2,8 @@
 
 use crate::builtins;
 use crate::eval::MATH;
-use crate::results::Shown;
+use crate::results::{Quantity, Shown};
+use crate::units::{self, Dim, Unit};
 use crate::worksheet::Worksheet;
 
 #[derive(Debug, Clone, PartialEq, Default)]
@@ -152,6 +153,16 @@ pub fn builtin_doc(b: &builtins::Builtin) -> String {
     t
 }
 
+/// A spread (a difference) in the value's display unit; temperature spreads in kelvin, as
+/// every temperature difference is shown.
+fn spread_text(si: f64, value: &Quantity, unit: Option<&Unit>) -> String {
+    const SIG: usize = 3;
+    match unit {
+        Some(u) if value.dim != Dim::TEMPERATURE => units::format_in(si, false, u, SIG),
+        _ => units::format_si(si, value.dim, false, SIG),
+    }
+}
+
 pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection> {
     let path = path_at(source, cursor);
     if path.is_empty() {
@@ -192,7 +203,8 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
         if let Some(r) = row {
             t.push_str(&format!("\nvalue: {}\n", r.text));
             if let Shown::Number {
-                bounds: Some(b), ..
+                bounds: Some(b),
+                value,
             } = &r.shown
             {
                 if let Some(range) = &r.range_text {
@@ -210,6 +222,12 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
                         "  {:>5.1} % of the spread from {}\n",
                         s.fraction * 100.0,
                         s.input
+                    ));
+                }
+                if !b.shares.is_empty() {
+                    t.push_str(&format!(
+                        "root-sum-square spread: ± {}\n",
+                        spread_text(b.rss, value, r.unit.as_ref().or(r.preferred.as_ref()))
                     ));
                 }
             }

@@ -113,6 +113,34 @@ fn the_reference_rail_without_built_ins() {
     assert!(close(total, 1.0));
 }
 
+/// Inspection of an uncertain value lists each input's share of its spread and the
+/// root-sum-square spread. p = vin · iload: vin's one-at-a-time swing is
+/// (13.2 V − 10.8 V) · 180 mA = 0.432 W, iload's is 12 V · (216 mA − 144 mA) = 0.864 W, so
+/// iload has 0.864 / 1.296 = 66.7 % and vin 33.3 %; the RSS is √(0.216² + 0.432²) W = 483 mW.
+/// A declared unit shows the spread in that unit (i2 = 2 · iload swings 144 mA, RSS 72 mA in
+/// mA), a temperature in kelvin (tj = 50 °C + 100 K/W · p: 100 K/W · 483 mW = 48.3 K).
+#[test]
+fn inspection_shows_the_shares_and_the_root_sum_square_spread() {
+    let mut ws = Worksheet::new();
+    let src = "given vin = 10.8 V .. 13.2 V\ngiven iload = 180 mA ± 20 %\np = vin * iload\n\
+               i2 [A] = 2 * iload\ntj [°C] = 50 °C + 100 K/W * p\n";
+    let r = ws.execute(Some("c1"), src, &Interrupt::new()).report;
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let at = |ws: &Worksheet, name: &str| ws.inspect(name, 1).expect("inspection").text;
+    let p = at(&ws, "p");
+    assert!(p.contains(" 66.7 % of the spread from iload"), "{p}");
+    assert!(p.contains(" 33.3 % of the spread from vin"), "{p}");
+    assert!(p.contains("root-sum-square spread: ± 483 mW"), "{p}");
+    let i2 = at(&ws, "i2");
+    assert!(i2.contains("root-sum-square spread: ± 0.0720 A"), "{i2}");
+    let tj = at(&ws, "tj");
+    assert!(tj.contains("root-sum-square spread: ± 48.3 K"), "{tj}");
+    // A value without uncertainty has no spread to report.
+    let r = ws.execute(Some("c2"), "k = 3 V", &Interrupt::new()).report;
+    assert!(!r.has_errors());
+    assert!(!at(&ws, "k").contains("spread"));
+}
+
 #[test]
 fn a_check_is_judged_on_its_difference_at_the_worst_corner() {
     // vin − 2 V ≥ vin − 3 V holds at every vin: the same vin on both sides.
