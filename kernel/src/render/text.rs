@@ -31,7 +31,7 @@ impl Grid<'_> {
         let cell_widths: Vec<Vec<usize>> = self
             .rows
             .iter()
-            .map(|row| row.iter().map(|c| c.width()).collect())
+            .map(|row| row.iter().map(|c| display_width(c)).collect())
             .collect();
         for row in &cell_widths {
             for (w, cell) in widths.iter_mut().zip(row) {
@@ -71,8 +71,25 @@ impl Grid<'_> {
     }
 }
 
-/// Notes and messages are one line in a table.
+/// Columns a cell takes in a terminal. Printable ASCII takes one column a byte, so most cells
+/// (names, numbers, unit symbols) skip the Unicode width tables.
+fn display_width(s: &str) -> usize {
+    if s.bytes().all(|b| (b' '..=b'~').contains(&b)) {
+        s.len()
+    } else {
+        s.width()
+    }
+}
+
+/// Notes and messages are one line in a table: runs of white space become one space.
 fn one_line(s: &str) -> String {
+    let single_spaced = s.bytes().all(|b| (b' '..=b'~').contains(&b))
+        && !s.contains("  ")
+        && !s.starts_with(' ')
+        && !s.ends_with(' ');
+    if single_spaced {
+        return s.to_string();
+    }
     s.split_whitespace().collect::<Vec<_>>().join(" ")
 }
 
@@ -265,4 +282,37 @@ pub(super) fn shown_table(rows: &[ValueRow]) -> Option<String> {
         .map(|l| l.strip_prefix(INDENT).unwrap_or(&l).to_string())
         .collect();
     Some(lines.join("\n"))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::{display_width, one_line};
+    use unicode_width::UnicodeWidthStr;
+
+    /// The ASCII shortcuts agree with the general rules on every kind of cell text.
+    #[test]
+    fn the_ascii_shortcuts_agree_with_the_general_rules() {
+        let samples = [
+            "",
+            " ",
+            "u1.loss",
+            "10.8 V … 13.2 V",
+            "°C",
+            "Ω",
+            "a  b",
+            " lead",
+            "trail ",
+            "tab\there",
+            "line\nbreak",
+            "wide 漢字",
+            "cr\rlf",
+            "nbsp\u{a0}kept",
+            "~!@#$%^&*()_+{}|:\"<>?`-=[]\\;',./",
+        ];
+        for s in samples {
+            assert_eq!(display_width(s), s.width(), "{s:?}");
+            let general = s.split_whitespace().collect::<Vec<_>>().join(" ");
+            assert_eq!(one_line(s), general, "{s:?}");
+        }
+    }
 }
