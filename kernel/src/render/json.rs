@@ -45,7 +45,12 @@ fn document<'a>(
             "warnings",
             warnings
                 .into_iter()
-                .map(|w| json!({ "source": w.source, "text": w.text }))
+                .map(|w| {
+                    object([
+                        ("source", Value::String(w.source.clone())),
+                        ("text", Value::String(w.text.clone())),
+                    ])
+                })
                 .collect(),
         ),
         ("sweeps", sweeps.into_iter().map(sweep).collect()),
@@ -55,7 +60,11 @@ fn document<'a>(
 /// A JSON object of built values, moved in. (`json!` would serialize each one again: a deep
 /// copy of every array and object it is given.)
 fn object<const N: usize>(pairs: [(&str, Value); N]) -> Value {
-    Value::Object(pairs.into_iter().map(|(k, v)| (k.to_string(), v)).collect())
+    let mut m = Map::with_capacity(N);
+    for (k, v) in pairs {
+        m.insert(k.to_string(), v);
+    }
+    Value::Object(m)
 }
 
 /// A JSON number. The language turns every NaN or infinity into a domain error before it
@@ -69,8 +78,12 @@ fn nums(xs: &[f64]) -> Value {
     Value::Array(xs.iter().copied().map(num).collect())
 }
 
+/// Most keys a value row has: name, si, unit, absolute, text, min, max, conservative,
+/// given, note. (With `preserve_order` a map grows by rehashing; sized once, it does not.)
+const VALUE_KEYS: usize = 10;
+
 fn value(v: &ValueRow) -> Value {
-    let mut m = Map::new();
+    let mut m = Map::with_capacity(VALUE_KEYS);
     m.insert("name".into(), json!(v.name));
     if let Shown::Number { value, bounds } = &v.shown {
         m.insert("si".into(), num(value.si));
@@ -94,15 +107,15 @@ fn value(v: &ValueRow) -> Value {
 }
 
 fn check(c: &CheckRow) -> Value {
-    json!({
-        "text": c.text,
-        "passed": c.passed,
-        "worst": num(c.worst),
-        "limit": num(c.limit),
-        "absolute": c.absolute,
-        "margin": num(c.margin),
-        "unit": unit_symbol(c.dim),
-    })
+    object([
+        ("text", Value::String(c.text.clone())),
+        ("passed", Value::Bool(c.passed)),
+        ("worst", num(c.worst)),
+        ("limit", num(c.limit)),
+        ("absolute", Value::Bool(c.absolute)),
+        ("margin", num(c.margin)),
+        ("unit", Value::String(unit_symbol(c.dim))),
+    ])
 }
 
 fn sweep(s: &SweepTable) -> Value {
