@@ -1329,8 +1329,8 @@ fn set_leaves(v: &Value, ids: &mut std::slice::Iter<'_, usize>, pass: &mut Pass)
     }
 }
 
-/// A definition's value at a point, with the scalars its evaluation recorded.
-/// A definition's value and the range of `Runner::recorded` holding the scalars it recorded.
+/// A definition's value, with the range of `Runner::recorded` that holds the scalars its
+/// evaluation recorded.
 type CachedDef = (Value, Range<usize>);
 
 /// Side keys of a statement that is no check (never used).
@@ -1341,12 +1341,11 @@ fn def_key(name: &str) -> String {
 }
 
 impl Runner<'_> {
-    /// The cache key of definition `d` in a pass at a point of the input box: the values of
-    /// the inputs it depends on. None until every box pass has shown those inputs (a
-    /// derivative enclosure of exactly zero over the box proves independence), and for
-    /// passes over intervals.
-    /// Appends the key of definition `d` at this pass's point to `cache_keys`; returns its
-    /// range, or None (leaving `cache_keys` as it was) when `d` is not cacheable here.
+    /// Appends the cache key of definition `d` in a pass at a point of the input box (the
+    /// values of the inputs it depends on) to `cache_keys` and returns its range. None, with
+    /// `cache_keys` as it was, until every box pass has shown those inputs (a derivative
+    /// enclosure of exactly zero over the box proves independence), and for passes over
+    /// intervals.
     fn push_cache_key(&mut self, d: usize, mode: &Mode) -> Option<Range<usize>> {
         let values = self.cacheable(d, mode)?;
         let start = self.cache_keys.len();

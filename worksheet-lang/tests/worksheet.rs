@@ -117,8 +117,8 @@ fn the_reference_rail_without_built_ins() {
 /// root-sum-square spread. p = vin · iload: vin's one-at-a-time swing is
 /// (13.2 V − 10.8 V) · 180 mA = 0.432 W, iload's is 12 V · (216 mA − 144 mA) = 0.864 W, so
 /// iload has 0.864 / 1.296 = 66.7 % and vin 33.3 %; the RSS is √(0.216² + 0.432²) W = 483 mW.
-/// A declared unit shows the spread in that unit (i2 = 2 · iload swings 144 mA, RSS 72 mA in
-/// mA), a temperature in kelvin (tj = 50 °C + 100 K/W · p: 100 K/W · 483 mW = 48.3 K).
+/// A declared unit shows the spread in that unit (i2 [A] = 2 · iload swings 144 mA: RSS
+/// 0.0720 A), a temperature in kelvin (tj = 50 °C + 100 K/W · p: 100 K/W · 483 mW = 48.3 K).
 #[test]
 fn inspection_shows_the_shares_and_the_root_sum_square_spread() {
     let mut ws = Worksheet::new();
