@@ -843,6 +843,7 @@ impl<'a> Evaluator<'a> {
             args,
             slots: &slots,
             in_function,
+            certain: std::cell::Cell::new(None),
             buf,
         };
         let mut ctx = CallCtx { host: &mut host };
@@ -1106,6 +1107,8 @@ struct Host<'e, 'a> {
     slots: &'e [Option<Value>],
     /// Made inside a worksheet function (whose parameters may be uncertain).
     in_function: bool,
+    /// Whether every argument is exact (`is_certain`), worked out at the first range asked.
+    certain: std::cell::Cell<Option<bool>>,
     /// Where the keys of its choices and probes are built (the registry's buffer, lent for
     /// the call).
     buf: String,
@@ -1206,12 +1209,16 @@ impl CallHost for Host<'_, '_> {
         // Arguments that no tolerance, range or part can reach have point ranges in every
         // pass: a choice that asks for them needs no box pass to learn them.
         let names = self.ev.names;
-        if !self.in_function
-            && self
-                .args
-                .iter()
-                .all(|a| is_certain(&a.value, &|n| names.certain(n)))
-        {
+        let certain = self.certain.get().unwrap_or_else(|| {
+            let c = !self.in_function
+                && self
+                    .args
+                    .iter()
+                    .all(|a| is_certain(&a.value, &|n| names.certain(n)));
+            self.certain.set(Some(c));
+            c
+        });
+        if certain {
             return match self.slots.get(param) {
                 Some(Some(Value::Num(n))) => Some(n.x.v),
                 _ => None,

@@ -74,19 +74,21 @@ impl Grid<'_> {
 /// Columns a cell takes in a terminal. Printable ASCII takes one column a byte, so most cells
 /// (names, numbers, unit symbols) skip the Unicode width tables.
 fn display_width(s: &str) -> usize {
-    if s.bytes().all(|b| (b' '..=b'~').contains(&b)) {
+    if printable_ascii(s) {
         s.len()
     } else {
         s.width()
     }
 }
 
+fn printable_ascii(s: &str) -> bool {
+    s.bytes().all(|b| (b' '..=b'~').contains(&b))
+}
+
 /// Notes and messages are one line in a table: runs of white space become one space.
 fn one_line(s: &str) -> String {
-    let single_spaced = s.bytes().all(|b| (b' '..=b'~').contains(&b))
-        && !s.contains("  ")
-        && !s.starts_with(' ')
-        && !s.ends_with(' ');
+    let single_spaced =
+        printable_ascii(s) && !s.contains("  ") && !s.starts_with(' ') && !s.ends_with(' ');
     if single_spaced {
         return s.to_string();
     }
