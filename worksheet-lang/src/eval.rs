@@ -11,7 +11,6 @@ use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::num::{Dual, Interval};
 use crate::units::{self, Dim};
 use crate::value::{Num, Record, Value};
-use arrayvec::ArrayVec;
 use rustc_hash::FxHashMap as HashMap;
 use std::sync::Arc;
 
@@ -106,6 +105,21 @@ pub struct Registry {
     key_buf: String,
     /// The buffer for the keys of tolerance sites.
     site_buf: String,
+    /// Each built-in call's `CallSite`, by its call key (`sites` indexes `call_sites`).
+    sites: HashMap<String, usize>,
+    call_sites: Vec<CallSite>,
+}
+
+/// What the passes found of one built-in call, by the key the built-in gives each of its
+/// choices, parts and probes: the choices and scalar ids that would otherwise be found by
+/// building the full key and hashing it, once per pass. A call has a few of each, so a scan
+/// beats a map. It only caches lookups: the nominal pass registers as it always does.
+#[derive(Debug, Default, Clone)]
+struct CallSite {
+    choices: Vec<(&'static str, f64)>,
+    probes: Vec<(&'static str, usize)>,
+    /// A part's input and the scalar of its value.
+    parts: Vec<(&'static str, usize, usize)>,
 }
 
 impl Registry {
@@ -128,6 +142,16 @@ impl Registry {
     }
     pub fn find_scalar(&self, key: &str) -> Option<usize> {
         self.scalar_index.get(key).copied()
+    }
+    /// The index of the call site with key `call_key` in `call_sites`, added when new.
+    fn call_site(&mut self, call_key: &str) -> usize {
+        if let Some(&i) = self.sites.get(call_key) {
+            return i;
+        }
+        let i = self.call_sites.len();
+        self.call_sites.push(CallSite::default());
+        self.sites.insert(call_key.to_string(), i);
+        i
     }
 }
 
@@ -280,8 +304,13 @@ impl<'a> Evaluator<'a> {
                 ))
             }
         };
+        Ok(self.input_value(id))
+    }
+
+    /// The value of input `id` in this pass.
+    fn input_value(&self, id: usize) -> Dual {
         let info = &self.reg.inputs[id];
-        Ok(match &self.pass.mode {
+        match &self.pass.mode {
             Mode::Nominal => Dual::constant(info.nominal),
             Mode::Box { seed } => Dual::input(Interval::new(info.lo, info.hi), *seed == Some(id)),
             Mode::Assign { values, seed } => Dual::input(
@@ -291,7 +320,7 @@ impl<'a> Evaluator<'a> {
                     .unwrap_or(Interval::point(info.nominal)),
                 *seed == Some(id),
             ),
-        })
+        }
     }
 
     fn input_site(
@@ -749,12 +778,12 @@ impl<'a> Evaluator<'a> {
         // On the stack: a call is made in every pass (every built-in has at most
         // MAX_PARAMS parameters, which a test checks).
         let n = b.params.len().min(builtins::MAX_PARAMS);
-        let mut slots: ArrayVec<Option<Value>, { builtins::MAX_PARAMS }> =
-            (0..n).map(|_| None).collect();
-        let mut spans: ArrayVec<Span, { builtins::MAX_PARAMS }> =
-            (0..n).map(|_| span.clone()).collect();
+        let mut slots: [Option<Value>; builtins::MAX_PARAMS] = Default::default();
+        // Which argument filled each parameter (for the span of an error), NO_ARG if none.
+        const NO_ARG: usize = usize::MAX;
+        let mut arg_of = [NO_ARG; builtins::MAX_PARAMS];
         let mut positional = 0;
-        for a in args {
+        for (ai, a) in args.iter().enumerate() {
             let idx = match &a.name {
                 None => {
                     if positional >= n {
@@ -768,20 +797,17 @@ impl<'a> Evaluator<'a> {
                     positional += 1;
                     positional - 1
                 }
-                Some(n) => match b.params[..slots.len()]
-                    .iter()
-                    .position(|p| p.name == n.name)
-                {
+                Some(nm) => match b.params[..n].iter().position(|p| p.name == nm.name) {
                     Some(i) => i,
                     None => {
                         let names: Vec<String> =
                             b.params.iter().map(|p| p.name.to_string()).collect();
                         let mut err = EvalError::new(
                             DiagKind::Argument,
-                            &n.span,
-                            format!("`{}` has no parameter `{}`", b.path, n.name),
+                            &nm.span,
+                            format!("`{}` has no parameter `{}`", b.path, nm.name),
                         );
-                        err = match nearest(&n.name, &names) {
+                        err = match nearest(&nm.name, &names) {
                             Some(best) => {
                                 err.hint(format!("did you mean `{best}`? ({})", b.doc.signature))
                             }
@@ -799,7 +825,7 @@ impl<'a> Evaluator<'a> {
                 ));
             }
             slots[idx] = Some(self.eval(&a.value)?);
-            spans[idx] = a.value.span.clone();
+            arg_of[idx] = ai;
         }
         if let Some((i, p)) = b
             .params
@@ -826,7 +852,7 @@ impl<'a> Evaluator<'a> {
         );
         if matches!(self.pass.mode, Mode::Box { .. }) && !self.reg.observed.contains_key(&call_key)
         {
-            let ranges = slots
+            let ranges = slots[..n]
                 .iter()
                 .map(|v| match v {
                     Some(Value::Num(n)) => Some(n.x.v),
@@ -835,26 +861,28 @@ impl<'a> Evaluator<'a> {
                 .collect();
             self.reg.observed.insert(call_key.clone(), ranges);
         }
+        let site = self.reg.call_site(&call_key);
         let buf = std::mem::take(&mut self.reg.key_buf);
         let in_function = !self.locals.is_empty();
         let mut host = Host {
             ev: self,
             call_key,
+            site,
             args,
-            slots: &slots,
+            slots: &slots[..n],
             in_function,
             certain: std::cell::Cell::new(None),
             buf,
         };
         let mut ctx = CallCtx { host: &mut host };
-        let result = (b.call)(&mut ctx, &slots);
+        let result = (b.call)(&mut ctx, &slots[..n]);
         host.ev.reg.key_buf = host.buf;
         host.ev.reg.call_buf = host.call_key;
         result.map_err(|e: CallError| {
             let at = e
                 .param
-                .and_then(|i| spans.get(i).cloned())
-                .unwrap_or(span.clone());
+                .and_then(|i| args.get(*arg_of.get(i)?))
+                .map_or(span.clone(), |a| a.value.span.clone());
             let mut err = EvalError::new(
                 DiagKind::Argument,
                 &at,
@@ -1102,6 +1130,8 @@ struct Host<'e, 'a> {
     ev: &'e mut Evaluator<'a>,
     /// "statement#offset" of the call.
     call_key: String,
+    /// Its index in the registry's `call_sites`.
+    site: usize,
     /// The call's arguments, as written and as evaluated.
     args: &'e [Arg],
     slots: &'e [Option<Value>],
@@ -1112,6 +1142,11 @@ struct Host<'e, 'a> {
     /// Where the keys of its choices and probes are built (the registry's buffer, lent for
     /// the call).
     buf: String,
+}
+
+/// Two keys of a built-in: the same literal is usually one address, so compare that first.
+fn same_key(a: &str, b: &str) -> bool {
+    std::ptr::eq(a, b) || a == b
 }
 
 /// `parts`, joined into `buf`.
@@ -1129,31 +1164,47 @@ impl CallHost for Host<'_, '_> {
     }
     fn choose(
         &mut self,
-        key: &str,
+        key: &'static str,
         pick: &mut dyn FnMut() -> Result<f64, CallError>,
     ) -> Result<f64, CallError> {
-        fill(&mut self.buf, &[&self.call_key, ":", key]);
-        if let Some(&v) = self.ev.reg.choices.get(self.buf.as_str()) {
+        let site = &mut self.ev.reg.call_sites[self.site];
+        if let Some(&(_, v)) = site.choices.iter().find(|(k, _)| same_key(k, key)) {
             return Ok(v);
         }
-        if !self.ev.nominal() {
-            return Err(CallError::new(
-                "internal: a choice was not made in the nominal pass",
-            ));
-        }
-        let v = pick()?;
-        self.ev.reg.choices.insert(self.buf.clone(), v);
+        fill(&mut self.buf, &[&self.call_key, ":", key]);
+        let v = match self.ev.reg.choices.get(self.buf.as_str()) {
+            Some(&v) => v,
+            None if !self.ev.nominal() => {
+                return Err(CallError::new(
+                    "internal: a choice was not made in the nominal pass",
+                ))
+            }
+            None => {
+                let v = pick()?;
+                self.ev.reg.choices.insert(self.buf.clone(), v);
+                v
+            }
+        };
+        self.ev.reg.call_sites[self.site].choices.push((key, v));
         Ok(v)
     }
     fn part_input(
         &mut self,
-        key: &str,
+        key: &'static str,
         label: String,
         nominal: f64,
         lo: f64,
         hi: f64,
         dim: Dim,
     ) -> Dual {
+        if !self.ev.nominal() {
+            let site = &self.ev.reg.call_sites[self.site];
+            if let Some(&(_, input, scalar)) = site.parts.iter().find(|(k, ..)| same_key(k, key)) {
+                let x = self.ev.input_value(input);
+                self.ev.pass.set_scalar(scalar, Num::new(x, dim));
+                return x;
+            }
+        }
         // "input:call:key", built in the registry's site buffer (a part is met in every
         // pass); the input's own key is what follows "input:".
         const SCALAR: &str = "input:";
@@ -1177,6 +1228,13 @@ impl CallHost for Host<'_, '_> {
                     }
                 }
                 self.ev.record(&skey, Num::new(x, dim));
+                let reg = &mut self.ev.reg;
+                if let (Some(&input), Some(scalar)) = (
+                    reg.input_index.get(&skey[SCALAR.len()..]),
+                    reg.scalar_index.get(skey.as_str()).copied(),
+                ) {
+                    reg.call_sites[self.site].parts.push((key, input, scalar));
+                }
                 x
             }
             Err(_) => Dual::constant(nominal),
@@ -1184,9 +1242,17 @@ impl CallHost for Host<'_, '_> {
         self.ev.reg.site_buf = skey;
         x
     }
-    fn probe(&mut self, key: &str, value: Num, rule: WarnRule) {
+    fn probe(&mut self, key: &'static str, value: Num, rule: WarnRule) {
+        let nominal = self.ev.nominal();
+        if !nominal {
+            let site = &self.ev.reg.call_sites[self.site];
+            if let Some(&(_, id)) = site.probes.iter().find(|(k, _)| same_key(k, key)) {
+                self.ev.pass.set_scalar(id, value);
+                return;
+            }
+        }
         fill(&mut self.buf, &["probe:", &self.call_key, ":", key]);
-        if self.ev.nominal() {
+        if nominal {
             let scalar = self.ev.reg.scalar_id(&self.buf);
             if !self
                 .ev
@@ -1204,6 +1270,9 @@ impl CallHost for Host<'_, '_> {
             }
         }
         self.ev.record(&self.buf, value);
+        if let Some(id) = self.ev.reg.find_scalar(&self.buf) {
+            self.ev.reg.call_sites[self.site].probes.push((key, id));
+        }
     }
     fn arg_range(&self, param: usize) -> Option<Interval> {
         // Arguments that no tolerance, range or part can reach have point ranges in every

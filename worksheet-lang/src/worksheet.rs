@@ -1337,7 +1337,7 @@ type CachedDef = (Value, Range<usize>);
 static NO_SIDES: [String; 3] = [String::new(), String::new(), String::new()];
 
 fn def_key(name: &str) -> String {
-    format!("d:{name}")
+    eval::join(&["d:", name])
 }
 
 impl Runner<'_> {
@@ -1710,6 +1710,11 @@ impl Runner<'_> {
         }
         if nominal {
             self.nominal_values = values;
+            // Room for what the later passes record and cache, so the lists grow once or
+            // not at all (the reference cell records about six times its scalars).
+            let scalars = self.reg.scalar_count();
+            self.recorded.reserve(8 * scalars);
+            self.cache_keys.reserve(2 * scalars);
         }
         Some(pass)
     }

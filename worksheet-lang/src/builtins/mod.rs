@@ -117,19 +117,19 @@ pub trait CallHost {
     fn is_nominal(&self) -> bool;
     fn choose(
         &mut self,
-        key: &str,
+        key: &'static str,
         pick: &mut dyn FnMut() -> Result<f64, CallError>,
     ) -> Result<f64, CallError>;
     fn part_input(
         &mut self,
-        key: &str,
+        key: &'static str,
         label: String,
         nominal: f64,
         lo: f64,
         hi: f64,
         dim: Dim,
     ) -> Dual;
-    fn probe(&mut self, key: &str, value: Num, rule: WarnRule);
+    fn probe(&mut self, key: &'static str, value: Num, rule: WarnRule);
     fn warn(&mut self, text: String);
     /// The worst-case range (SI) of argument `param` over the whole input box, where the
     /// evaluator knows it before the nominal pass. Choices made by a worst-case rule
@@ -156,7 +156,7 @@ impl CallCtx<'_> {
     /// reused in every other pass. `key` distinguishes choices within one call.
     pub fn choose(
         &mut self,
-        key: &str,
+        key: &'static str,
         mut pick: impl FnMut() -> Result<f64, CallError>,
     ) -> Result<f64, CallError> {
         self.host.choose(key, &mut pick)
@@ -165,7 +165,7 @@ impl CallCtx<'_> {
     /// `nominal` (SI). Returns its value in the current pass.
     pub fn part_input(
         &mut self,
-        key: &str,
+        key: &'static str,
         label: String,
         nominal: f64,
         lo: f64,
@@ -175,7 +175,7 @@ impl CallCtx<'_> {
         self.host.part_input(key, label, nominal, lo, hi, dim)
     }
     /// Records a value whose worst case decides a warning.
-    pub fn probe(&mut self, key: &str, value: Num, rule: WarnRule) {
+    pub fn probe(&mut self, key: &'static str, value: Num, rule: WarnRule) {
         self.host.probe(key, value, rule)
     }
     /// The worst-case range of argument `param`, if the evaluator knows it.

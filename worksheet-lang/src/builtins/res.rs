@@ -586,7 +586,7 @@ fn divider(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallE
     };
     let top_nom = ctx.choose("r_top", || search().map(|p| p.0))?;
     let bottom_nom = ctx.choose("r_bottom", || search().map(|p| p.1))?;
-    let part = |ctx: &mut CallCtx<'_>, key: &str, v: f64| -> Resistance {
+    let part = |ctx: &mut CallCtx<'_>, key: &'static str, v: f64| -> Resistance {
         let label = if ctx.is_nominal() {
             format!("{key} = {} ± {}", show(v, Dim::RESISTANCE), percent(tol))
         } else {
