@@ -33,14 +33,17 @@ pub struct ScalarBounds {
     pub conservative: bool,
     /// The assignment of the inputs where the minimum (maximum) is reached or, for a
     /// conservative bound, the worst sampled point.
-    pub min_at: Vec<Interval>,
-    pub max_at: Vec<Interval>,
+    pub min_at: Inputs<Interval>,
+    pub max_at: Inputs<Interval>,
     /// The inputs the value depends on.
-    pub depends: Vec<usize>,
+    pub depends: Inputs<usize>,
     /// Each dependency's one-at-a-time half swing |f(hi) − f(lo)| / 2, in the order of
     /// `depends` (halved before subtracting, so two finite ends never overflow).
-    pub half_swings: Vec<f64>,
+    pub half_swings: Inputs<f64>,
 }
+
+/// One item per uncertain input: inline up to four inputs, the usual count.
+pub type Inputs<T> = smallvec::SmallVec<[T; 4]>;
 
 /// Evaluates the worksheet under an assignment; returns the scalars of that pass.
 pub trait Evaluate {
@@ -193,7 +196,7 @@ pub fn analyse<E: Evaluate>(
             // Failed in a box pass (its error is reported elsewhere): treat as unknown.
             None => Sign::Unknown,
         }));
-        let depends: Vec<usize> = (0..n).filter(|&k| signs[k] != Sign::Zero).collect();
+        let depends: Inputs<usize> = (0..n).filter(|&k| signs[k] != Sign::Zero).collect();
         if depends.is_empty() {
             continue;
         }
@@ -212,8 +215,8 @@ pub fn analyse<E: Evaluate>(
                 .copied()
                 .filter(|&k| signs[k] == Sign::Unknown),
         );
-        let mut min_at: Vec<Interval> = (0..n).map(|k| end(k, false)).collect();
-        let mut max_at: Vec<Interval> = (0..n).map(|k| end(k, true)).collect();
+        let mut min_at: Inputs<Interval> = (0..n).map(|k| end(k, false)).collect();
+        let mut max_at: Inputs<Interval> = (0..n).map(|k| end(k, true)).collect();
         let (min, max, conservative) = if unknown.is_empty() {
             let (lo, hi) = (passes.at(&min_at, s), passes.at(&max_at, s));
             if passes.interrupted {
@@ -240,8 +243,8 @@ pub fn analyse<E: Evaluate>(
             let (Some((lo, lo_at, lo_exact)), Some((hi, hi_at, hi_exact))) = (lo, hi) else {
                 continue;
             };
-            min_at = lo_at;
-            max_at = hi_at;
+            min_at = Inputs::from_vec(lo_at);
+            max_at = Inputs::from_vec(hi_at);
             // Exact when every sub-range proved monotone, so its extreme is at its end.
             (
                 lo.min(nom.x.value()),
@@ -249,7 +252,7 @@ pub fn analyse<E: Evaluate>(
                 !(lo_exact && hi_exact),
             )
         };
-        let mut half_swings = Vec::with_capacity(depends.len());
+        let mut half_swings = Inputs::with_capacity(depends.len());
         for &k in &depends {
             let a = &mut one_at_a_time;
             a[k] = Interval::point(inputs[k].lo);
