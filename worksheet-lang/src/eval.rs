@@ -33,6 +33,18 @@ pub struct EvalError {
     pub span: Span,
     pub message: String,
     pub hint: Option<String>,
+    /// For an error that a failed definition caused (`DependencyFailed`): that failure, so
+    /// the definitions further down name it rather than the whole chain.
+    pub cause: Option<Box<Failed>>,
+}
+
+/// Why a definition has no value, as the statements that read it report it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Failed {
+    /// The definition whose own evaluation failed: this one, or one it depends on.
+    pub root: String,
+    /// That definition's error.
+    pub message: String,
 }
 
 impl EvalError {
@@ -42,6 +54,7 @@ impl EvalError {
             span: span.clone(),
             message: message.into(),
             hint: None,
+            cause: None,
         }
     }
     pub fn hint(mut self, h: impl Into<String>) -> Self {
@@ -218,7 +231,7 @@ pub struct Function {
 /// What names resolve to during a pass.
 pub trait Names {
     /// The value of a definition in this pass; `Err` when it failed or is not defined.
-    fn lookup(&self, name: &str) -> Option<Result<Value, String>>;
+    fn lookup(&self, name: &str) -> Option<Result<Value, Failed>>;
     fn function(&self, name: &str) -> Option<&Function>;
     /// The name's value is exact in every pass (see `is_certain`); false when unsure.
     fn certain(&self, _name: &str) -> bool {
@@ -545,12 +558,18 @@ impl<'a> Evaluator<'a> {
         }
         match self.names.lookup(n) {
             Some(Ok(v)) => return Ok(v),
-            Some(Err(why)) => {
-                return Err(EvalError::new(
-                    DiagKind::DependencyFailed,
-                    span,
-                    format!("`{n}` has no value: {why}"),
-                ))
+            Some(Err(failed)) => {
+                let message = if failed.root == n {
+                    format!("`{n}` has no value: {}", failed.message)
+                } else {
+                    format!(
+                        "`{n}` has no value: it depends on `{}`, which failed: {}",
+                        failed.root, failed.message
+                    )
+                };
+                let mut e = EvalError::new(DiagKind::DependencyFailed, span, message);
+                e.cause = Some(Box::new(failed));
+                return Err(e);
             }
             None => {}
         }
@@ -1392,7 +1411,10 @@ pub fn binary(op: BinOp, a: Num, b: Num, span: &Span, rhs_span: &Span) -> R<Num>
                     if op == BinOp::Add { "plus" } else { "minus" },
                     units::describe_quantity(b.dim, b.abs)
                 );
-                return Err(e);
+                return Err(e.hint(
+                    "`+` and `-` join quantities of one kind: check the units of both sides, \
+                     or whether a factor is missing",
+                ));
             }
             let abs = match (op, a.abs, b.abs) {
                 (BinOp::Add, true, true) => {

@@ -9,7 +9,7 @@
 use crate::analysis::{self, Passes, ScalarBounds};
 use crate::ast::{CmpOp, Expr, ExprKind, Program, Span, Stmt, StmtKind};
 use crate::diagnostic::{DiagKind, Diagnostic};
-use crate::eval::{self, EvalError, Evaluator, Function, Mode, Names, Pass, Registry};
+use crate::eval::{self, EvalError, Evaluator, Failed, Function, Mode, Names, Pass, Registry};
 use crate::num::Interval;
 use crate::parser;
 use crate::results::{Bounds, CellReport, Change, CheckRow, Share, Shown, ValueRow, WarningRow};
@@ -1195,15 +1195,18 @@ fn restrict(model: &mut Model<'_>, live: Vec<bool>) {
 
 struct Scope<'m> {
     model: &'m Model<'m>,
-    values: &'m [Option<Result<Value, String>>],
+    values: &'m [Option<Result<Value, Failed>>],
 }
 
 impl Names for Scope<'_> {
-    fn lookup(&self, name: &str) -> Option<Result<Value, String>> {
+    fn lookup(&self, name: &str) -> Option<Result<Value, Failed>> {
         let &i = self.model.index.get(name)?;
         Some(match &self.values[i] {
             Some(v) => v.clone(),
-            None => Err("it is not computed yet".into()),
+            None => Err(Failed {
+                root: name.to_string(),
+                message: "it is not computed yet".into(),
+            }),
         })
     }
     fn function(&self, name: &str) -> Option<&Function> {
@@ -1244,7 +1247,7 @@ struct Runner<'m> {
     /// Extra expressions evaluated after the statements (a sweep's series): (key, expr).
     extra: Vec<(String, Expr)>,
     /// Values of the nominal pass: definitions, and shown expressions by index.
-    nominal_values: Vec<Option<Result<Value, String>>>,
+    nominal_values: Vec<Option<Result<Value, Failed>>>,
     shown: HashMap<usize, Value>,
     /// For each definition, the inputs its recorded scalars depend on (from box passes),
     /// and how many box passes it has completed.
@@ -1432,7 +1435,7 @@ impl Runner<'_> {
         let nominal = matches!(mode, Mode::Nominal);
         let model = self.model;
         let mut pass = Pass::new(mode, self.reg.scalar_count());
-        let mut values: Vec<Option<Result<Value, String>>> = vec![None; model.defs.len()];
+        let mut values: Vec<Option<Result<Value, Failed>>> = vec![None; model.defs.len()];
         let seed = match pass.mode {
             Mode::Box { seed } => seed,
             _ => None,
@@ -1460,7 +1463,10 @@ impl Runner<'_> {
                 if nominal {
                     self.fail(StmtId::Def(d), e.clone());
                 }
-                values[d] = Some(Err(e.message.clone()));
+                values[d] = Some(Err(Failed {
+                    root: def.name.clone(),
+                    message: e.message.clone(),
+                }));
                 continue;
             }
             // At a point of the input box already seen for the inputs this definition
@@ -1583,7 +1589,15 @@ impl Runner<'_> {
                         );
                         e.span = def.value_span.clone();
                     }
-                    values[d] = Some(Err(e.message.clone()));
+                    // Dependents name the definition whose own evaluation failed.
+                    let failed = match e.cause.as_deref() {
+                        Some(root) if e.kind == DiagKind::DependencyFailed => root.clone(),
+                        _ => Failed {
+                            root: def.name.clone(),
+                            message: e.message.clone(),
+                        },
+                    };
+                    values[d] = Some(Err(failed));
                     self.fail(StmtId::Def(d), e);
                 }
             }
@@ -1761,7 +1775,7 @@ fn same_kind(
 
 struct NoNames;
 impl Names for NoNames {
-    fn lookup(&self, _: &str) -> Option<Result<Value, String>> {
+    fn lookup(&self, _: &str) -> Option<Result<Value, Failed>> {
         None
     }
     fn function(&self, _: &str) -> Option<&Function> {

@@ -280,6 +280,13 @@ fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
         e.message
     );
     assert_eq!(&src[e.span.clone()], "12 V + 3 A");
+    assert!(
+        e.hint
+            .as_deref()
+            .unwrap_or("")
+            .contains("units of both sides"),
+        "{e:?}"
+    );
     // Declared unit.
     let e = only_error("p [mW] = 2 V\n");
     assert_eq!(e.kind, DiagKind::DimensionMismatch);
@@ -304,12 +311,24 @@ fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
     // Twice in one cell.
     let e = only_error("a = 1 V\na = 2 V\n");
     assert_eq!(e.kind, DiagKind::Redefinition);
-    // A dependent of a failed definition says why.
-    let r = run("a = 1 V + 1 A\nb = a * 2\n");
-    assert!(r
+    // A dependent of a failed definition says why, naming the definition that failed once
+    // however long the chain.
+    let r = run("a = 1 V + 1 A\nb = a * 2\nc = b + 1 V\nd = c / 2\n");
+    let because: Vec<&str> = r
         .diagnostics
         .iter()
-        .any(|d| d.kind == DiagKind::DependencyFailed));
+        .filter(|d| d.kind == DiagKind::DependencyFailed)
+        .map(|d| d.message.as_str())
+        .collect();
+    let root = "A voltage plus a current: the dimensions differ";
+    assert_eq!(
+        because,
+        [
+            format!("`a` has no value: {root}"),
+            format!("`b` has no value: it depends on `a`, which failed: {root}"),
+            format!("`c` has no value: it depends on `a`, which failed: {root}"),
+        ],
+    );
     // A unit read as a unit although a name exists: a warning with the product spelled out.
     let r = run("C = 2 uF\nq = 2 C\n");
     let w = r
