@@ -26,9 +26,14 @@ pub const MAX_CALLS: usize = 50_000;
 /// Longest list a worksheet may build.
 pub const MAX_LIST_LEN: usize = 10_000;
 
-/// An evaluation error, turned into a diagnostic at the statement that met it.
+/// An evaluation error, turned into a diagnostic at the statement that met it. Boxed: every
+/// evaluation step returns a `Result` with it, which stays the size of a value this way.
 #[derive(Debug, Clone, PartialEq)]
-pub struct EvalError {
+pub struct EvalError(Box<EvalErrorData>);
+
+/// What an `EvalError` holds (its fields are read and set through the error).
+#[derive(Debug, Clone, PartialEq)]
+pub struct EvalErrorData {
     pub kind: DiagKind,
     pub span: Span,
     pub message: String,
@@ -49,22 +54,36 @@ pub struct Failed {
 
 impl EvalError {
     pub fn new(kind: DiagKind, span: &Span, message: impl Into<String>) -> Self {
-        EvalError {
+        EvalError(Box::new(EvalErrorData {
             kind,
             span: span.clone(),
             message: message.into(),
             hint: None,
             cause: None,
-        }
+        }))
     }
     pub fn hint(mut self, h: impl Into<String>) -> Self {
         self.hint = Some(h.into());
         self
     }
     pub fn into_diagnostic(self) -> Diagnostic {
-        let mut d = Diagnostic::error(self.kind, self.span, self.message);
-        d.hint = self.hint;
+        let e = *self.0;
+        let mut d = Diagnostic::error(e.kind, e.span, e.message);
+        d.hint = e.hint;
         d
+    }
+}
+
+impl std::ops::Deref for EvalError {
+    type Target = EvalErrorData;
+    fn deref(&self) -> &EvalErrorData {
+        &self.0
+    }
+}
+
+impl std::ops::DerefMut for EvalError {
+    fn deref_mut(&mut self) -> &mut EvalErrorData {
+        &mut self.0
     }
 }
 
