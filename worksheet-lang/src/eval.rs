@@ -926,7 +926,7 @@ impl<'a> Evaluator<'a> {
                 &at,
                 format!("{}: {}", b.path, e.message),
             );
-            err.hint = e.hint;
+            err.hint = e.into_inner().hint;
             err
         })
     }

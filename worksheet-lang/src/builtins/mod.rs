@@ -65,8 +65,13 @@ pub struct FieldDoc {
 }
 
 /// An error in a call: a bad argument value, a missing argument, an impossible design.
+/// Boxed, so the results of the built-ins and their argument readers stay small.
 #[derive(Debug, Clone, PartialEq)]
-pub struct CallError {
+pub struct CallError(Box<CallErrorData>);
+
+/// What a `CallError` holds (its fields are read through the error).
+#[derive(Debug, Clone, PartialEq)]
+pub struct CallErrorData {
     pub message: String,
     pub hint: Option<String>,
     /// The parameter the error is about (its index in `params`), to point at its span.
@@ -75,11 +80,11 @@ pub struct CallError {
 
 impl CallError {
     pub fn new(message: impl Into<String>) -> Self {
-        CallError {
+        CallError(Box::new(CallErrorData {
             message: message.into(),
             hint: None,
             param: None,
-        }
+        }))
     }
     pub fn at(mut self, param: usize) -> Self {
         self.param = Some(param);
@@ -88,6 +93,23 @@ impl CallError {
     pub fn hint(mut self, hint: impl Into<String>) -> Self {
         self.hint = Some(hint.into());
         self
+    }
+    /// Its fields, by value.
+    pub fn into_inner(self) -> CallErrorData {
+        *self.0
+    }
+}
+
+impl std::ops::Deref for CallError {
+    type Target = CallErrorData;
+    fn deref(&self) -> &CallErrorData {
+        &self.0
+    }
+}
+
+impl std::ops::DerefMut for CallError {
+    fn deref_mut(&mut self) -> &mut CallErrorData {
+        &mut self.0
     }
 }
 
