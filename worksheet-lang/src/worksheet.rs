@@ -1725,10 +1725,13 @@ impl Runner<'_> {
         if nominal {
             self.nominal_values = values;
             // Room for what the later passes record and cache, so the lists grow once or
-            // not at all (the reference cell records about six times its scalars).
-            let scalars = self.reg.scalar_count();
-            self.recorded.reserve(8 * scalars);
-            self.cache_keys.reserve(2 * scalars);
+            // not at all (the reference cell records about six times its scalars). Without
+            // uncertain inputs no pass follows.
+            if !self.reg.inputs.is_empty() {
+                let scalars = self.reg.scalar_count();
+                self.recorded.reserve(8 * scalars);
+                self.cache_keys.reserve(2 * scalars);
+            }
         }
         Some(pass)
     }
