@@ -1256,22 +1256,28 @@ impl CallHost for Host<'_, '_> {
         };
         let x = match self.ev.input(k, label, nominal, lo, hi) {
             Ok(x) => {
-                if self.ev.nominal() {
-                    let sid = self.ev.reg.scalar_id(&skey);
-                    if let Some(&iid) = self.ev.reg.input_index.get(&skey[SCALAR.len()..]) {
-                        if self.ev.reg.input_scalars.len() <= iid {
-                            self.ev.reg.input_scalars.resize(iid + 1, usize::MAX);
-                        }
-                        self.ev.reg.input_scalars[iid] = sid;
+                let nominal_pass = self.ev.nominal();
+                let reg = &mut *self.ev.reg;
+                // Registered by the nominal pass; a later pass records only what it registered.
+                let scalar = if nominal_pass {
+                    Some(reg.scalar_id(&skey))
+                } else {
+                    reg.find_scalar(&skey)
+                };
+                let input = reg.input_index.get(&skey[SCALAR.len()..]).copied();
+                if let (true, Some(iid), Some(sid)) = (nominal_pass, input, scalar) {
+                    if reg.input_scalars.len() <= iid {
+                        reg.input_scalars.resize(iid + 1, usize::MAX);
                     }
+                    reg.input_scalars[iid] = sid;
                 }
-                self.ev.record(&skey, Num::new(x, dim));
-                let reg = &mut self.ev.reg;
-                if let (Some(&input), Some(scalar)) = (
-                    reg.input_index.get(&skey[SCALAR.len()..]),
-                    reg.scalar_index.get(skey.as_str()).copied(),
-                ) {
-                    reg.call_sites[self.site].parts.push((key, input, scalar));
+                if let Some(sid) = scalar {
+                    self.ev.pass.set_scalar(sid, Num::new(x, dim));
+                }
+                if let (Some(iid), Some(sid)) = (input, scalar) {
+                    self.ev.reg.call_sites[self.site]
+                        .parts
+                        .push((key, iid, sid));
                 }
                 x
             }
@@ -1290,7 +1296,8 @@ impl CallHost for Host<'_, '_> {
             }
         }
         fill(&mut self.buf, &["probe:", &self.call_key, ":", key]);
-        if nominal {
+        // Registered by the nominal pass; a later pass records only what it registered.
+        let scalar = if nominal {
             let scalar = self.ev.reg.scalar_id(&self.buf);
             if !self
                 .ev
@@ -1306,11 +1313,15 @@ impl CallHost for Host<'_, '_> {
                     rule,
                 });
             }
-        }
-        self.ev.record(&self.buf, value);
-        if let Some(id) = self.ev.reg.find_scalar(&self.buf) {
-            self.ev.reg.call_sites[self.site].probes.push((key, id));
-        }
+            scalar
+        } else {
+            match self.ev.reg.find_scalar(&self.buf) {
+                Some(scalar) => scalar,
+                None => return,
+            }
+        };
+        self.ev.pass.set_scalar(scalar, value);
+        self.ev.reg.call_sites[self.site].probes.push((key, scalar));
     }
     fn arg_range(&self, param: usize) -> Option<Interval> {
         // Arguments that no tolerance, range or part can reach have point ranges in every
