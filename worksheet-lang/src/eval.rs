@@ -1182,11 +1182,6 @@ struct Host<'e, 'a> {
     buf: String,
 }
 
-/// Two keys of a built-in: the same literal is usually one address, so compare that first.
-fn same_key(a: &str, b: &str) -> bool {
-    std::ptr::eq(a, b) || a == b
-}
-
 /// `parts`, joined into `buf`.
 fn fill(buf: &mut String, parts: &[&str]) {
     buf.clear();
@@ -1206,7 +1201,7 @@ impl CallHost for Host<'_, '_> {
         pick: &mut dyn FnMut() -> Result<f64, CallError>,
     ) -> Result<f64, CallError> {
         let site = &mut self.ev.reg.call_sites[self.site];
-        if let Some(&(_, v)) = site.choices.iter().find(|(k, _)| same_key(k, key)) {
+        if let Some(&(_, v)) = site.choices.iter().find(|(k, _)| *k == key) {
             return Ok(v);
         }
         fill(&mut self.buf, &[&self.call_key, ":", key]);
@@ -1237,7 +1232,7 @@ impl CallHost for Host<'_, '_> {
     ) -> Dual {
         if !self.ev.nominal() {
             let site = &self.ev.reg.call_sites[self.site];
-            if let Some(&(_, input, scalar)) = site.parts.iter().find(|(k, ..)| same_key(k, key)) {
+            if let Some(&(_, input, scalar)) = site.parts.iter().find(|(k, ..)| *k == key) {
                 let x = self.ev.input_value(input);
                 self.ev.pass.set_scalar(scalar, Num::new(x, dim));
                 return x;
@@ -1290,7 +1285,7 @@ impl CallHost for Host<'_, '_> {
         let nominal = self.ev.nominal();
         if !nominal {
             let site = &self.ev.reg.call_sites[self.site];
-            if let Some(&(_, id)) = site.probes.iter().find(|(k, _)| same_key(k, key)) {
+            if let Some(&(_, id)) = site.probes.iter().find(|(k, _)| *k == key) {
                 self.ev.pass.set_scalar(id, value);
                 return;
             }
