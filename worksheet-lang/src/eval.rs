@@ -40,7 +40,7 @@ pub struct EvalErrorData {
     pub hint: Option<String>,
     /// For an error that a failed definition caused (`DependencyFailed`): that failure, so
     /// the definitions further down name it rather than the whole chain.
-    pub cause: Option<Box<Failed>>,
+    pub cause: Option<Failed>,
 }
 
 /// Why a definition has no value, as the statements that read it report it.
@@ -587,7 +587,7 @@ impl<'a> Evaluator<'a> {
                     )
                 };
                 let mut e = EvalError::new(DiagKind::DependencyFailed, span, message);
-                e.cause = Some(Box::new(failed));
+                e.cause = Some(failed);
                 return Err(e);
             }
             None => {}

@@ -1590,7 +1590,7 @@ impl Runner<'_> {
                         e.span = def.value_span.clone();
                     }
                     // Dependents name the definition whose own evaluation failed.
-                    let failed = match e.cause.as_deref() {
+                    let failed = match &e.cause {
                         Some(root) if e.kind == DiagKind::DependencyFailed => root.clone(),
                         _ => Failed {
                             root: def.name.clone(),
