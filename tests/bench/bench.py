@@ -44,6 +44,8 @@ SWEEP_POINTS = 1_000_000
 ROUND_TRIP_BLOCK = 10
 SWEEP_BUDGET_S = 120.0
 SWEEP_RANGE = "7 V .. 16 V"
+# One-line cells each kernel runs to warm up before the round trips are timed.
+TRIVIAL_WARMUP = 5
 
 # Client sockets reconnect every millisecond, so the start-up figure measures the kernel and
 # not the client's retry timer (libzmq's default reconnect interval is 100 ms).
@@ -248,7 +250,7 @@ def round_trips(workdir, reps):
             k.wait_iopub()
             if name == PYTHON_KERNEL:
                 k.execute(setup_py, "setup")
-            for _ in range(5):
+            for _ in range(TRIVIAL_WARMUP):
                 k.execute("1 + 1", "trivial")
             for _ in range(3):
                 k.execute(cells[name], "reference")
@@ -481,6 +483,10 @@ def main():
         shutil.rmtree(workdir, ignore_errors=True)
     log("== 3: reference cell, compute in-process (for comparison)")
     hr_inproc = figures_bin(figures, "execute", CELLS / "reference.hrw", reps["compute"])
+    # The kernel's worksheet then holds the one-line cells of figure 2 (warm-up included),
+    # sent without cell ids: the same, in-process.
+    beside = TRIVIAL_WARMUP + reps["trivial"]
+    hr_beside = figures_bin(figures, "beside", beside, CELLS / "reference.hrw", reps["compute"])
     log("== 4: sweeps")
     nominal_ns, nominal_points, nominal_note = headroom_sweep(figures, "chain", 10_000)
     bands_ns, bands_points, bands_note = headroom_sweep(figures, "chain-bands", 1_000)
@@ -532,7 +538,9 @@ def main():
         "stays outside, as the compiling of the Python cell does), sent in the execute_reply's metadata "
         "(`headroom.evaluation_seconds`). For comparison, the same evaluation in-process in a "
         "tight loop (the `figures` bench binary, worksheet-lang/benches/figures.rs, with the "
-        f"kernel's allocator): {fmt(hr_inproc['median_ns'] / 1e9, 's')}.",
+        f"kernel's allocator): {fmt(hr_inproc['median_ns'] / 1e9, 's')} on a fresh worksheet, "
+        f"{fmt(hr_beside['median_ns'] / 1e9, 's')} in one that holds {beside} one-line cells "
+        "as the kernel's does by then (figure 2's, sent without cell ids).",
         f"² tests/bench/cells/chain.hrw with `sweep vin over {SWEEP_RANGE} steps N: y10`, whole "
         "cell time ÷ N, in-process. pint + NumPy: tests/bench/python/sweep_chain.py, the chain "
         "on arrays. Rust loop: worksheet-lang/benches/shared/chain.rs. "

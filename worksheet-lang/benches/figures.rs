@@ -5,6 +5,10 @@
 //!   fresh worksheet, REPS times, in a tight loop, timed as the kernel times it (from the
 //!   parsed cell to its report): the sweeps' figures, and the reference cell's in-process
 //!   time beside the kernel's own evaluation timer;
+//! - `figures beside CELLS FILE REPS`: the same, but the worksheet in FILE is one cell of a
+//!   worksheet that already holds CELLS one-line cells (`1 + 1`) sent without a cell id, as
+//!   the kernel holds them when `tests/bench/run` times the reference cell (after the
+//!   trivial round trips); each run replaces the cell, recognised by the names it defines;
 //! - `figures loop POINTS REPS`: the hand-written Rust loop of the sweep chain over POINTS points.
 //!
 //! Each prints one JSON line: `{"median_ns": …, "min_ns": …, "reps": …}`. Run by `cargo bench`
@@ -28,21 +32,26 @@ fn main() -> ExitCode {
         .skip(1)
         .filter(|a| a != "--bench")
         .collect();
-    let parsed = match args.as_slice() {
-        [] => return ExitCode::SUCCESS,
-        [what, arg, reps] => reps
-            .parse::<usize>()
-            .ok()
-            .map(|r| (what.as_str(), arg, r.max(1))),
-        _ => None,
+    let count = |text: &str, what: &str| {
+        text.parse::<usize>()
+            .map_err(|_| format!("{what} must be a whole number, not `{text}`"))
     };
-    let result = match parsed {
-        Some(("execute", file, reps)) => execute(file, reps),
-        Some(("loop", points, reps)) => match points.parse::<usize>() {
-            Ok(n) if n >= 2 => Ok(rust_loop(n, reps)),
+    let result = match args.as_slice() {
+        [] => return ExitCode::SUCCESS,
+        [what, file, reps] if what == "execute" => {
+            count(reps, "REPS").and_then(|r| execute(file, r.max(1), 0))
+        }
+        [what, cells, file, reps] if what == "beside" => count(cells, "CELLS")
+            .and_then(|c| count(reps, "REPS").and_then(|r| execute(file, r.max(1), c))),
+        [what, points, reps] if what == "loop" => match count(points, "POINTS") {
+            Ok(n) if n >= 2 => count(reps, "REPS").map(|r| rust_loop(n, r.max(1))),
             _ => Err(format!("POINTS must be a whole number ≥ 2, not `{points}`")),
         },
-        _ => Err("usage: figures execute FILE REPS | figures loop POINTS REPS".to_string()),
+        _ => Err(
+            "usage: figures execute FILE REPS | figures beside CELLS FILE REPS | \
+             figures loop POINTS REPS"
+                .to_string(),
+        ),
     };
     match result {
         Ok(times) => {
@@ -56,15 +65,25 @@ fn main() -> ExitCode {
     }
 }
 
-fn execute(file: &str, reps: usize) -> Result<Vec<u128>, String> {
+/// `beside`: how many one-line cells the worksheet holds besides FILE's (0: a fresh
+/// worksheet for each run, with FILE's cell under a fixed id).
+fn execute(file: &str, reps: usize, beside: usize) -> Result<Vec<u128>, String> {
     let source = std::fs::read_to_string(file).map_err(|e| format!("cannot read {file}: {e}"))?;
     let mut times = Vec::with_capacity(reps);
+    let mut kept = Worksheet::new();
+    for _ in 0..beside {
+        kept.execute(None, "1 + 1", &Interrupt::new());
+    }
     for _ in 0..reps {
-        let mut sheet = Worksheet::new();
+        let mut fresh = Worksheet::new();
+        let (sheet, cell) = match beside {
+            0 => (&mut fresh, Some("bench")),
+            _ => (&mut kept, None),
+        };
         // Timed as the kernel times evaluation: from the parsed cell to its report.
         let prepared = Prepared::new(black_box(&source));
         let start = Instant::now();
-        let execution = sheet.execute_prepared(Some("bench"), prepared, &Interrupt::new());
+        let execution = sheet.execute_prepared(cell, prepared, &Interrupt::new());
         times.push(start.elapsed().as_nanos());
         let report = &execution.report;
         if report.has_errors() {

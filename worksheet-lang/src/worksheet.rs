@@ -66,8 +66,8 @@ pub struct CellUpdate {
 #[derive(Debug, Clone)]
 pub(crate) struct Cell {
     pub key: String,
-    /// Shared: each run works on a copy of the worksheet's cells (kept as they were if it
-    /// fails), and copying a cell must not copy its text and syntax tree.
+    /// Shared: forgetting cells copies the others into a new list (kept as it was if that
+    /// is interrupted), which must not copy their texts and syntax trees.
     pub source: Arc<str>,
     pub program: Arc<Program>,
     /// When it was last run (a counter), to settle a name defined in two cells.
@@ -212,6 +212,42 @@ struct Override {
     expr: Expr,
 }
 
+/// A cell put in place for a run, and what undoes that: dropped without `keep` (the run
+/// failed, was interrupted, or the evaluator panicked and the kernel carries on), it puts
+/// the worksheet's cells back as they were.
+struct Swap<'a> {
+    cells: &'a mut Vec<Cell>,
+    run: usize,
+    undo: Undo,
+}
+
+enum Undo {
+    /// Put back the cell that was replaced.
+    Put(Cell),
+    /// Remove the cell that was added (the last one).
+    Pop,
+    /// The run went through.
+    Nothing,
+}
+
+impl Swap<'_> {
+    fn keep(mut self) {
+        self.undo = Undo::Nothing;
+    }
+}
+
+impl Drop for Swap<'_> {
+    fn drop(&mut self) {
+        match std::mem::replace(&mut self.undo, Undo::Nothing) {
+            Undo::Put(old) => self.cells[self.run] = old,
+            Undo::Pop => {
+                self.cells.pop();
+            }
+            Undo::Nothing => {}
+        }
+    }
+}
+
 impl Worksheet {
     pub fn new() -> Self {
         Self::default()
@@ -265,7 +301,6 @@ impl Worksheet {
             None => self.key_by_names(&program),
         };
         self.runs += 1;
-        let mut cells = self.cells.clone();
         let mut changed = defined_names(&program);
         let new_cell = Cell::with_facts(
             key.clone(),
@@ -274,29 +309,39 @@ impl Worksheet {
             text,
             self.runs,
         );
-        let run = match cells.iter().position(|c| c.key == key) {
+        // The new cell takes its place among the worksheet's cells (no copy of the others);
+        // `undo` puts back what was there unless the run goes through.
+        let (run, undo) = match self.cells.iter().position(|c| c.key == key) {
             Some(i) => {
-                changed.extend(defined_names(&cells[i].program));
-                cells[i] = new_cell;
-                i
+                changed.extend(defined_names(&self.cells[i].program));
+                (
+                    i,
+                    Undo::Put(std::mem::replace(&mut self.cells[i], new_cell)),
+                )
             }
             None => {
-                cells.push(new_cell);
-                cells.len() - 1
+                self.cells.push(new_cell);
+                (self.cells.len() - 1, Undo::Pop)
             }
+        };
+        let swap = Swap {
+            cells: &mut self.cells,
+            run,
+            undo,
         };
         // Only the cells this run can change are evaluated, when the others' reports are
         // those of the same options (`stale`). With values set from outside, every cell is:
         // the first cell reports an override that names no given, whichever cell defines it.
-        let focus = (cells.len() > 1 && !self.stale && self.overrides.is_empty())
+        let focus = (swap.cells.len() > 1 && !self.stale && self.overrides.is_empty())
             .then_some(Focus { run, changed });
-        let Some(reports) = evaluate(
-            &cells,
+        let Some(mut reports) = evaluate(
+            swap.cells,
             &self.overrides,
             &self.options,
             interrupt,
             focus.as_ref(),
         ) else {
+            drop(swap);
             let mut report = self
                 .reports
                 .iter()
@@ -318,17 +363,19 @@ impl Worksheet {
                 interrupted: true,
             };
         };
-        let report = reports[run].clone().unwrap_or_default();
-        if report.has_errors() {
+        if reports[run].as_ref().is_some_and(CellReport::has_errors) {
+            drop(swap);
             return Execution {
-                report,
+                report: reports[run].take().unwrap_or_default(),
                 updated: Vec::new(),
                 interrupted: false,
             };
         }
+        swap.keep();
+        let report = reports[run].clone().unwrap_or_default();
         let old = self.reports.iter().find(|r| r.cell == key);
         let changes = changes(old, &report);
-        let updated = self.commit(cells, reports, Some(&key), &changes);
+        let updated = self.commit(reports, Some(&key), &changes);
         let mut report = report;
         report.updated_cells = updated.iter().map(|u| u.report.summary()).collect();
         Execution {
@@ -338,48 +385,59 @@ impl Worksheet {
         }
     }
 
-    /// Replaces the worksheet by a new evaluation and returns the other cells whose results
-    /// changed, each marked with `changes`.
+    /// Takes a new evaluation of the worksheet's cells as its reports and returns the other
+    /// cells whose results changed, each marked with `changes`.
     /// A report of None is a cell that was not evaluated: its report stands.
     fn commit(
         &mut self,
-        cells: Vec<Cell>,
         reports: Vec<Option<CellReport>>,
         run: Option<&str>,
         changes: &[Change],
     ) -> Vec<CellUpdate> {
-        let mut updated = Vec::new();
-        let mut before = std::mem::take(&mut self.reports);
-        let mut merged = Vec::with_capacity(cells.len());
-        for (c, r) in cells.iter().zip(reports) {
-            let old = before
+        // The reports stay in the order of their cells; only when a cell came or went
+        // are they put in that order again.
+        let aligned = self.reports.len() == self.cells.len()
+            && self
+                .reports
                 .iter()
-                .position(|o| o.cell == c.key)
-                .map(|i| std::mem::take(&mut before[i]));
-            let r = match (r, old) {
-                (Some(r), old) => {
-                    if Some(r.cell.as_str()) != run && old.as_ref() != Some(&r) {
-                        let mut report = r.clone();
-                        report.updated_by = changes.to_vec();
-                        updated.push(CellUpdate {
-                            report,
-                            changed_by: changes.to_vec(),
-                        });
-                    }
-                    r
-                }
-                (None, Some(old)) => old,
-                // Not evaluated and never reported: cannot happen (such a cell is new, and
-                // a new cell is the one run); an empty report keeps the lists aligned.
-                (None, None) => CellReport {
-                    cell: c.key.clone(),
-                    ..CellReport::default()
-                },
-            };
-            merged.push(r);
+                .zip(&self.cells)
+                .all(|(r, c)| r.cell == c.key);
+        if !aligned {
+            let mut before = std::mem::take(&mut self.reports);
+            let mut ordered = Vec::with_capacity(self.cells.len());
+            for (i, c) in self.cells.iter().enumerate() {
+                // Most stay where they were (a new cell comes last).
+                let at = match before.get(i) {
+                    Some(o) if o.cell == c.key => Some(i),
+                    _ => before.iter().position(|o| o.cell == c.key),
+                };
+                ordered.push(match at {
+                    Some(i) => std::mem::take(&mut before[i]),
+                    // Not reported yet: only the cell being run, whose report follows.
+                    None => CellReport {
+                        cell: c.key.clone(),
+                        ..CellReport::default()
+                    },
+                });
+            }
+            self.reports = ordered;
         }
-        self.cells = cells;
-        self.reports = merged;
+        let mut updated = Vec::new();
+        // A report of None: not evaluated, the old one stands.
+        for (old, r) in self.reports.iter_mut().zip(reports) {
+            let Some(r) = r else {
+                continue;
+            };
+            if Some(r.cell.as_str()) != run && *old != r {
+                let mut report = r.clone();
+                report.updated_by = changes.to_vec();
+                updated.push(CellUpdate {
+                    report,
+                    changed_by: changes.to_vec(),
+                });
+            }
+            *old = r;
+        }
         self.stale = false;
         updated
     }
@@ -398,6 +456,7 @@ impl Worksheet {
             .cloned()
             .collect();
         let reports = evaluate(&cells, &self.overrides, &self.options, interrupt, None)?;
+        self.cells = cells;
         let mut changes = Vec::new();
         for r in self
             .reports
@@ -406,17 +465,18 @@ impl Worksheet {
         {
             changes.extend(crate::worksheet::changes(Some(r), &CellReport::default()));
         }
-        Some(self.commit(cells, reports, None, &changes))
+        Some(self.commit(reports, None, &changes))
     }
 
     /// A cell without an id is the earlier cell that defined the same names, if any.
     fn key_by_names(&mut self, program: &Program) -> String {
         let names = defined_names(program);
         if !names.is_empty() {
-            if let Some(c) = self.cells.iter().find(|c| {
-                let theirs = defined_names(&c.program);
-                !theirs.is_empty() && theirs.iter().any(|n| names.contains(n))
-            }) {
+            if let Some(c) = self
+                .cells
+                .iter()
+                .find(|c| defines(&c.program).any(|n| names.iter().any(|m| m == n)))
+            {
                 return c.key.clone();
             }
         }
@@ -565,14 +625,16 @@ impl Worksheet {
 }
 
 fn defined_names(p: &Program) -> Vec<String> {
-    p.stmts
-        .iter()
-        .filter_map(|s| match &s.kind {
-            StmtKind::Given(d) | StmtKind::Define(d) => Some(d.name.name.clone()),
-            StmtKind::Function { name, .. } => Some(name.name.clone()),
-            _ => None,
-        })
-        .collect()
+    defines(p).map(str::to_string).collect()
+}
+
+/// The names a program's statements define (values and functions), in order.
+fn defines(p: &Program) -> impl Iterator<Item = &str> {
+    p.stmts.iter().filter_map(|s| match &s.kind {
+        StmtKind::Given(d) | StmtKind::Define(d) => Some(d.name.name.as_str()),
+        StmtKind::Function { name, .. } => Some(name.name.as_str()),
+        _ => None,
+    })
 }
 
 fn changes(old: Option<&CellReport>, new: &CellReport) -> Vec<Change> {
@@ -713,7 +775,14 @@ fn resolve_unit(u: &crate::ast::UnitExpr) -> Result<Unit, EvalError> {
     })
 }
 
-fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
+/// The model of the worksheet's cells. With a focus, only the cells the run can change
+/// (`cells_to_evaluate`) get their statements and diagnostics listed; every cell's
+/// definitions are listed either way, since any of them may be read.
+fn build_model<'c>(
+    cells: &'c [Cell],
+    overrides: &'c [Override],
+    focus: Option<&Focus>,
+) -> Model<'c> {
     let mut m = Model {
         defs: Vec::new(),
         index: HashMap::default(),
@@ -726,10 +795,8 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
         shows: Vec::new(),
         sweeps: Vec::new(),
         items: (0..cells.len()).map(|_| Vec::new()).collect(),
-        diags: cells
-            .iter()
-            .map(|c| c.program.diagnostics.clone())
-            .collect(),
+        // The parser's diagnostics go first, for the cells evaluated (below).
+        diags: (0..cells.len()).map(|_| Vec::new()).collect(),
     };
     // Who owns each name: within a cell the first definition (a second is an error);
     // across cells the one run last.
@@ -763,17 +830,16 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
         }
     }
     for (ci, c) in cells.iter().enumerate() {
-        let mut seen: Vec<String> = Vec::new();
+        let mut seen: Vec<&str> = Vec::new();
         for (si, s) in c.program.stmts.iter().enumerate() {
             let facts = &c.facts[si];
-            let key = facts.key.as_str();
             match &s.kind {
                 StmtKind::Given(d) | StmtKind::Define(d) => {
                     let given = matches!(s.kind, StmtKind::Given(_));
-                    if seen.contains(&d.name.name) {
+                    if seen.contains(&d.name.name.as_str()) {
                         continue;
                     }
-                    seen.push(d.name.name.clone());
+                    seen.push(&d.name.name);
                     if owner.get(&d.name.name).map(|o| o.0) != Some(ci) {
                         m.diags[ci].push(Diagnostic::warning(
                             DiagKind::Redefinition,
@@ -830,7 +896,6 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
                         certain: false,
                     });
                     m.index.insert(d.name.name.clone(), idx);
-                    m.items[ci].push(Item::Def(idx));
                 }
                 StmtKind::Function {
                     name,
@@ -860,49 +925,7 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
                         },
                     );
                 }
-                StmtKind::Check { lhs, op, rhs, note } => {
-                    if c.facts[si].parse_failed {
-                        continue;
-                    }
-                    m.items[ci].push(Item::Check(m.checks.len()));
-                    m.checks.push(CheckEntry {
-                        cell: ci,
-                        reads: &facts.reads,
-                        side_keys: facts.side_keys.as_ref().unwrap_or(&NO_SIDES),
-                        key,
-                        lhs,
-                        op: *op,
-                        rhs,
-                        note: note.as_ref().map(|n| n.text.clone()).unwrap_or_default(),
-                        text: source_text(&c.source, lhs.span.start..rhs.span.end),
-                        span: s.span.clone(),
-                    });
-                }
-                StmtKind::Show { expr, as_unit } => {
-                    if c.facts[si].parse_failed {
-                        continue;
-                    }
-                    let (unit, unit_error) = match as_unit.as_ref().map(resolve_unit) {
-                        Some(Ok(u)) => (Some(u), None),
-                        Some(Err(e)) => (None, Some(e)),
-                        None => (None, None),
-                    };
-                    m.items[ci].push(Item::Show(m.shows.len()));
-                    m.shows.push(ShowEntry {
-                        cell: ci,
-                        reads: &facts.reads,
-                        key,
-                        expr,
-                        unit,
-                        unit_error,
-                        text: source_text(&c.source, s.span.clone()),
-                    });
-                }
-                StmtKind::Sweep { .. } => {
-                    m.items[ci].push(Item::Sweep(m.sweeps.len()));
-                    m.sweeps.push(SweepEntry { cell: ci, stmt: s });
-                }
-                StmtKind::Error => {}
+                _ => {}
             }
         }
     }
@@ -950,6 +973,79 @@ fn build_model<'c>(cells: &'c [Cell], overrides: &'c [Override]) -> Model<'c> {
         }
     }
     order_definitions(&mut m);
+    let live = focus.and_then(|f| cells_to_evaluate(&m, cells, f.run, f.changed.as_slice()));
+    for (ci, c) in cells.iter().enumerate() {
+        if live.as_ref().is_some_and(|l| !l[ci]) {
+            continue;
+        }
+        let mut diags = c.program.diagnostics.clone();
+        diags.append(&mut m.diags[ci]);
+        m.diags[ci] = diags;
+        let mut seen: Vec<&str> = Vec::new();
+        for (si, s) in c.program.stmts.iter().enumerate() {
+            let facts = &c.facts[si];
+            let key = facts.key.as_str();
+            match &s.kind {
+                StmtKind::Given(d) | StmtKind::Define(d) => {
+                    // The cell's first definition of a name, if the cell owns that name.
+                    let name = d.name.name.as_str();
+                    if seen.contains(&name) {
+                        continue;
+                    }
+                    seen.push(name);
+                    if let Some(&idx) = m.index.get(name).filter(|&&i| m.defs[i].cell == ci) {
+                        m.items[ci].push(Item::Def(idx));
+                    }
+                }
+                StmtKind::Check { lhs, op, rhs, note } => {
+                    if c.facts[si].parse_failed {
+                        continue;
+                    }
+                    m.items[ci].push(Item::Check(m.checks.len()));
+                    m.checks.push(CheckEntry {
+                        cell: ci,
+                        reads: &facts.reads,
+                        side_keys: facts.side_keys.as_ref().unwrap_or(&NO_SIDES),
+                        key,
+                        lhs,
+                        op: *op,
+                        rhs,
+                        note: note.as_ref().map(|n| n.text.clone()).unwrap_or_default(),
+                        text: source_text(&c.source, lhs.span.start..rhs.span.end),
+                        span: s.span.clone(),
+                    });
+                }
+                StmtKind::Show { expr, as_unit } => {
+                    if c.facts[si].parse_failed {
+                        continue;
+                    }
+                    let (unit, unit_error) = match as_unit.as_ref().map(resolve_unit) {
+                        Some(Ok(u)) => (Some(u), None),
+                        Some(Err(e)) => (None, Some(e)),
+                        None => (None, None),
+                    };
+                    m.items[ci].push(Item::Show(m.shows.len()));
+                    m.shows.push(ShowEntry {
+                        cell: ci,
+                        reads: &facts.reads,
+                        key,
+                        expr,
+                        unit,
+                        unit_error,
+                        text: source_text(&c.source, s.span.clone()),
+                    });
+                }
+                StmtKind::Sweep { .. } => {
+                    m.items[ci].push(Item::Sweep(m.sweeps.len()));
+                    m.sweeps.push(SweepEntry { cell: ci, stmt: s });
+                }
+                StmtKind::Function { .. } | StmtKind::Error => {}
+            }
+        }
+    }
+    if let Some(live) = live {
+        restrict(&mut m, live);
+    }
     m
 }
 
@@ -1155,7 +1251,13 @@ fn cells_to_evaluate(
         }
         live[ci] = dirty;
     }
-    if model.sweeps.iter().any(|s| live[s.cell]) {
+    let sweeps = |c: &Cell| {
+        c.program
+            .stmts
+            .iter()
+            .any(|s| matches!(s.kind, StmtKind::Sweep { .. }))
+    };
+    if cells.iter().zip(&live).any(|(c, &l)| l && sweeps(c)) {
         return None;
     }
     Some(live)
@@ -2074,11 +2176,7 @@ fn evaluate(
     interrupt: &Interrupt,
     focus: Option<&Focus>,
 ) -> Option<Vec<Option<CellReport>>> {
-    let mut model = build_model(cells, overrides);
-    if let Some(live) = focus.and_then(|f| cells_to_evaluate(&model, cells, f.run, &f.changed)) {
-        restrict(&mut model, live);
-    }
-    let model = model;
+    let model = build_model(cells, overrides, focus);
     let live = |ci: usize| model.live.as_ref().is_none_or(|l| l[ci]);
     // Choices that depend on their arguments' worst-case ranges (`res.led(rule: "worst")`)
     // take them from a box pass of an earlier round; repeat while they change.
@@ -2119,24 +2217,23 @@ fn evaluate(
         bounds,
         passes,
     };
-    let mut reports: Vec<CellReport> = cells
+    // None for the cells not evaluated (their reports stand).
+    let mut reports: Vec<Option<CellReport>> = cells
         .iter()
         .enumerate()
-        .map(|(ci, c)| match live(ci) {
-            true => CellReport {
+        .map(|(ci, c)| {
+            live(ci).then(|| CellReport {
                 cell: c.key.clone(),
                 source: c.source.to_string(),
                 diagnostics: model.diags[ci].clone(),
                 ..CellReport::default()
-            },
-            // Not evaluated: whatever lands here is dropped.
-            false => CellReport::default(),
+            })
         })
         .collect();
     for (ci, report) in reports.iter_mut().enumerate() {
-        if !live(ci) {
+        let Some(report) = report else {
             continue;
-        }
+        };
         for item in &model.items[ci] {
             match item {
                 Item::Def(d) => {
@@ -2224,7 +2321,8 @@ fn evaluate(
     let probes = std::mem::take(&mut an.passes.eval.reg.probes);
     let mut fired: Vec<(usize, String, f64, WarningRow)> = Vec::new();
     for p in &probes {
-        let Some(ci) = cell_of_stmt(&model, cells, &p.stmt) else {
+        let Some(ci) = cell_of_stmt(&model, cells, &p.stmt).filter(|&ci| reports[ci].is_some())
+        else {
             continue;
         };
         let Some((nom, b)) = an.scalar_by_id(p.scalar) else {
@@ -2291,12 +2389,15 @@ fn evaluate(
             }
         }
     }
+    // What lands in a cell not evaluated is dropped.
     for (ci, _, _, row) in fired {
-        reports[ci].warnings.push(row);
+        if let Some(r) = &mut reports[ci] {
+            r.warnings.push(row);
+        }
     }
     for (label, key, text) in &an.passes.eval.reg.warnings {
-        if let Some(ci) = cell_of_stmt(&model, cells, key) {
-            reports[ci].warnings.push(WarningRow {
+        if let Some(r) = cell_of_stmt(&model, cells, key).and_then(|ci| reports[ci].as_mut()) {
+            r.warnings.push(WarningRow {
                 source: label.clone(),
                 text: text.clone(),
             });
@@ -2304,17 +2405,13 @@ fn evaluate(
     }
     let notes = std::mem::take(&mut an.passes.eval.notes);
     for (ci, n) in notes {
-        if !reports[ci].diagnostics.contains(&n) {
-            reports[ci].diagnostics.push(n);
+        if let Some(r) = &mut reports[ci] {
+            if !r.diagnostics.contains(&n) {
+                r.diagnostics.push(n);
+            }
         }
     }
-    Some(
-        reports
-            .into_iter()
-            .enumerate()
-            .map(|(ci, r)| live(ci).then_some(r))
-            .collect(),
-    )
+    Some(reports)
 }
 
 fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
@@ -2607,7 +2704,7 @@ mod tests {
         let updated: Vec<&str> = ex.updated.iter().map(|u| u.report.cell.as_str()).collect();
         assert_eq!(updated, ["loss"]);
         // Which cells the run evaluated: the one run and the one that reads what it defines.
-        let model = build_model(&ws.cells, &[]);
+        let model = build_model(&ws.cells, &[], None);
         let live = cells_to_evaluate(&model, &ws.cells, 1, &["iload".to_string()]);
         assert_eq!(live, Some(vec![false, true, true, false]));
         // A cell that reads nothing: only itself.

@@ -226,6 +226,61 @@ fn a_failed_run_leaves_the_worksheet_as_it_was() {
     assert!(ex.updated.is_empty());
     let b = ws.reports().iter().find(|r| r.cell == "b").expect("b");
     assert!(close(si(b, "y"), 4.0));
+    // The cell that failed is not kept: later cells read the old `x`.
+    let c = ws.execute(Some("c"), "z = x * 3\n", &i);
+    assert!(close(si(&c.report, "z"), 6.0), "{:?}", c.report.diagnostics);
+    // Nor is a new cell that fails.
+    let d = ws.execute(Some("d"), "w = x * nope\n", &i);
+    assert!(d.report.has_errors());
+    let cells: Vec<&str> = ws.reports().iter().map(|r| r.cell.as_str()).collect();
+    assert_eq!(cells, ["a", "b", "c"]);
+    let w = ws.execute(Some("e"), "w = x + 1 V\n", &i);
+    assert!(close(si(&w.report, "w"), 3.0), "{:?}", w.report.diagnostics);
+}
+
+#[test]
+fn rerunning_one_cell_among_many_keeps_every_other_report() {
+    let mut ws = Worksheet::new();
+    let i = Interrupt::new();
+    // Many cells without ids (as a console sends them), around a named pair.
+    for k in 0..120 {
+        ws.execute(None, &format!("{k} V + 1 V\n"), &i);
+        if k == 40 {
+            ws.execute(Some("src"), "given v = 2 V\n", &i);
+            ws.execute(Some("use"), "p = v * 0.5 A\n", &i);
+        }
+    }
+    assert_eq!(ws.reports().len(), 122);
+    let ex = ws.execute(Some("src"), "given v = 4 V\n", &i);
+    let updated: Vec<&str> = ex.updated.iter().map(|u| u.report.cell.as_str()).collect();
+    assert_eq!(updated, ["use"]);
+    assert!(close(si(&ex.updated[0].report, "p"), 2.0));
+    // Every report is still there, in the order of the cells, with its own value.
+    let reports = ws.reports();
+    assert_eq!(reports.len(), 122);
+    assert_eq!(reports[41].cell, "src");
+    assert_eq!(reports[42].cell, "use");
+    for (k, r) in reports
+        .iter()
+        .filter(|r| r.cell.starts_with("cell-"))
+        .enumerate()
+    {
+        assert_eq!(r.shown.len(), 1, "{}", r.cell);
+        assert!(
+            close(si(r, &format!("{k} V + 1 V")), k as f64 + 1.0),
+            "{}",
+            r.cell
+        );
+    }
+    // A cell deleted in the middle: the others keep their places and values.
+    ws.forget(&["cell-7"], &i).expect("not interrupted");
+    let ex = ws.execute(Some("src"), "given v = 6 V\n", &i);
+    assert!(close(si(&ex.updated[0].report, "p"), 3.0));
+    let reports = ws.reports();
+    assert_eq!(reports.len(), 121);
+    assert!(reports.iter().all(|r| r.cell != "cell-7"));
+    let last = reports.last().expect("reports");
+    assert!(close(si(last, "119 V + 1 V"), 120.0));
 }
 
 #[test]
