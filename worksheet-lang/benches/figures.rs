@@ -6,9 +6,9 @@
 //!   parsed cell to its report): the sweeps' figures, and the reference cell's in-process
 //!   time beside the kernel's own evaluation timer;
 //! - `figures beside CELLS FILE REPS`: the same, but the worksheet in FILE is one cell of a
-//!   worksheet that already holds CELLS one-line cells (`1 + 1`) sent without a cell id, as
-//!   the kernel holds them when `tests/bench/run` times the reference cell (after the
-//!   trivial round trips); each run replaces the cell, recognised by the names it defines;
+//!   large worksheet, which already holds CELLS one-line cells (`1 + 1`, each sent without a
+//!   cell id, as a console sends them); each run replaces the cell, recognised by the names
+//!   it defines. What a run costs for the cells it does not change;
 //! - `figures loop POINTS REPS`: the hand-written Rust loop of the sweep chain over POINTS points.
 //!
 //! Each prints one JSON line: `{"median_ns": …, "min_ns": …, "reps": …}`. Run by `cargo bench`
