@@ -86,6 +86,17 @@ impl<'e, E: Evaluate> Passes<'e, E> {
 
     /// The value of scalar `s` under `a`, with the derivative of input `seed` carried.
     pub fn at_seeded(&mut self, a: &[Interval], seed: Option<usize>, s: usize) -> Option<Num> {
+        let i = self.pass_at(a, seed)?;
+        self.memo[i].2.scalars.get(s).copied().flatten()
+    }
+
+    /// Scalar `s` of the memoised pass `i` (from `pass_at`).
+    fn scalar_of(&self, i: usize, s: usize) -> Option<Num> {
+        self.memo[i].2.scalars.get(s).copied().flatten()
+    }
+
+    /// The memoised pass under `a` (run if new), by its index; None when interrupted.
+    fn pass_at(&mut self, a: &[Interval], seed: Option<usize>) -> Option<usize> {
         let same = |x: &Interval, y: &Interval| {
             x.lo.to_bits() == y.lo.to_bits() && x.hi.to_bits() == y.hi.to_bits()
         };
@@ -100,8 +111,8 @@ impl<'e, E: Evaluate> Passes<'e, E> {
             self.key.push(seed.map_or(u64::MAX, |x| x as u64));
             self.index.get(&self.key).copied()
         };
-        if let Some(i) = found {
-            return self.memo[i].2.scalars.get(s).copied().flatten();
+        if found.is_some() {
+            return found;
         }
         if self.interrupted {
             return None;
@@ -114,7 +125,6 @@ impl<'e, E: Evaluate> Passes<'e, E> {
             self.interrupted = true;
             return None;
         };
-        let value = p.scalars.get(s).copied().flatten();
         self.memo.push((a.to_vec(), seed, p));
         if self.memo.len() >= SCAN_LIMIT {
             // Index every pass once the memo is long enough to be hashed.
@@ -128,7 +138,7 @@ impl<'e, E: Evaluate> Passes<'e, E> {
                 self.index.insert(key, i);
             }
         }
-        value
+        Some(self.memo.len() - 1)
     }
 
     pub fn box_pass(&mut self, seed: Option<usize>) -> Option<Pass> {
@@ -186,6 +196,9 @@ pub fn analyse<E: Evaluate>(
     let mut signs: Vec<Sign> = Vec::with_capacity(n);
     let mut unknown: Vec<usize> = Vec::with_capacity(n);
     let mut one_at_a_time = nominal_point.clone();
+    // The passes with one input at an end and the others nominal, the same for every
+    // scalar: found once per input (memo indices, low end and high end).
+    let mut ends: Vec<Option<(usize, usize)>> = vec![None; n];
     for s in 0..m {
         let Some(nom) = nominal.scalars[s] else {
             continue;
@@ -254,15 +267,24 @@ pub fn analyse<E: Evaluate>(
         };
         let mut half_swings = Inputs::with_capacity(depends.len());
         for &k in &depends {
-            let a = &mut one_at_a_time;
-            a[k] = Interval::point(inputs[k].lo);
-            let f_lo = passes.at(a, s).map(|x| x.x.value());
-            a[k] = Interval::point(inputs[k].hi);
-            let f_hi = passes.at(a, s).map(|x| x.x.value());
-            a[k] = nominal_point[k];
-            if passes.interrupted {
-                return None;
-            }
+            let (lo, hi) = match ends[k] {
+                Some(found) => found,
+                None => {
+                    let a = &mut one_at_a_time;
+                    a[k] = Interval::point(inputs[k].lo);
+                    let lo = passes.pass_at(a, None);
+                    a[k] = Interval::point(inputs[k].hi);
+                    let hi = passes.pass_at(a, None);
+                    a[k] = nominal_point[k];
+                    let (Some(lo), Some(hi)) = (lo, hi) else {
+                        return None;
+                    };
+                    ends[k] = Some((lo, hi));
+                    (lo, hi)
+                }
+            };
+            let f_lo = passes.scalar_of(lo, s).map(|x| x.x.value());
+            let f_hi = passes.scalar_of(hi, s).map(|x| x.x.value());
             half_swings.push(match (f_lo, f_hi) {
                 (Some(a), Some(b)) => (0.5 * b - 0.5 * a).abs(),
                 _ => 0.0,

@@ -218,7 +218,8 @@ pub struct Pass {
     pub mode: Mode,
     /// Scalar values by scalar id (None where not reached).
     pub scalars: Vec<Option<Num>>,
-    /// The scalar ids in the order they were set (to see what one statement recorded).
+    /// The scalar ids in the order they were set (to see what one statement recorded),
+    /// while the pass runs.
     pub touched: Vec<usize>,
 }
 
@@ -227,8 +228,16 @@ impl Pass {
         Pass {
             mode,
             scalars: vec![None; n_scalars],
-            touched: Vec::with_capacity(n_scalars),
+            touched: Vec::new(),
         }
+    }
+    /// Sets a scalar without noting it in `touched` (for values taken over whole from an
+    /// earlier pass, whose statement is not evaluated).
+    pub(crate) fn put_scalar(&mut self, id: usize, n: Num) {
+        if id >= self.scalars.len() {
+            self.scalars.resize(id + 1, None);
+        }
+        self.scalars[id] = Some(n);
     }
     pub(crate) fn set_scalar(&mut self, id: usize, n: Num) {
         if id >= self.scalars.len() {

@@ -1382,6 +1382,10 @@ struct Runner<'m> {
     nominal_def: Vec<Option<CachedDef>>,
     /// The scalar ids of each check's two sides and their difference, from the nominal pass.
     check_ids: Vec<Option<[usize; 3]>>,
+    /// Buffers of the last pass, reused by the next: the values of the definitions, and
+    /// the order of the scalars set (which the analysis does not keep).
+    spare_values: Vec<Option<Result<Value, Failed>>>,
+    spare_touched: Vec<usize>,
 }
 
 /// A value with every derivative set to zero: what a definition that cannot reach an input
@@ -1537,7 +1541,10 @@ impl Runner<'_> {
         let nominal = matches!(mode, Mode::Nominal);
         let model = self.model;
         let mut pass = Pass::new(mode, self.reg.scalar_count());
-        let mut values: Vec<Option<Result<Value, Failed>>> = vec![None; model.defs.len()];
+        pass.touched = std::mem::take(&mut self.spare_touched);
+        let mut values = std::mem::take(&mut self.spare_values);
+        values.clear();
+        values.resize(model.defs.len(), None);
         let seed = match pass.mode {
             Mode::Box { seed } => seed,
             _ => None,
@@ -1554,7 +1561,7 @@ impl Runner<'_> {
             {
                 if !reach[d].contains(&k) {
                     for &(id, n) in &self.recorded[recorded.clone()] {
-                        pass.set_scalar(id, flat(n));
+                        pass.put_scalar(id, flat(n));
                     }
                     values[d] = Some(Ok(without_derivative(v)));
                     self.boxed[d] += 1;
@@ -1575,7 +1582,7 @@ impl Runner<'_> {
             // depends on, its value and everything it recorded are known.
             if let Some((v, recorded)) = self.cached(d, &pass.mode) {
                 for &(id, n) in &self.recorded[recorded.clone()] {
-                    pass.set_scalar(id, n);
+                    pass.put_scalar(id, n);
                 }
                 values[d] = Some(Ok(v.clone()));
                 continue;
@@ -1824,7 +1831,11 @@ impl Runner<'_> {
                 ev.record_value(key, &v);
             }
         }
-        if nominal {
+        pass.touched.clear();
+        self.spare_touched = std::mem::take(&mut pass.touched);
+        if !nominal {
+            self.spare_values = values;
+        } else {
             self.nominal_values = values;
             // Room for what the later passes record and cache, so the lists grow once or
             // not at all (the reference cell records about six times its scalars). Without
@@ -1921,6 +1932,8 @@ impl<'m> Runner<'m> {
             boxed_value: vec![None; model.defs.len()],
             nominal_def: vec![None; model.defs.len()],
             check_ids: vec![None; model.checks.len()],
+            spare_values: Vec::new(),
+            spare_touched: Vec::new(),
         }
     }
 }
