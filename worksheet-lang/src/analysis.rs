@@ -199,6 +199,9 @@ pub fn analyse<E: Evaluate>(
     // The passes with one input at an end and the others nominal, the same for every
     // scalar: found once per input (memo indices, low end and high end).
     let mut ends: Vec<Option<(usize, usize)>> = vec![None; n];
+    // The corner passes of monotone scalars by the signs of their derivatives (memo
+    // indices of the minimum's and the maximum's corner).
+    let mut corners: Vec<(Inputs<Sign>, usize, usize)> = Vec::new();
     for s in 0..m {
         let Some(nom) = nominal.scalars[s] else {
             continue;
@@ -231,10 +234,21 @@ pub fn analyse<E: Evaluate>(
         let mut min_at: Inputs<Interval> = (0..n).map(|k| end(k, false)).collect();
         let mut max_at: Inputs<Interval> = (0..n).map(|k| end(k, true)).collect();
         let (min, max, conservative) = if unknown.is_empty() {
-            let (lo, hi) = (passes.at(&min_at, s), passes.at(&max_at, s));
-            if passes.interrupted {
-                return None;
-            }
+            // Scalars whose derivatives have the same signs share their corners.
+            let found = corners.iter().find(|(sg, _, _)| sg[..] == signs[..]);
+            let (lo, hi) = match found {
+                Some(&(_, lo, hi)) => (lo, hi),
+                None => {
+                    let (Some(lo), Some(hi)) =
+                        (passes.pass_at(&min_at, None), passes.pass_at(&max_at, None))
+                    else {
+                        return None;
+                    };
+                    corners.push((signs.iter().copied().collect(), lo, hi));
+                    (lo, hi)
+                }
+            };
+            let (lo, hi) = (passes.scalar_of(lo, s), passes.scalar_of(hi, s));
             // A value that fails at a corner has its error reported by that pass.
             let (Some(lo), Some(hi)) = (lo, hi) else {
                 continue;
