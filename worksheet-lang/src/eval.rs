@@ -240,10 +240,7 @@ impl Pass {
         self.scalars[id] = Some(n);
     }
     pub(crate) fn set_scalar(&mut self, id: usize, n: Num) {
-        if id >= self.scalars.len() {
-            self.scalars.resize(id + 1, None);
-        }
-        self.scalars[id] = Some(n);
+        self.put_scalar(id, n);
         self.touched.push(id);
     }
 }
