@@ -998,7 +998,7 @@ fn build_model<'c>(
                     }
                 }
                 StmtKind::Check { lhs, op, rhs, note } => {
-                    if c.facts[si].parse_failed {
+                    if facts.parse_failed {
                         continue;
                     }
                     m.items[ci].push(Item::Check(m.checks.len()));
@@ -1016,7 +1016,7 @@ fn build_model<'c>(
                     });
                 }
                 StmtKind::Show { expr, as_unit } => {
-                    if c.facts[si].parse_failed {
+                    if facts.parse_failed {
                         continue;
                     }
                     let (unit, unit_error) = match as_unit.as_ref().map(resolve_unit) {
@@ -1273,12 +1273,13 @@ fn restrict(model: &mut Model<'_>, live: Vec<bool>) {
             stack.push(d);
         }
     }
+    // The model lists the checks and shows of the cells in `live` only.
     let reads = model
         .checks
         .iter()
-        .map(|c| (c.cell, c.reads))
-        .chain(model.shows.iter().map(|s| (s.cell, s.reads)));
-    for (_, names) in reads.filter(|(cell, _)| live[*cell]) {
+        .map(|c| c.reads)
+        .chain(model.shows.iter().map(|s| s.reads));
+    for names in reads {
         let names = expanded(&model.funcs, names);
         stack.extend(names.iter().filter_map(|n| model.index.get(n).copied()));
     }
@@ -1715,11 +1716,8 @@ impl Runner<'_> {
             model,
             values: &values,
         };
-        let live = |cell: usize| model.live.as_ref().is_none_or(|l| l[cell]);
+        // The model lists the checks and shows of the cells evaluated only.
         for (i, c) in model.checks.iter().enumerate() {
-            if !live(c.cell) {
-                continue;
-            }
             let mut ev = Evaluator {
                 names: &scope,
                 reg: &mut self.reg,
@@ -1773,9 +1771,6 @@ impl Runner<'_> {
             }
         }
         for (i, s) in model.shows.iter().enumerate() {
-            if !live(s.cell) {
-                continue;
-            }
             if let Some(e) = &s.unit_error {
                 if nominal {
                     self.fail(StmtId::Show(i), e.clone());
