@@ -48,6 +48,8 @@ SWEEP_RANGE = "7 V .. 16 V"
 TRIVIAL_WARMUP = 5
 # Cells beside the reference cell in the in-process figure of a large worksheet.
 BESIDE_CELLS = 200
+# µs of sleep before each run in the in-process figure of an evaluation after a wait.
+PAUSE_MICROS = 1000
 
 # Client sockets reconnect every millisecond, so the start-up figure measures the kernel and
 # not the client's retry timer (libzmq's default reconnect interval is 100 ms).
@@ -489,6 +491,9 @@ def main():
     # cells it does not change.
     hr_beside = figures_bin(figures, "beside", BESIDE_CELLS, CELLS / "reference.hrw",
                             reps["compute"])
+    # And after a pause before each run, as the kernel waits between requests.
+    hr_paused = figures_bin(figures, "paused", PAUSE_MICROS, CELLS / "reference.hrw",
+                            reps["compute"])
     log("== 4: sweeps")
     nominal_ns, nominal_points, nominal_note = headroom_sweep(figures, "chain", 10_000)
     bands_ns, bands_points, bands_note = headroom_sweep(figures, "chain-bands", 1_000)
@@ -543,7 +548,8 @@ def main():
         f"kernel's allocator): {fmt(hr_inproc['median_ns'] / 1e9, 's')} on a fresh worksheet "
         "(as in the kernel, whose worksheet holds two cells: the benchmark sends cell ids), "
         f"{fmt(hr_beside['median_ns'] / 1e9, 's')} in one that also holds {BESIDE_CELLS} "
-        "one-line cells.",
+        f"one-line cells, {fmt(hr_paused['median_ns'] / 1e9, 's')} with a "
+        f"{PAUSE_MICROS // 1000} ms sleep before each run (see README, \"Speed\").",
         f"² tests/bench/cells/chain.hrw with `sweep vin over {SWEEP_RANGE} steps N: y10`, whole "
         "cell time ÷ N, in-process. pint + NumPy: tests/bench/python/sweep_chain.py, the chain "
         "on arrays. Rust loop: worksheet-lang/benches/shared/chain.rs. "

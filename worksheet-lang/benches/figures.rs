@@ -9,6 +9,9 @@
 //!   large worksheet, which already holds CELLS one-line cells (`1 + 1`, each sent without a
 //!   cell id, as a console sends them); each run replaces the cell, recognised by the names
 //!   it defines. What a run costs for the cells it does not change;
+//! - `figures paused MICROS FILE REPS`: as `execute`, but the thread sleeps MICROS µs before
+//!   each run, as the kernel waits between requests. The first evaluation after a wait finds
+//!   less of its code and data in the caches and branch predictors;
 //! - `figures loop POINTS REPS`: the hand-written Rust loop of the sweep chain over POINTS points.
 //!
 //! Each prints one JSON line: `{"median_ns": …, "min_ns": …, "reps": …}`. Run by `cargo bench`
@@ -39,17 +42,19 @@ fn main() -> ExitCode {
     let result = match args.as_slice() {
         [] => return ExitCode::SUCCESS,
         [what, file, reps] if what == "execute" => {
-            count(reps, "REPS").and_then(|r| execute(file, r.max(1), 0))
+            count(reps, "REPS").and_then(|r| execute(file, r.max(1), 0, 0))
         }
         [what, cells, file, reps] if what == "beside" => count(cells, "CELLS")
-            .and_then(|c| count(reps, "REPS").and_then(|r| execute(file, r.max(1), c))),
+            .and_then(|c| count(reps, "REPS").and_then(|r| execute(file, r.max(1), c, 0))),
+        [what, micros, file, reps] if what == "paused" => count(micros, "MICROS")
+            .and_then(|m| count(reps, "REPS").and_then(|r| execute(file, r.max(1), 0, m))),
         [what, points, reps] if what == "loop" => match count(points, "POINTS") {
             Ok(n) if n >= 2 => count(reps, "REPS").map(|r| rust_loop(n, r.max(1))),
             _ => Err(format!("POINTS must be a whole number ≥ 2, not `{points}`")),
         },
         _ => Err(
             "usage: figures execute FILE REPS | figures beside CELLS FILE REPS | \
-             figures loop POINTS REPS"
+             figures paused MICROS FILE REPS | figures loop POINTS REPS"
                 .to_string(),
         ),
     };
@@ -66,8 +71,9 @@ fn main() -> ExitCode {
 }
 
 /// `beside`: how many one-line cells the worksheet holds besides FILE's (0: a fresh
-/// worksheet for each run, with FILE's cell under a fixed id).
-fn execute(file: &str, reps: usize, beside: usize) -> Result<Vec<u128>, String> {
+/// worksheet for each run, with FILE's cell under a fixed id). `pause`: µs of sleep before
+/// each run (0: none).
+fn execute(file: &str, reps: usize, beside: usize, pause: usize) -> Result<Vec<u128>, String> {
     let source = std::fs::read_to_string(file).map_err(|e| format!("cannot read {file}: {e}"))?;
     let mut times = Vec::with_capacity(reps);
     let mut kept = Worksheet::new();
@@ -82,6 +88,9 @@ fn execute(file: &str, reps: usize, beside: usize) -> Result<Vec<u128>, String> 
         };
         // Timed as the kernel times evaluation: from the parsed cell to its report.
         let prepared = Prepared::new(black_box(&source));
+        if pause > 0 {
+            std::thread::sleep(std::time::Duration::from_micros(pause as u64));
+        }
         let start = Instant::now();
         let execution = sheet.execute_prepared(cell, prepared, &Interrupt::new());
         times.push(start.elapsed().as_nanos());
