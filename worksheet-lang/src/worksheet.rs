@@ -373,9 +373,12 @@ impl Worksheet {
         }
         swap.keep();
         let report = reports[run].clone().unwrap_or_default();
-        let old = self.reports.iter().find(|r| r.cell == key);
-        let changes = changes(old, &report);
-        let updated = self.commit(reports, Some(&key), &changes);
+        // A cell run for the first time has no old values to compare.
+        let had_report = self.reports.iter().any(|r| r.cell == key);
+        let updated = self.commit(reports, Some(&key), |before| {
+            let old = before.iter().find(|r| r.cell == key && had_report);
+            changes(old, &report)
+        });
         let mut report = report;
         report.updated_cells = updated.iter().map(|u| u.report.summary()).collect();
         Execution {
@@ -386,13 +389,14 @@ impl Worksheet {
     }
 
     /// Takes a new evaluation of the worksheet's cells as its reports and returns the other
-    /// cells whose results changed, each marked with `changes`.
+    /// cells whose results changed, each marked with what `changes` makes of the reports as
+    /// they were (called only when some other cell changed).
     /// A report of None is a cell that was not evaluated: its report stands.
     fn commit(
         &mut self,
         reports: Vec<Option<CellReport>>,
         run: Option<&str>,
-        changes: &[Change],
+        changes: impl FnOnce(&[CellReport]) -> Vec<Change>,
     ) -> Vec<CellUpdate> {
         // The reports stay in the order of their cells; only when a cell came or went
         // are they put in that order again.
@@ -422,18 +426,33 @@ impl Worksheet {
             }
             self.reports = ordered;
         }
+        // The other cells whose results changed.
+        let changed: Vec<bool> = self
+            .reports
+            .iter()
+            .zip(&reports)
+            .map(|(old, r)| {
+                r.as_ref()
+                    .is_some_and(|r| Some(r.cell.as_str()) != run && old != r)
+            })
+            .collect();
+        let changes = if changed.contains(&true) {
+            changes(&self.reports)
+        } else {
+            Vec::new()
+        };
         let mut updated = Vec::new();
         // A report of None: not evaluated, the old one stands.
-        for (old, r) in self.reports.iter_mut().zip(reports) {
+        for ((old, r), changed) in self.reports.iter_mut().zip(reports).zip(changed) {
             let Some(r) = r else {
                 continue;
             };
-            if Some(r.cell.as_str()) != run && *old != r {
+            if changed {
                 let mut report = r.clone();
-                report.updated_by = changes.to_vec();
+                report.updated_by = changes.clone();
                 updated.push(CellUpdate {
                     report,
-                    changed_by: changes.to_vec(),
+                    changed_by: changes.clone(),
                 });
             }
             *old = r;
@@ -465,7 +484,7 @@ impl Worksheet {
         {
             changes.extend(crate::worksheet::changes(Some(r), &CellReport::default()));
         }
-        Some(self.commit(reports, None, &changes))
+        Some(self.commit(reports, None, |_| changes))
     }
 
     /// A cell without an id is the earlier cell that defined the same names, if any.

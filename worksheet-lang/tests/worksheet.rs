@@ -605,6 +605,36 @@ fn updates_say_what_changed_them_and_forgotten_cells_take_their_names() {
 }
 
 #[test]
+fn a_cell_run_for_the_first_time_updates_its_readers_without_a_list_of_changes() {
+    let mut ws = Worksheet::new();
+    let i = Interrupt::new();
+    ws.execute(Some("c"), "given x = 1 V\n", &i);
+    ws.execute(Some("b"), "y = x * 2\n", &i);
+    // A new cell takes `x` over: `b` follows, and `c` says its `x` is not used. The new cell
+    // has no values of its own to compare with, so the updates carry no list of changes
+    // (rather than every value of the new cell marked new).
+    let ex = ws.execute(Some("a"), "given x = 2 V\nz = 3 V\n", &i);
+    assert_eq!(ex.report.updated_cells, ["c", "y"]);
+    for u in &ex.updated {
+        assert!(u.changed_by.is_empty() && u.report.updated_by.is_empty());
+    }
+    // Run again with another `x` and a new `w`: the list names what moved.
+    let ex = ws.execute(Some("a"), "given x = 3 V\nz = 3 V\nw = 1 A\n", &i);
+    assert_eq!(ex.report.updated_cells, ["y"]);
+    let by: Vec<(&str, &str, &str)> = ex.updated[0]
+        .changed_by
+        .iter()
+        .map(|c| (c.name.as_str(), c.old.as_str(), c.new.as_str()))
+        .collect();
+    assert_eq!(by, [("x", "2.00 V", "3.00 V"), ("w", "(new)", "1.00 A")]);
+    // A run that changes nothing another cell reads updates nothing.
+    assert!(ws
+        .execute(Some("a"), "given x = 3 V\nz = 4 V\nw = 1 A\n", &i)
+        .updated
+        .is_empty());
+}
+
+#[test]
 fn type_and_argument_diagnostics() {
     // A text where a number belongs.
     let src = "x = \"five\" * 2\n";
