@@ -376,7 +376,11 @@ impl Worksheet {
         // A cell run for the first time has no old values to compare.
         let had_report = self.reports.iter().any(|r| r.cell == key);
         let updated = self.commit(reports, Some(&key), |before| {
-            let old = before.iter().find(|r| r.cell == key && had_report);
+            let old = if had_report {
+                before.iter().find(|r| r.cell == key)
+            } else {
+                None
+            };
             changes(old, &report)
         });
         let mut report = report;
