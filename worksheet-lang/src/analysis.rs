@@ -87,7 +87,7 @@ impl<'e, E: Evaluate> Passes<'e, E> {
     /// The value of scalar `s` under `a`, with the derivative of input `seed` carried.
     pub fn at_seeded(&mut self, a: &[Interval], seed: Option<usize>, s: usize) -> Option<Num> {
         let i = self.pass_at(a, seed)?;
-        self.memo[i].2.scalars.get(s).copied().flatten()
+        self.scalar_of(i, s)
     }
 
     /// Scalar `s` of the memoised pass `i` (from `pass_at`).
