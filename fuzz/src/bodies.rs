@@ -122,7 +122,7 @@ pub fn assert_report(r: &CellReport) {
     for row in r.values.iter().chain(&r.shown) {
         if let Shown::Number { value, bounds } = &row.shown {
             assert!(
-                !row.text.is_empty(),
+                !row.text().is_empty(),
                 "{}: a number without display text",
                 row.name
             );

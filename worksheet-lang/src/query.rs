@@ -201,13 +201,13 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
     if let Some((text, row)) = ws.definition_of(name) {
         let mut t = format!("{text}\n");
         if let Some(r) = row {
-            t.push_str(&format!("\nvalue: {}\n", r.text));
+            t.push_str(&format!("\nvalue: {}\n", r.text()));
             if let Shown::Number {
                 bounds: Some(b),
                 value,
             } = &r.shown
             {
-                if let Some(range) = &r.range_text {
+                if let Some(range) = r.range_text() {
                     t.push_str(&format!(
                         "worst case: {range}{}\n",
                         if b.conservative {

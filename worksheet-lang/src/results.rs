@@ -113,10 +113,65 @@ pub struct ValueRow {
     pub unit: Option<crate::units::Unit>,
     /// Preferred display when no unit was declared (e.g. "%" for an efficiency), if any.
     pub preferred: Option<crate::units::Unit>,
-    /// Display text, e.g. "79.4 °C" (three significant digits, or the declared unit's).
-    pub text: String,
-    /// Display text of the worst-case range, e.g. "69.8 °C … 91.0 °C".
-    pub range_text: Option<String>,
+    /// A sizing result (θ, a resistor): its text leads with the worst-case minimum, the
+    /// side the design must meet.
+    pub leads_with_minimum: bool,
+}
+
+/// Significant digits of displayed numbers.
+pub(crate) const SIG: usize = 3;
+
+/// A value in SI as text: in `unit` when given, else with an SI prefix.
+pub(crate) fn fmt_value(si: f64, dim: Dim, abs: bool, unit: Option<&crate::units::Unit>) -> String {
+    match unit {
+        Some(u) => crate::units::format_in(si, abs, u, SIG),
+        None => crate::units::format_si(si, dim, abs, SIG),
+    }
+}
+
+impl ValueRow {
+    /// The unit the texts use: the declared or `as` unit, else the preferred one.
+    fn display_unit(&self) -> Option<&crate::units::Unit> {
+        self.unit.as_ref().or(self.preferred.as_ref())
+    }
+
+    /// Display text, e.g. "79.4 °C" (three significant digits, or the declared unit's); a
+    /// sizing result reads "3.12 K/W at worst (nominal 3.40 K/W)". Made when asked for: the
+    /// row holds the numbers, and rendering turns them into text.
+    pub fn text(&self) -> String {
+        match &self.shown {
+            Shown::Number { value, bounds } => {
+                let u = self.display_unit();
+                let text = fmt_value(value.si, value.dim, value.absolute, u);
+                match bounds {
+                    Some(b) if self.leads_with_minimum => {
+                        let min = fmt_value(b.min, value.dim, value.absolute, u);
+                        format!("{min} at worst (nominal {text})")
+                    }
+                    _ => text,
+                }
+            }
+            Shown::Text(t) | Shown::Other(t) => t.clone(),
+        }
+    }
+
+    /// Display text of the worst-case range, e.g. "69.8 °C … 91.0 °C"; None for a value
+    /// without one.
+    pub fn range_text(&self) -> Option<String> {
+        let Shown::Number {
+            value,
+            bounds: Some(b),
+        } = &self.shown
+        else {
+            return None;
+        };
+        let u = self.display_unit();
+        let (lo, hi) = (
+            fmt_value(b.min, value.dim, value.absolute, u),
+            fmt_value(b.max, value.dim, value.absolute, u),
+        );
+        Some(format!("{lo} … {hi}"))
+    }
 }
 
 #[derive(Debug, Clone, PartialEq)]

@@ -12,8 +12,10 @@ use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::eval::{self, EvalError, Evaluator, Failed, Function, Mode, Names, Pass, Registry};
 use crate::num::Interval;
 use crate::parser;
-use crate::results::{Bounds, CellReport, Change, CheckRow, Share, Shown, ValueRow, WarningRow};
-use crate::units::{self, Dim, Unit};
+use crate::results::{
+    Bounds, CellReport, Change, CheckRow, Share, Shown, ValueRow, WarningRow, SIG,
+};
+use crate::units::{self, Unit};
 use crate::value::{Num, Value};
 use rustc_hash::FxHashMap as HashMap;
 use std::borrow::Cow;
@@ -662,12 +664,13 @@ fn defines(p: &Program) -> impl Iterator<Item = &str> {
 
 fn changes(old: Option<&CellReport>, new: &CellReport) -> Vec<Change> {
     let mut out = Vec::new();
-    let text = |v: &ValueRow| match &v.range_text {
-        Some(r) => format!("{} ({r})", v.text),
-        None => v.text.clone(),
+    let text = |v: &ValueRow| match v.range_text() {
+        Some(r) => format!("{} ({r})", v.text()),
+        None => v.text(),
     };
-    // Same shown value: the same text and range (compared without building the texts).
-    let same = |a: &ValueRow, b: &ValueRow| a.text == b.text && a.range_text == b.range_text;
+    // Same shown value: the same text and range.
+    let same =
+        |a: &ValueRow, b: &ValueRow| a.text() == b.text() && a.range_text() == b.range_text();
     for v in &new.values {
         let before = old.and_then(|o| o.values.iter().find(|x| x.name == v.name));
         match before {
@@ -2055,15 +2058,14 @@ impl Analysed<'_, '_> {
         given: bool,
         out: &mut Vec<ValueRow>,
     ) {
-        let row = |name: String, shown: Shown, text: String| ValueRow {
+        let row = |name: String, shown: Shown| ValueRow {
             name,
             given,
             note: note.to_string(),
             shown,
             unit: unit.cloned(),
             preferred: None,
-            text,
-            range_text: None,
+            leads_with_minimum: false,
         };
         match v {
             Value::Num(n) => {
@@ -2073,30 +2075,18 @@ impl Analysed<'_, '_> {
                     None => self.scalar(key),
                 };
                 let (nom, b) = found.unwrap_or((*n, None));
-                let u = unit.or(preferred.as_ref());
-                let si = nom.x.value();
-                let text = fmt_value(si, nom.dim, nom.abs, u);
-                let range_text = b.map(|b| {
-                    eval::join(&[
-                        &fmt_value(b.min, nom.dim, nom.abs, u),
-                        " … ",
-                        &fmt_value(b.max, nom.dim, nom.abs, u),
-                    ])
-                });
                 out.push(ValueRow {
-                    preferred: preferred.clone(),
-                    range_text,
+                    preferred,
                     ..row(
                         name,
                         Shown::Number {
                             value: crate::results::Quantity {
-                                si,
+                                si: nom.x.value(),
                                 dim: nom.dim,
                                 absolute: nom.abs,
                             },
                             bounds: b.map(|b| self.bounds_of(b)),
                         },
-                        text,
                     )
                 });
             }
@@ -2120,30 +2110,9 @@ impl Analysed<'_, '_> {
                     );
                 }
             }
-            Value::Str(s) => out.push(row(name, Shown::Text(s.to_string()), s.to_string())),
-            Value::List(_) | Value::Series(_) => {
-                let t = plain(v);
-                out.push(row(name, Shown::Other(t.clone()), t));
-            }
+            Value::Str(s) => out.push(row(name, Shown::Text(s.to_string()))),
+            Value::List(_) | Value::Series(_) => out.push(row(name, Shown::Other(plain(v)))),
         }
-    }
-}
-
-/// A sizing result is shown by the side the design must meet: its worst-case minimum.
-fn lead_with_minimum(row: Option<&mut ValueRow>) {
-    let Some(row) = row else { return };
-    if let Shown::Number {
-        value,
-        bounds: Some(b),
-    } = &row.shown
-    {
-        let min = fmt_value(
-            b.min,
-            value.dim,
-            value.absolute,
-            row.unit.as_ref().or(row.preferred.as_ref()),
-        );
-        row.text = format!("{min} at worst (nominal {})", row.text);
     }
 }
 
@@ -2158,15 +2127,6 @@ fn plain(v: &Value) -> String {
         ),
         Value::Record(r) => format!("({} result)", r.kind),
         Value::Series(s) => format!("{} ({} values per decade)", s.name, s.values.len()),
-    }
-}
-
-const SIG: usize = 3;
-
-fn fmt_value(si: f64, dim: Dim, abs: bool, unit: Option<&Unit>) -> String {
-    match unit {
-        Some(u) => units::format_in(si, abs, u, SIG),
-        None => units::format_si(si, dim, abs, SIG),
     }
 }
 
@@ -2293,8 +2253,9 @@ fn evaluate(
                         if let Some(slot) = an.passes.eval.leaves.get_mut(*d) {
                             *slot = ids;
                         }
-                        if def.leads_with_minimum {
-                            lead_with_minimum(report.values.last_mut());
+                        // A sizing result is shown by the side the design must meet.
+                        if let Some(row) = report.values.last_mut() {
+                            row.leads_with_minimum = def.leads_with_minimum;
                         }
                     }
                 }

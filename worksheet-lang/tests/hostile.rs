@@ -70,7 +70,7 @@ fn shown_bytes(r: &CellReport) -> usize {
     r.values
         .iter()
         .chain(&r.shown)
-        .map(|v| v.text.len() + text(&v.shown) + v.range_text.as_ref().map_or(0, String::len))
+        .map(|v| v.text().len() + text(&v.shown) + v.range_text().map_or(0, |r| r.len()))
         .sum()
 }
 

@@ -22,13 +22,13 @@ fn si(r: &CellReport, name: &str) -> f64 {
     }
 }
 
-fn text<'a>(r: &'a CellReport, name: &str) -> &'a str {
-    &r.values
+fn text(r: &CellReport, name: &str) -> String {
+    r.values
         .iter()
         .chain(r.shown.iter())
         .find(|v| v.name == name)
         .expect("row")
-        .text
+        .text()
 }
 
 fn close(a: f64, b: f64) -> bool {
@@ -99,8 +99,8 @@ fn the_reference_rail_without_built_ins() {
     assert!(close(b.min, 323.15 + 0.8784 * theta));
     assert!(close(b.max, 323.15 + 1.824 * theta));
     assert!(!b.conservative);
-    assert_eq!(row.text, "79.4 °C");
-    assert_eq!(row.range_text.as_deref(), Some("69.8 °C … 91.0 °C"));
+    assert_eq!(row.text(), "79.4 °C");
+    assert_eq!(row.range_text().as_deref(), Some("69.8 °C … 91.0 °C"));
     let c = &r.checks[0];
     assert!(c.passed);
     assert!(close(c.margin, 125.0 - (50.0 + 1.824 * theta)));
@@ -111,6 +111,25 @@ fn the_reference_rail_without_built_ins() {
     assert_eq!(b.shares.len(), 2);
     let total: f64 = b.shares.iter().map(|s| s.fraction).sum();
     assert!(close(total, 1.0));
+}
+
+#[test]
+fn a_sizing_result_leads_with_its_worst_case_minimum() {
+    // θSA = (tj_max − ambient) / power − θJC − θCS, worked by hand: 100 K / 5 W − 4 K/W
+    // = 16 K/W nominal; at 6 W 100/6 − 4 = 12.67 K/W, at 4 W 100/4 − 4 = 21 K/W.
+    let src = "given p = 5 W ± 20 %\n\
+               sa = heat.sink_for(p, ambient: 50 °C, tj_max: 150 °C, jc: 3 K/W, cs: 1 K/W)\n";
+    let r = run(src);
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let row = r.values.iter().find(|v| v.name == "sa").expect("sa");
+    assert!(row.leads_with_minimum);
+    assert_eq!(row.text(), "12.7 K/W at worst (nominal 16.0 K/W)");
+    assert_eq!(row.range_text().as_deref(), Some("12.7 K/W … 21.0 K/W"));
+    // The data keeps the nominal value.
+    assert!(close(si(&r, "sa"), 16.0));
+    // A value that is not a sizing result shows its nominal value alone.
+    let p = r.values.iter().find(|v| v.name == "p").expect("p");
+    assert_eq!(p.text(), "5.00 W");
 }
 
 /// Inspection of an uncertain value lists each input's share of its spread and the
@@ -187,7 +206,7 @@ fn tolerance_forms() {
     assert_eq!(e.kind, DiagKind::Temperature);
     let r = run("t = 50 °C ± 2 °C\n");
     let row = r.values.iter().find(|v| v.name == "t").expect("t");
-    assert_eq!(row.range_text.as_deref(), Some("48.0 °C … 52.0 °C"));
+    assert_eq!(row.range_text().as_deref(), Some("48.0 °C … 52.0 °C"));
 }
 
 #[test]
@@ -401,7 +420,7 @@ fn user_functions_records_and_lists() {
     assert!(close(si(&r, "x"), 0.006));
     assert_eq!(text(&r, "x"), "6.00 mW");
     let r = run("x = 1500 mV\nx as V\n");
-    assert_eq!(r.shown[0].text, "1.50 V");
+    assert_eq!(r.shown[0].text(), "1.50 V");
 }
 
 #[test]

@@ -458,8 +458,7 @@ fn oversize_html_drops_sweep_tables_first_then_the_block() {
         shown: Shown::Text("a".into()),
         unit: None,
         preferred: None,
-        text: "a".into(),
-        range_text: None,
+        leads_with_minimum: false,
     };
     r.values.push(v.clone());
     let b = bundle(&r);

@@ -76,14 +76,15 @@ fn value_row(out: &mut String, v: &ValueRow) {
     let _ = write!(out, r#"<td style="{NAME}">{}</td>"#, esc(&v.name));
     match &v.shown {
         Shown::Number { bounds, .. } => {
-            let (n, u) = split_number_unit(&v.text);
+            let text = v.text();
+            let (n, u) = split_number_unit(&text);
             let _ = write!(
                 out,
                 r#"<td style="{NUMBER}">{}</td><td style="{UNIT}">{}</td>"#,
                 esc(n),
                 esc(u)
             );
-            let range = v.range_text.as_deref().unwrap_or("");
+            let range = v.range_text().unwrap_or_default();
             let conservative = if bounds.as_ref().is_some_and(|b| b.conservative)
                 && !range.is_empty()
             {
@@ -96,14 +97,14 @@ fn value_row(out: &mut String, v: &ValueRow) {
             let _ = write!(
                 out,
                 r#"<td style="{RANGE}">{}{conservative}</td>"#,
-                esc(range)
+                esc(&range)
             );
         }
         Shown::Text(_) | Shown::Other(_) => {
             let _ = write!(
                 out,
                 r#"<td colspan="3" style="{PLAIN}">{}</td>"#,
-                esc(&v.text)
+                esc(&v.text())
             );
         }
     }

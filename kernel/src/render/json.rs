@@ -89,7 +89,7 @@ fn value(v: &ValueRow) -> Value {
         m.insert("si".into(), num(value.si));
         m.insert("unit".into(), json!(unit_symbol(value.dim)));
         m.insert("absolute".into(), json!(value.absolute));
-        m.insert("text".into(), json!(v.text));
+        m.insert("text".into(), json!(v.text()));
         if let Some(b) = bounds {
             m.insert("min".into(), num(b.min));
             m.insert("max".into(), num(b.max));
@@ -99,7 +99,7 @@ fn value(v: &ValueRow) -> Value {
             json!(bounds.as_ref().is_some_and(|b| b.conservative)),
         );
     } else {
-        m.insert("text".into(), json!(v.text));
+        m.insert("text".into(), json!(v.text()));
     }
     m.insert("given".into(), json!(v.given));
     m.insert("note".into(), json!(v.note));

@@ -9,8 +9,9 @@ use worksheet_lang::results::{
     Bounds, CheckRow, Quantity, SweepSeries, SweepTable, ValueRow, WarningRow,
 };
 
+/// A number row; `text` is what it must display (the row makes its text from `si`).
 fn number(name: &str, given: bool, si: f64, dim: Dim, absolute: bool, text: &str) -> ValueRow {
-    ValueRow {
+    let row = ValueRow {
         name: name.into(),
         given,
         note: String::new(),
@@ -20,9 +21,10 @@ fn number(name: &str, given: bool, si: f64, dim: Dim, absolute: bool, text: &str
         },
         unit: None,
         preferred: None,
-        text: text.into(),
-        range_text: None,
-    }
+        leads_with_minimum: false,
+    };
+    assert_eq!(row.text(), text, "the text of {name}");
+    row
 }
 
 fn with_bounds(mut v: ValueRow, min: f64, max: f64, conservative: bool, range: &str) -> ValueRow {
@@ -35,7 +37,12 @@ fn with_bounds(mut v: ValueRow, min: f64, max: f64, conservative: bool, range: &
             rss: 0.0,
         });
     }
-    v.range_text = Some(range.into());
+    assert_eq!(
+        v.range_text().as_deref(),
+        Some(range),
+        "the range of {}",
+        v.name
+    );
     v
 }
 
@@ -191,8 +198,7 @@ fn json_conservative_bounds_are_flagged() {
 fn json_text_value_has_no_number_fields() {
     let row = ValueRow {
         shown: Shown::Text("E24".into()),
-        text: "E24".into(),
-        ..number("series", false, 0.0, Dim::NONE, false, "")
+        ..number("series", false, 0.0, Dim::NONE, false, "0")
     };
     let data = results_json(&[&report(vec![row], vec![])]);
     assert_eq!(keys(&data["values"][0]), ["name", "text", "given", "note"]);
@@ -258,7 +264,7 @@ fn json_units_are_coherent_si() {
     let rows = vec![
         number("vin", true, 12.0, Dim::VOLTAGE, false, "12.0 V"),
         number("θ", false, 6.4, Dim::THERMAL_RESISTANCE, false, "6.40 K/W"),
-        number("η", false, 0.85, Dim::NONE, false, "85.0 %"),
+        number("η", false, 0.85, Dim::NONE, false, "0.850"),
         number("iload", true, 0.18, Dim::CURRENT, false, "180 mA"),
     ];
     let data = results_json(&[&report(rows, vec![])]);

@@ -107,14 +107,15 @@ const VALUE_GAPS: &[&str] = &["", "  ", " ", "   ", "   "];
 fn value_cells(v: &ValueRow) -> Vec<String> {
     let (number, unit, range) = match &v.shown {
         Shown::Number { bounds, .. } => {
-            let (n, u) = split_number_unit(&v.text);
-            let mut range = v.range_text.clone().unwrap_or_default();
+            let text = v.text();
+            let (n, u) = split_number_unit(&text);
+            let mut range = v.range_text().unwrap_or_default();
             if bounds.as_ref().is_some_and(|b| b.conservative) && !range.is_empty() {
                 range.push_str(" (conservative)");
             }
             (n.to_string(), u.to_string(), range)
         }
-        Shown::Text(_) | Shown::Other(_) => (v.text.clone(), String::new(), String::new()),
+        Shown::Text(_) | Shown::Other(_) => (v.text(), String::new(), String::new()),
     };
     vec![one_line(&v.name), number, unit, range, one_line(&v.note)]
 }
@@ -258,11 +259,9 @@ fn sweep_table(s: &SweepTable) -> String {
 pub(super) fn shown(rows: &[ValueRow]) -> Option<String> {
     match rows {
         [] => None,
-        [v] => Some(match &v.range_text {
-            Some(range) if matches!(v.shown, Shown::Number { .. }) => {
-                format!("{} ({range})", v.text)
-            }
-            _ => v.text.clone(),
+        [v] => Some(match v.range_text() {
+            Some(range) => format!("{} ({range})", v.text()),
+            None => v.text(),
         }),
         _ => shown_table(rows),
     }
