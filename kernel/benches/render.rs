@@ -25,7 +25,7 @@ fn report(source: &str) -> CellReport {
         "bench worksheet has errors: {:?}",
         execution.report.diagnostics
     );
-    execution.report
+    worksheet_lang::CellReport::clone(&execution.report)
 }
 
 fn benches(c: &mut Criterion) {

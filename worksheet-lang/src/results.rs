@@ -54,6 +54,31 @@ impl CellReport {
 }
 
 impl CellReport {
+    /// The same results: equal in everything but what a run says of other cells
+    /// (`updated_by`, `updated_cells`), which is news of that run, not of this cell.
+    pub fn same_results(&self, other: &CellReport) -> bool {
+        let CellReport {
+            cell,
+            source,
+            diagnostics,
+            values,
+            checks,
+            warnings,
+            sweeps,
+            shown,
+            updated_by: _,
+            updated_cells: _,
+        } = self;
+        *cell == other.cell
+            && *source == other.source
+            && *diagnostics == other.diagnostics
+            && *values == other.values
+            && *checks == other.checks
+            && *warnings == other.warnings
+            && *sweeps == other.sweeps
+            && *shown == other.shown
+    }
+
     pub fn has_errors(&self) -> bool {
         self.diagnostics.iter().any(|d| d.is_error())
     }

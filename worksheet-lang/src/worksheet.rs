@@ -51,7 +51,8 @@ impl Interrupt {
 /// The outcome of running one cell.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Execution {
-    pub report: CellReport,
+    /// The cell's report, shared with the worksheet (which keeps it for later runs).
+    pub report: Arc<CellReport>,
     /// Other cells already run whose results changed because of this run.
     pub updated: Vec<CellUpdate>,
     /// True when the run was interrupted; nothing in the worksheet changed.
@@ -186,7 +187,7 @@ impl<'s> Prepared<'s> {
 pub struct Worksheet {
     pub(crate) cells: Vec<Cell>,
     options: Options,
-    reports: Vec<CellReport>,
+    reports: Vec<Arc<CellReport>>,
     overrides: Vec<Override>,
     runs: u64,
     anonymous: usize,
@@ -293,7 +294,7 @@ impl Worksheet {
                 .hint("split the worksheet into cells"),
             );
             return Execution {
-                report,
+                report: Arc::new(report),
                 updated: Vec::new(),
                 interrupted: false,
             };
@@ -348,7 +349,7 @@ impl Worksheet {
                 .reports
                 .iter()
                 .find(|r| r.cell == key)
-                .cloned()
+                .map(|r| CellReport::clone(r))
                 .unwrap_or_else(|| CellReport {
                     cell: key.clone(),
                     source: source.to_string(),
@@ -360,7 +361,7 @@ impl Worksheet {
                 "interrupted: the worksheet is as it was before this cell ran",
             ));
             return Execution {
-                report,
+                report: Arc::new(report),
                 updated: Vec::new(),
                 interrupted: true,
             };
@@ -368,27 +369,34 @@ impl Worksheet {
         if reports[run].as_ref().is_some_and(CellReport::has_errors) {
             drop(swap);
             return Execution {
-                report: reports[run].take().unwrap_or_default(),
+                report: Arc::new(reports[run].take().unwrap_or_default()),
                 updated: Vec::new(),
                 interrupted: false,
             };
         }
         swap.keep();
-        let report = reports[run].clone().unwrap_or_default();
         // A cell run for the first time has no old values to compare.
         let had_report = self.reports.iter().any(|r| r.cell == key);
-        let updated = self.commit(reports, Some(&key), |before| {
+        let updated = self.commit(reports, Some(&key), |before, new| {
             let old = if had_report {
-                before.iter().find(|r| r.cell == key)
+                before.iter().find(|r| r.cell == key).map(|r| &**r)
             } else {
                 None
             };
-            changes(old, &report)
+            match new.get(run).and_then(Option::as_ref) {
+                Some(new) => changes(old, new),
+                None => changes(old, &CellReport::default()),
+            }
         });
-        let mut report = report;
-        report.updated_cells = updated.iter().map(|u| u.report.summary()).collect();
+        // The run cell's report, now the worksheet's, says which other cells it updated
+        // (compared without that list on later runs: `CellReport::same_results`).
+        let report = &mut self.reports[run];
+        if !updated.is_empty() {
+            Arc::make_mut(report).updated_cells =
+                updated.iter().map(|u| u.report.summary()).collect();
+        }
         Execution {
-            report,
+            report: report.clone(),
             updated,
             interrupted: false,
         }
@@ -396,13 +404,13 @@ impl Worksheet {
 
     /// Takes a new evaluation of the worksheet's cells as its reports and returns the other
     /// cells whose results changed, each marked with what `changes` makes of the reports as
-    /// they were (called only when some other cell changed).
+    /// they were and the new ones (called only when some other cell changed).
     /// A report of None is a cell that was not evaluated: its report stands.
     fn commit(
         &mut self,
         reports: Vec<Option<CellReport>>,
         run: Option<&str>,
-        changes: impl FnOnce(&[CellReport]) -> Vec<Change>,
+        changes: impl FnOnce(&[Arc<CellReport>], &[Option<CellReport>]) -> Vec<Change>,
     ) -> Vec<CellUpdate> {
         // The reports stay in the order of their cells; only when a cell came or went
         // are they put in that order again.
@@ -424,10 +432,10 @@ impl Worksheet {
                 ordered.push(match at {
                     Some(i) => std::mem::take(&mut before[i]),
                     // Not reported yet: only the cell being run, whose report follows.
-                    None => CellReport {
+                    None => Arc::new(CellReport {
                         cell: c.key.clone(),
                         ..CellReport::default()
-                    },
+                    }),
                 });
             }
             self.reports = ordered;
@@ -439,11 +447,11 @@ impl Worksheet {
             .zip(&reports)
             .map(|(old, r)| {
                 r.as_ref()
-                    .is_some_and(|r| Some(r.cell.as_str()) != run && old != r)
+                    .is_some_and(|r| Some(r.cell.as_str()) != run && !old.same_results(r))
             })
             .collect();
         let changes = if changed.contains(&true) {
-            changes(&self.reports)
+            changes(&self.reports, &reports)
         } else {
             Vec::new()
         };
@@ -461,7 +469,7 @@ impl Worksheet {
                     changed_by: changes.clone(),
                 });
             }
-            *old = r;
+            *old = Arc::new(r);
         }
         self.stale = false;
         updated
@@ -490,7 +498,7 @@ impl Worksheet {
         {
             changes.extend(crate::worksheet::changes(Some(r), &CellReport::default()));
         }
-        Some(self.commit(reports, None, |_| changes))
+        Some(self.commit(reports, None, |_, _| changes))
     }
 
     /// A cell without an id is the earlier cell that defined the same names, if any.
@@ -566,7 +574,7 @@ impl Worksheet {
     }
 
     /// The reports of every cell as last run, in the order the cells were first run.
-    pub fn reports(&self) -> &[CellReport] {
+    pub fn reports(&self) -> &[Arc<CellReport>] {
         &self.reports
     }
 
@@ -2659,23 +2667,27 @@ mod tests {
         let expected = after(ws, key, source);
         let expected = everything(&expected);
         let ex = ws.execute(Some(key), source, &Interrupt::new());
-        let mut report = ex.report.clone();
-        report.updated_cells.clear();
+        // What a run says of the other cells is news of that run, not a result.
+        let results = |r: &CellReport| CellReport {
+            updated_cells: Vec::new(),
+            ..r.clone()
+        };
         let want = expected
             .iter()
             .find(|r| r.cell == key)
             .cloned()
             .unwrap_or_default();
         assert_eq!(
-            report, want,
+            results(&ex.report),
+            want,
             "the report of the cell run ({key}: {source:?})"
         );
         if !ex.report.has_errors() {
-            assert_eq!(
-                ws.reports(),
-                expected.as_slice(),
-                "after running {key}: {source:?}"
-            );
+            let kept: Vec<CellReport> = ws.reports().iter().map(|r| results(r)).collect();
+            assert_eq!(kept, expected, "after running {key}: {source:?}");
+            // The worksheet keeps the report it returned.
+            let run = ws.reports().iter().find(|r| r.cell == key);
+            assert!(run.is_some_and(|r| Arc::ptr_eq(r, &ex.report)));
         }
         ex
     }

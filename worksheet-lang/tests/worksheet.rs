@@ -1,12 +1,13 @@
 //! The worksheet end to end: values, temperature rules, checks, the dependency graph and
 //! the diagnostics of evaluation. Expected numbers are derived by hand beside each test.
 
+use std::sync::Arc;
 use worksheet_lang::results::{CellReport, Shown};
 use worksheet_lang::{DiagKind, Interrupt, Worksheet};
 
 fn run(src: &str) -> CellReport {
     let mut ws = Worksheet::new();
-    ws.execute(Some("c1"), src, &Interrupt::new()).report
+    Arc::unwrap_or_clone(ws.execute(Some("c1"), src, &Interrupt::new()).report)
 }
 
 fn si(r: &CellReport, name: &str) -> f64 {
@@ -306,10 +307,10 @@ fn rerunning_one_cell_among_many_keeps_every_other_report() {
 fn cells_without_ids_are_known_by_their_names() {
     let mut ws = Worksheet::new();
     let i = Interrupt::new();
-    let first = ws.execute(None, "given v = 1 V\n", &i).report.cell;
-    let again = ws.execute(None, "given v = 2 V\n", &i).report.cell;
+    let first = ws.execute(None, "given v = 1 V\n", &i).report.cell.clone();
+    let again = ws.execute(None, "given v = 2 V\n", &i).report.cell.clone();
     assert_eq!(first, again);
-    let other = ws.execute(None, "w = v * 3\n", &i).report.cell;
+    let other = ws.execute(None, "w = v * 3\n", &i).report.cell.clone();
     assert_ne!(first, other);
 }
 
@@ -621,6 +622,24 @@ fn updates_say_what_changed_them_and_forgotten_cells_take_their_names() {
         .forget(&["nope"], &i)
         .expect("not interrupted")
         .is_empty());
+}
+
+#[test]
+fn a_cell_that_updated_others_is_not_changed_when_its_results_are_the_same() {
+    // The worksheet keeps b's report with the note that its run updated z. When a later
+    // run evaluates b again with the same results, b is not listed as updated.
+    let mut ws = Worksheet::new();
+    let i = Interrupt::new();
+    ws.execute(Some("a"), "given x = 1 V\n", &i);
+    ws.execute(Some("b"), "y = x * 2\n", &i);
+    ws.execute(Some("c"), "z = y + 1 V\n", &i);
+    let ex = ws.execute(Some("b"), "y = x * 3\n", &i);
+    assert_eq!(ex.report.updated_cells, ["z"]);
+    let kept = ws.reports().iter().find(|r| r.cell == "b").expect("b");
+    assert_eq!(kept.updated_cells, ["z"]);
+    let again = ws.execute(Some("a"), "given x = 1 V\n", &i);
+    assert!(again.updated.is_empty(), "{:?}", again.updated);
+    assert!(again.report.updated_cells.is_empty());
 }
 
 #[test]

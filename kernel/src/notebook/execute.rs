@@ -17,7 +17,7 @@ pub(crate) struct CellRun {
     /// `None` for a blank cell, which is not run (as JupyterLab and nbclient skip it).
     pub execution_count: Option<u64>,
     /// The cell's report as it stands after the whole run (a later cell may have updated it).
-    pub report: Option<CellReport>,
+    pub report: Option<std::sync::Arc<CellReport>>,
     pub outputs: Vec<CellOutput>,
 }
 
@@ -99,7 +99,7 @@ pub(crate) fn run_cells(nb: &Notebook) -> Vec<CellRun> {
         }
         for u in &ex.updated {
             if let Some(r) = runs.iter_mut().find(|r| r.key == u.report.cell) {
-                r.report = Some(u.report.clone());
+                r.report = Some(std::sync::Arc::new(u.report.clone()));
             }
         }
         runs.push(CellRun {

@@ -100,7 +100,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<u8> {
     nb.ensure_kernel_metadata();
     ipynb::write_atomic(&out_path, nb.to_text()?.as_bytes())?;
 
-    let reports: Vec<_> = runs.iter().filter_map(|r| r.report.as_ref()).collect();
+    let reports: Vec<_> = runs.iter().filter_map(|r| r.report.as_deref()).collect();
     let mut s = String::new();
     let ran = runs.iter().filter(|r| r.execution_count.is_some()).count();
     let _ = writeln!(s, "Wrote {} ({ran} code cells run)", out_path.display());

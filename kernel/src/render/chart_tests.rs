@@ -690,7 +690,7 @@ fn dump_charts() {
     let run = |source: &str| {
         let mut sheet = worksheet_lang::Worksheet::new();
         let interrupt = worksheet_lang::Interrupt::new();
-        sheet.execute(None, source, &interrupt).report
+        CellReport::clone(&sheet.execute(None, source, &interrupt).report)
     };
     let demo = std::fs::read_to_string(
         std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../notebooks/daq-logic-rail.hrw"),

@@ -94,7 +94,7 @@ mod tests {
 
     fn execution(report: CellReport) -> Execution {
         Execution {
-            report,
+            report: report.into(),
             updated: Vec::new(),
             interrupted: false,
         }
