@@ -155,6 +155,19 @@ struct CallSite {
 }
 
 impl Registry {
+    /// An empty registry with room for the scalars of `definitions` definitions (a few
+    /// each: a record has a field per scalar), so the index grows once or not at all.
+    pub fn for_definitions(definitions: usize) -> Self {
+        Registry {
+            scalar_index: HashMap::with_capacity_and_hasher(8 * definitions, Default::default()),
+            sites: HashMap::with_capacity_and_hasher(definitions, Default::default()),
+            input_index: HashMap::with_capacity_and_hasher(definitions, Default::default()),
+            choices: HashMap::with_capacity_and_hasher(definitions, Default::default()),
+            observed: HashMap::with_capacity_and_hasher(definitions, Default::default()),
+            ..Registry::default()
+        }
+    }
+
     /// A unit by its text, parsed once per evaluation.
     pub fn unit(&mut self, text: &str) -> Result<&units::Unit, units::UnitError> {
         self.units.get(text)

@@ -817,9 +817,10 @@ fn build_model<'c>(
     overrides: &'c [Override],
     focus: Option<&Focus>,
 ) -> Model<'c> {
+    let statements: usize = cells.iter().map(|c| c.program.stmts.len()).sum();
     let mut m = Model {
-        defs: Vec::new(),
-        index: HashMap::default(),
+        defs: Vec::with_capacity(statements),
+        index: HashMap::with_capacity_and_hasher(statements, Default::default()),
         funcs: HashMap::default(),
         order: Vec::new(),
         deps: Vec::new(),
@@ -834,7 +835,8 @@ fn build_model<'c>(
     };
     // Who owns each name: within a cell the first definition (a second is an error);
     // across cells the one run last.
-    let mut owner: HashMap<String, (usize, u64)> = HashMap::default();
+    let mut owner: HashMap<String, (usize, u64)> =
+        HashMap::with_capacity_and_hasher(statements, Default::default());
     for (ci, c) in cells.iter().enumerate() {
         let mut seen: Vec<&str> = Vec::new();
         for s in &c.program.stmts {
@@ -1941,7 +1943,7 @@ impl<'m> Runner<'m> {
     fn new(model: &'m Model<'m>, interrupt: &'m Interrupt) -> Self {
         Runner {
             model,
-            reg: Registry::default(),
+            reg: Registry::for_definitions(model.defs.len() + model.checks.len()),
             interrupt,
             errors: HashMap::default(),
             notes: Vec::new(),
