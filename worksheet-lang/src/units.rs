@@ -1198,6 +1198,26 @@ impl UnitCache {
     }
 }
 
+/// A unit the library names (a record field's display unit, such as `%`), parsed once per
+/// process: the library names a handful, and every evaluation shows them.
+pub fn library_unit(text: &'static str) -> Result<&'static Unit, UnitError> {
+    type Parsed = (&'static str, &'static Result<Unit, UnitError>);
+    static PARSED: std::sync::Mutex<Vec<Parsed>> = std::sync::Mutex::new(Vec::new());
+    let mut parsed = PARSED
+        .lock()
+        .unwrap_or_else(std::sync::PoisonError::into_inner);
+    let found = match parsed.iter().find(|(t, _)| *t == text) {
+        Some(&(_, unit)) => unit,
+        None => {
+            // Bounded by the library's own texts; kept for the life of the process.
+            let unit: &'static Result<Unit, UnitError> = Box::leak(Box::new(parse_unit(text)));
+            parsed.push((text, unit));
+            unit
+        }
+    };
+    found.as_ref().map_err(Clone::clone)
+}
+
 /// Parses a unit as written without spaces: `V`, `mA`, `K/W`, `W/(m·K)`, `A·h`, `m^2`, `mm²`.
 ///
 /// Products use `·` or `*` (shown as `·`), quotients `/` (once, with a single factor or a

@@ -714,7 +714,7 @@ fn changes(old: Option<&CellReport>, new: &CellReport) -> Vec<Change> {
 // The model: every statement of every cell, resolved into definitions and an order.
 
 struct DefEntry<'c> {
-    name: String,
+    name: &'c str,
     /// The statement key ("d:NAME") its scalars and sites are recorded under.
     key: &'c str,
     cell: usize,
@@ -725,7 +725,7 @@ struct DefEntry<'c> {
     value_span: Span,
     name_span: Span,
     unit: Option<Unit>,
-    note: String,
+    note: &'c str,
     given: bool,
     /// The expression as written in the cell, when an override replaced it.
     original: Option<&'c Expr>,
@@ -782,7 +782,7 @@ struct SweepEntry<'c> {
 /// Borrows the cells' syntax trees (and the overrides' values) it was built from.
 struct Model<'c> {
     defs: Vec<DefEntry<'c>>,
-    index: HashMap<String, usize>,
+    index: HashMap<&'c str, usize>,
     funcs: HashMap<String, Function>,
     order: Vec<usize>,
     /// The definitions each definition reads by name (also inside the functions it calls).
@@ -835,10 +835,10 @@ fn build_model<'c>(
     };
     // Who owns each name: within a cell the first definition (a second is an error);
     // across cells the one run last.
-    let mut owner: HashMap<String, (usize, u64)> =
+    let mut owner: HashMap<&str, (usize, u64)> =
         HashMap::with_capacity_and_hasher(statements, Default::default());
     for (ci, c) in cells.iter().enumerate() {
-        let mut seen: Vec<&str> = Vec::new();
+        let mut seen: Vec<&str> = Vec::with_capacity(c.program.stmts.len());
         for s in &c.program.stmts {
             let name = match &s.kind {
                 StmtKind::Given(d) | StmtKind::Define(d) => &d.name,
@@ -857,16 +857,16 @@ fn build_model<'c>(
                 continue;
             }
             seen.push(&name.name);
-            match owner.get(&name.name) {
+            match owner.get(name.name.as_str()) {
                 Some(&(_, run)) if run > c.last_run => {}
                 _ => {
-                    owner.insert(name.name.clone(), (ci, c.last_run));
+                    owner.insert(&name.name, (ci, c.last_run));
                 }
             }
         }
     }
     for (ci, c) in cells.iter().enumerate() {
-        let mut seen: Vec<&str> = Vec::new();
+        let mut seen: Vec<&str> = Vec::with_capacity(c.program.stmts.len());
         for (si, s) in c.program.stmts.iter().enumerate() {
             let facts = &c.facts[si];
             match &s.kind {
@@ -876,7 +876,7 @@ fn build_model<'c>(
                         continue;
                     }
                     seen.push(&d.name.name);
-                    if owner.get(&d.name.name).map(|o| o.0) != Some(ci) {
+                    if owner.get(d.name.name.as_str()).map(|o| o.0) != Some(ci) {
                         m.diags[ci].push(Diagnostic::warning(
                             DiagKind::Redefinition,
                             d.name.span.clone(),
@@ -906,7 +906,7 @@ fn build_model<'c>(
                     let idx = m.defs.len();
                     m.defs.push(DefEntry {
                         key: facts.def_key.as_deref().unwrap_or_default(),
-                        name: d.name.name.clone(),
+                        name: &d.name.name,
                         cell: ci,
                         expr: ov.map_or(&d.value, |o| &o.expr),
                         // An override is a literal (`set_override` refuses names).
@@ -918,7 +918,7 @@ fn build_model<'c>(
                         value_span: d.value.span.clone(),
                         name_span: d.name.span.clone(),
                         unit,
-                        note: d.note.as_ref().map(|n| n.text.clone()).unwrap_or_default(),
+                        note: d.note.as_ref().map_or("", |n| n.text.as_str()),
                         given,
                         original: ov.map(|_| &d.value),
                         overridden: ov.is_some(),
@@ -931,7 +931,7 @@ fn build_model<'c>(
                         },
                         certain: false,
                     });
-                    m.index.insert(d.name.name.clone(), idx);
+                    m.index.insert(&d.name.name, idx);
                 }
                 StmtKind::Function {
                     name,
@@ -939,7 +939,7 @@ fn build_model<'c>(
                     unit,
                     body,
                 } => {
-                    if owner.get(&name.name).map(|o| o.0) != Some(ci)
+                    if owner.get(name.name.as_str()).map(|o| o.0) != Some(ci)
                         || m.funcs.contains_key(&name.name)
                     {
                         continue;
@@ -966,7 +966,7 @@ fn build_model<'c>(
         }
     }
     for o in overrides {
-        match m.index.get(&o.name) {
+        match m.index.get(o.name.as_str()) {
             Some(&i) if m.defs[i].given => {}
             Some(&i) => {
                 let ci = m.defs[i].cell;
@@ -988,7 +988,7 @@ fn build_model<'c>(
                         .defs
                         .iter()
                         .filter(|d| d.given)
-                        .map(|d| d.name.clone())
+                        .map(|d| d.name.to_string())
                         .collect();
                     names.sort();
                     let mut d = Diagnostic::error(
@@ -1017,7 +1017,7 @@ fn build_model<'c>(
         let mut diags = c.program.diagnostics.clone();
         diags.append(&mut m.diags[ci]);
         m.diags[ci] = diags;
-        let mut seen: Vec<&str> = Vec::new();
+        let mut seen: Vec<&str> = Vec::with_capacity(c.program.stmts.len());
         for (si, s) in c.program.stmts.iter().enumerate() {
             let facts = &c.facts[si];
             let key = facts.key.as_str();
@@ -1099,7 +1099,7 @@ fn order_definitions<'c>(m: &mut Model<'c>) {
         .map(|names| {
             names
                 .iter()
-                .filter_map(|x| m.index.get(x).copied())
+                .filter_map(|x| m.index.get(x.as_str()).copied())
                 .collect()
         })
         .collect();
@@ -1123,11 +1123,9 @@ fn order_definitions<'c>(m: &mut Model<'c>) {
                 } else if colour[w] == 1 {
                     // A cycle: w … v → w.
                     let pos = stack.iter().position(|(x, _)| *x == w).unwrap_or(0);
-                    let mut path: Vec<&str> = stack[pos..]
-                        .iter()
-                        .map(|(x, _)| m.defs[*x].name.as_str())
-                        .collect();
-                    path.push(&m.defs[w].name);
+                    let mut path: Vec<&str> =
+                        stack[pos..].iter().map(|(x, _)| m.defs[*x].name).collect();
+                    path.push(m.defs[w].name);
                     let text = path.join(" → ");
                     for (x, _) in &stack[pos..] {
                         if !on_cycle.iter().any(|(y, _)| y == x) {
@@ -1252,7 +1250,9 @@ fn cells_to_evaluate(
         .defs
         .iter()
         .enumerate()
-        .map(|(d, def)| def.cell == run || changed.contains(&def.name) || hit(&model.reads[d]))
+        .map(|(d, def)| {
+            def.cell == run || changed.iter().any(|c| c == def.name) || hit(&model.reads[d])
+        })
         .collect();
     loop {
         let mut moved = false;
@@ -1283,7 +1283,7 @@ fn cells_to_evaluate(
                 || hit(&names)
                 || names
                     .iter()
-                    .any(|n| model.index.get(n).is_some_and(|&d| affected[d]));
+                    .any(|n| model.index.get(n.as_str()).is_some_and(|&d| affected[d]));
         }
         live[ci] = dirty;
     }
@@ -1317,7 +1317,11 @@ fn restrict(model: &mut Model<'_>, live: Vec<bool>) {
         .chain(model.shows.iter().map(|s| s.reads));
     for names in reads {
         let names = expanded(&model.funcs, names);
-        stack.extend(names.iter().filter_map(|n| model.index.get(n).copied()));
+        stack.extend(
+            names
+                .iter()
+                .filter_map(|n| model.index.get(n.as_str()).copied()),
+        );
     }
     while let Some(d) = stack.pop() {
         if !needed[d] {
@@ -1361,8 +1365,8 @@ impl Names for Scope<'_> {
         self.model
             .index
             .keys()
-            .chain(self.model.funcs.keys())
-            .cloned()
+            .map(|k| k.to_string())
+            .chain(self.model.funcs.keys().cloned())
             .collect()
     }
 }
@@ -1610,7 +1614,7 @@ impl Runner<'_> {
                     self.fail(StmtId::Def(d), e.clone());
                 }
                 values[d] = Some(Err(Failed {
-                    root: def.name.clone(),
+                    root: def.name.to_string(),
                     message: e.message.clone(),
                 }));
                 continue;
@@ -1638,7 +1642,7 @@ impl Runner<'_> {
                     reg: &mut self.reg,
                     pass: &mut pass,
                     stmt_key: def.key,
-                    stmt_label: &def.name,
+                    stmt_label: def.name,
                     given: def.given,
                     locals: Vec::new(),
                     depth: 0,
@@ -1673,7 +1677,7 @@ impl Runner<'_> {
                                 reg: &mut self.reg,
                                 pass: &mut pass,
                                 stmt_key: def.key,
-                                stmt_label: &def.name,
+                                stmt_label: def.name,
                                 given: def.given,
                                 locals: Vec::new(),
                                 depth: 0,
@@ -1739,7 +1743,7 @@ impl Runner<'_> {
                     let failed = match &e.cause {
                         Some(root) if e.kind == DiagKind::DependencyFailed => root.clone(),
                         _ => Failed {
-                            root: def.name.clone(),
+                            root: def.name.to_string(),
                             message: e.message.clone(),
                         },
                     };
@@ -1895,7 +1899,7 @@ fn same_kind(
         reg: &mut scratch,
         pass: &mut pass,
         stmt_key: "override",
-        stmt_label: &def.name,
+        stmt_label: def.name,
         given: true,
         locals: Vec::new(),
         depth: 0,
@@ -2079,7 +2083,7 @@ impl Analysed<'_, '_> {
         };
         match v {
             Value::Num(n) => {
-                let preferred = display.and_then(|t| self.passes.eval.reg.unit(t).ok().cloned());
+                let preferred = display.and_then(|t| units::library_unit(t).ok().cloned());
                 let found = match leaves.as_mut() {
                     Some(ids) => ids.next().and_then(|&id| self.scalar_by_id(id)),
                     None => self.scalar(key),
@@ -2227,6 +2231,8 @@ fn evaluate(
                 cell: c.key.clone(),
                 source: c.source.to_string(),
                 diagnostics: model.diags[ci].clone(),
+                // A row per definition, and one per field of a record: room for a few.
+                values: Vec::with_capacity(4 * c.program.stmts.len()),
                 ..CellReport::default()
             })
         })
@@ -2252,11 +2258,11 @@ fn evaluate(
                         an.value_rows(
                             def.key,
                             &mut leaves,
-                            def.name.clone(),
+                            def.name.to_string(),
                             v,
                             def.unit.as_ref(),
                             None,
-                            &def.note,
+                            def.note,
                             def.given,
                             &mut report.values,
                         );

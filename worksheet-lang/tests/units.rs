@@ -603,3 +603,14 @@ proptest! {
         }
     }
 }
+
+#[test]
+fn a_library_unit_is_parsed_once_and_shared() {
+    // "%" is one hundredth of the pure number (common practice, no source).
+    let a = worksheet_lang::units::library_unit("%").expect("percent");
+    let b = worksheet_lang::units::library_unit("%").expect("percent");
+    assert!(std::ptr::eq(a, b));
+    assert_eq!(a.dim, Dim::NONE);
+    assert!((a.factor - 0.01).abs() < 1e-15);
+    assert!(worksheet_lang::units::library_unit("nonsense-unit").is_err());
+}
