@@ -213,9 +213,31 @@ pub struct CheckRow {
     pub margin: f64,
     pub dim: Dim,
     pub conservative: bool,
-    pub worst_text: String,
-    pub limit_text: String,
-    pub margin_text: String,
+    /// Whether each side on its own is an absolute temperature (a side may be a
+    /// difference: `check tj >= 10 K`); `absolute` is set when both are.
+    pub worst_absolute: bool,
+    pub limit_absolute: bool,
+}
+
+impl CheckRow {
+    /// The two sides at the deciding corner as text, with enough digits that they differ
+    /// in the direction of the verdict (unless the numbers are equal). Made when asked for.
+    pub fn side_texts(&self) -> (String, String) {
+        let mut sig = SIG;
+        loop {
+            let a = crate::units::format_si(self.worst, self.dim, self.worst_absolute, sig);
+            let b = crate::units::format_si(self.limit, self.dim, self.limit_absolute, sig);
+            if a != b || sig >= 12 || self.worst == self.limit {
+                return (a, b);
+            }
+            sig += 1;
+        }
+    }
+
+    /// The margin as text, signed ("+34.0 K"; a difference, so temperatures in kelvin).
+    pub fn margin_text(&self) -> String {
+        crate::units::format_difference(self.margin, self.dim, SIG)
+    }
 }
 
 #[derive(Debug, Clone, PartialEq)]

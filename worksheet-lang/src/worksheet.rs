@@ -2144,19 +2144,6 @@ fn plain(v: &Value) -> String {
     }
 }
 
-/// The two sides of a check with enough digits to differ in the verdict's direction.
-fn side_texts(worst: Num, limit: Num) -> (String, String) {
-    let mut sig = SIG;
-    loop {
-        let a = units::format_si(worst.x.value(), worst.dim, worst.abs, sig);
-        let b = units::format_si(limit.x.value(), limit.dim, limit.abs, sig);
-        if a != b || sig >= 12 || worst.x.value() == limit.x.value() {
-            return (a, b);
-        }
-        sig += 1;
-    }
-}
-
 fn cell_of_stmt(model: &Model<'_>, cells: &[Cell], key: &str) -> Option<usize> {
     if let Some(name) = key.strip_prefix("d:") {
         return model.index.get(name).map(|&i| model.defs[i].cell);
@@ -2445,7 +2432,6 @@ fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
         Some(a) => (an.at(&a, lk).unwrap_or(lhs), an.at(&a, rk).unwrap_or(rhs)),
         None => (lhs, rhs),
     };
-    let (worst_text, limit_text) = side_texts(worst, limit);
     Some(CheckRow {
         text: c.text.clone(),
         note: c.note.clone(),
@@ -2456,9 +2442,8 @@ fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
         margin,
         dim: diff.dim,
         conservative,
-        worst_text,
-        limit_text,
-        margin_text: units::format_difference(margin, diff.dim, SIG),
+        worst_absolute: worst.abs,
+        limit_absolute: limit.abs,
     })
 }
 

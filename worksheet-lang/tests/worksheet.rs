@@ -107,7 +107,7 @@ fn the_reference_rail_without_built_ins() {
     assert!(close(c.margin, 125.0 - (50.0 + 1.824 * theta)));
     assert!(close(c.worst, 323.15 + 1.824 * theta));
     assert!(close(c.limit, 398.15));
-    assert_eq!(c.margin_text, "+34.0 K");
+    assert_eq!(c.margin_text(), "+34.0 K");
     // Shares: the load's swing is 0.072 A·8.2 V-ish; both inputs contribute.
     assert_eq!(b.shares.len(), 2);
     let total: f64 = b.shares.iter().map(|s| s.fraction).sum();
@@ -743,4 +743,24 @@ fn spreads_near_the_largest_number_stay_finite() {
         assert!(close(b.rss, 1e308), "{}", b.rss);
         assert!(close(b.shares[0].fraction, 1.0));
     }
+}
+
+#[test]
+fn check_sides_show_enough_digits_to_differ_and_keep_their_own_kind() {
+    // 1.0001 V against 1.0004 V agree to three digits; five tell them apart.
+    let r = run("x = 1.0001 V\ncheck x <= 1.0004 V\n");
+    let c = &r.checks[0];
+    assert!(c.passed);
+    assert_eq!(
+        c.side_texts(),
+        ("1.0001 V".to_string(), "1.0004 V".to_string())
+    );
+    assert_eq!(c.margin_text(), "+300 µV");
+    // An absolute temperature against a difference: each side shown as what it is.
+    let r = run("t = 50 °C\ncheck t >= 10 K\n");
+    let c = &r.checks[0];
+    assert_eq!(
+        c.side_texts(),
+        ("50.0 °C".to_string(), "10.0 K".to_string())
+    );
 }

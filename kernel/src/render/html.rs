@@ -134,11 +134,12 @@ fn check_row(out: &mut String, c: &CheckRow) {
     } else {
         ""
     };
+    let (worst, limit) = c.side_texts();
     let _ = write!(
         out,
         r#"<td style="{RANGE}"><span style="{SOFT}">worst</span> {} <span style="{SOFT}">limit</span> {}{conservative}</td>"#,
-        esc(&c.worst_text),
-        esc(&c.limit_text)
+        esc(&worst),
+        esc(&limit)
     );
     let _ = write!(out, r#"<td style="{NOTE}">{}</td>"#, esc(&c.note));
     out.push_str("</tr>");

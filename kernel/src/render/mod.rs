@@ -1,9 +1,9 @@
 //! Rendering of results data into plain text, HTML and the results JSON.
 //!
 //! Shared by the kernel and the command line, so a worksheet run from the shell shows the very
-//! same outputs as in JupyterLab. Numbers arrive already formatted by the language (`text`,
-//! `range_text`, a check's `worst_text`/`limit_text`/`margin_text`); only the JSON carries raw SI
-//! numbers.
+//! same outputs as in JupyterLab. The rows of the results data make their own display texts
+//! (`ValueRow::text` and `range_text`, `CheckRow::side_texts` and `margin_text`), which the
+//! renderers lay out; the JSON carries the raw SI numbers beside them.
 
 mod chart;
 mod html;
@@ -225,7 +225,8 @@ fn split_number_unit(text: &str) -> (&str, &str) {
 
 /// The margin text with its sign always written ("+34.0 K", "-14.0 W").
 fn signed_margin(c: &CheckRow) -> String {
-    let t = c.margin_text.trim();
+    let margin = c.margin_text();
+    let t = margin.trim();
     if t.starts_with(['+', '-', '−']) {
         t.to_string()
     } else if c.margin < 0.0 {

@@ -62,7 +62,7 @@ fn check_row(
     dim: Dim,
     texts: [&str; 3],
 ) -> CheckRow {
-    CheckRow {
+    let row = CheckRow {
         text: text.into(),
         note: String::new(),
         passed,
@@ -72,10 +72,17 @@ fn check_row(
         margin,
         dim,
         conservative: false,
-        worst_text: texts[0].into(),
-        limit_text: texts[1].into(),
-        margin_text: texts[2].into(),
-    }
+        worst_absolute: absolute,
+        limit_absolute: absolute,
+    };
+    // The row makes its texts from its numbers: they must be the ones the test expects.
+    let (worst_text, limit_text) = row.side_texts();
+    assert_eq!(
+        [worst_text, limit_text, row.margin_text()],
+        texts,
+        "the texts of {text}"
+    );
+    row
 }
 
 /// tj = 79.4 °C nominal, 69.8 °C … 91.0 °C worst case; 352.58 K, 342.91 K, 364.19 K.
@@ -99,7 +106,7 @@ fn tj_check() -> CheckRow {
         true,
         33.96,
         Dim::TEMPERATURE,
-        ["91.0 °C", "125 °C", "34.0 K"],
+        ["91.0 °C", "125 °C", "+34.0 K"],
     )
 }
 
@@ -431,10 +438,10 @@ fn margins_always_carry_a_sign() {
     let mut c = tj_check();
     assert_eq!(signed_margin(&c), "+34.0 K");
     c.margin = -14.0;
-    c.margin_text = "14.0 W".into();
+    c.dim = Dim::POWER;
     assert_eq!(signed_margin(&c), "-14.0 W");
-    c.margin_text = "-14.0 W".into();
-    assert_eq!(signed_margin(&c), "-14.0 W");
+    c.margin = 0.0;
+    assert_eq!(signed_margin(&c), "+0 W");
 }
 
 #[test]

@@ -134,7 +134,8 @@ const CHECK_GAPS: &[&str] = &["", "  ", "   ", " ", " ", "   ", "   "];
 fn check_cells(c: &CheckRow) -> Vec<String> {
     let margin = signed_margin(c);
     let (n, u) = split_number_unit(&margin);
-    let mut detail = format!("worst {}, limit {}", c.worst_text, c.limit_text);
+    let (worst, limit) = c.side_texts();
+    let mut detail = format!("worst {worst}, limit {limit}");
     if c.conservative {
         detail.push_str(" (conservative)");
     }
