@@ -1571,6 +1571,39 @@ impl Runner<'_> {
             .collect()
     }
 
+    /// For the box pass of input `k`: the definitions it must evaluate, those that can reach
+    /// `k` and everything they, the checks and the shown values read. None (evaluate every
+    /// definition) when sweeps or pinned values take part.
+    fn needed_in_box(&self, k: usize) -> Option<Vec<bool>> {
+        if !self.extra.is_empty() || !self.pins.is_empty() {
+            return None;
+        }
+        let reach = self.reach.as_ref()?;
+        let model = self.model;
+        let mut need: Vec<bool> = reach.iter().map(|r| r.contains(&k)).collect();
+        let read = model
+            .checks
+            .iter()
+            .map(|c| c.reads)
+            .chain(model.shows.iter().map(|s| s.reads));
+        for names in read {
+            for n in expanded(&model.funcs, names).iter() {
+                if let Some(&d) = model.index.get(n.as_str()) {
+                    need[d] = true;
+                }
+            }
+        }
+        // Dependents come after what they read in `order`.
+        for &d in model.order.iter().rev() {
+            if need[d] {
+                for &e in &model.deps[d] {
+                    need[e] = true;
+                }
+            }
+        }
+        Some(need)
+    }
+
     fn fail(&mut self, id: StmtId, e: EvalError) {
         self.errors.entry(id).or_insert(e);
     }
@@ -1593,6 +1626,7 @@ impl Runner<'_> {
         if seed.is_some() && self.reach.is_none() {
             self.reach = Some(self.reachable_inputs());
         }
+        let needed = seed.and_then(|k| self.needed_in_box(k));
         for &d in &model.order {
             let def = &model.defs[d];
             // In the box pass that carries input k's derivative, a definition that cannot
@@ -1605,6 +1639,20 @@ impl Runner<'_> {
                         pass.put_scalar(id, flat(n));
                     }
                     values[d] = Some(Ok(without_derivative(v)));
+                    self.boxed[d] += 1;
+                    continue;
+                }
+            }
+            // A definition that reaches no input has its nominal value in every pass (with
+            // no derivative); one that nothing in this pass needs gets it as a stand-in, its
+            // derivative being zero all the same.
+            if let (Some(need), Some((v, recorded))) = (needed.as_ref(), &self.nominal_def[d]) {
+                let certain = self.reach.as_ref().is_some_and(|r| r[d].is_empty());
+                if certain || !need[d] {
+                    for &(id, n) in &self.recorded[recorded.clone()] {
+                        pass.put_scalar(id, n);
+                    }
+                    values[d] = Some(Ok(v.clone()));
                     self.boxed[d] += 1;
                     continue;
                 }

@@ -764,3 +764,22 @@ fn check_sides_show_enough_digits_to_differ_and_keep_their_own_kind() {
         ("50.0 °C".to_string(), "10.0 K".to_string())
     );
 }
+
+#[test]
+fn a_box_pass_evaluates_what_the_definitions_it_varies_read() {
+    // y = a·z with z = b − 2 V: z cannot reach a, but y's derivative in a is z itself, which
+    // spans −1 V … 1 V over the box; at z's nominal 0 V it would look independent of a.
+    // Worked by hand: a ∈ [0.9, 1.1] V and z ∈ [−1, 1] V, so y = a·z reaches ±1.1 V² at
+    // a = 1.1 V, z = ±1 V.
+    let r = run("given a = 1 V ± 10 %\ngiven b = 2 V ± 1 V\nz = b - 2 V\ny = a * z\n");
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let row = r.values.iter().find(|v| v.name == "y").expect("y");
+    let Shown::Number {
+        bounds: Some(b), ..
+    } = &row.shown
+    else {
+        panic!("y uncertain")
+    };
+    assert!(close(b.min, -1.1), "min {}", b.min);
+    assert!(close(b.max, 1.1), "max {}", b.max);
+}
