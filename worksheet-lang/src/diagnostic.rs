@@ -82,6 +82,8 @@ pub struct Diagnostic {
 }
 
 impl Diagnostic {
+    // Errors are the rare path: kept out of the evaluator's hot code.
+    #[cold]
     pub fn error(kind: DiagKind, span: Span, message: impl Into<String>) -> Self {
         Diagnostic {
             kind,
@@ -94,6 +96,8 @@ impl Diagnostic {
         }
     }
 
+    // Errors are the rare path: kept out of the evaluator's hot code.
+    #[cold]
     pub fn warning(kind: DiagKind, span: Span, message: impl Into<String>) -> Self {
         Diagnostic {
             severity: Severity::Warning,

@@ -53,6 +53,8 @@ pub struct Failed {
 }
 
 impl EvalError {
+    // Errors are the rare path: kept out of the evaluator's hot code.
+    #[cold]
     pub fn new(kind: DiagKind, span: &Span, message: impl Into<String>) -> Self {
         EvalError(Box::new(EvalErrorData {
             kind,
@@ -617,6 +619,7 @@ impl<'a> Evaluator<'a> {
         Err(self.unknown_name(n, span))
     }
 
+    #[cold]
     fn unknown_name(&self, n: &str, span: &Span) -> EvalError {
         let mut err = EvalError::new(DiagKind::UnknownName, span, format!("unknown name `{n}`"));
         if units::parse_unit(n).is_ok() {
@@ -1410,6 +1413,7 @@ pub(crate) fn is_relative_literal(e: &Expr) -> bool {
     }
 }
 
+#[cold]
 fn abs_error(span: &Span, what: &str) -> EvalError {
     EvalError::new(
         DiagKind::Temperature,
@@ -1419,6 +1423,7 @@ fn abs_error(span: &Span, what: &str) -> EvalError {
     .hint("absolute temperatures only take a difference added or subtracted; `kelvin(t)` gives the thermodynamic value in K for formulas")
 }
 
+#[cold]
 fn domain(span: &Span, what: &str, n: Num) -> EvalError {
     let text = if n.x.v.is_point() {
         format!("{what}: {}", units::format_si(n.x.value(), n.dim, n.abs, 3))

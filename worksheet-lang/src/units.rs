@@ -542,6 +542,7 @@ impl std::fmt::Display for UnitError {
 
 impl std::error::Error for UnitError {}
 
+#[cold]
 fn error(message: String, hint: Option<String>) -> UnitError {
     UnitError { message, hint }
 }

@@ -1604,6 +1604,7 @@ impl Runner<'_> {
         Some(need)
     }
 
+    #[cold]
     fn fail(&mut self, id: StmtId, e: EvalError) {
         self.errors.entry(id).or_insert(e);
     }

@@ -63,6 +63,7 @@ impl<'a> Args<'a> {
         self.vals.get(i).and_then(Option::as_ref)
     }
 
+    #[cold]
     fn missing(&self, i: usize) -> CallError {
         let name = self.name(i);
         CallError::new(format!("`{name}` is required")).hint(format!("add `{name}: …` to the call"))

@@ -79,6 +79,8 @@ pub struct CallErrorData {
 }
 
 impl CallError {
+    // Errors are the rare path: kept out of the evaluator's hot code.
+    #[cold]
     pub fn new(message: impl Into<String>) -> Self {
         CallError(Box::new(CallErrorData {
             message: message.into(),
