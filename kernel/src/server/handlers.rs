@@ -323,6 +323,12 @@ pub(crate) struct Shell {
     pub worksheet: Worksheet,
     pub execution_count: usize,
     pub history: History,
+    /// The last run's results, held until the next run has replied: the worksheet then drops
+    /// its own copy of the report they replace, and freeing them waits until the reply is
+    /// out, off the request's path.
+    retired: Option<worksheet_lang::Execution>,
+    /// The results the run before it held, to free once the current request has replied.
+    to_free: Option<worksheet_lang::Execution>,
 }
 
 impl Shell {
@@ -339,6 +345,8 @@ impl Shell {
             worksheet: Worksheet::new(),
             execution_count: 0,
             history: History::default(),
+            retired: None,
+            to_free: None,
         }
     }
 
@@ -411,6 +419,8 @@ impl Shell {
             .send_with_metadata(&shared, &req, &reply_type(&req.msg_type), &metadata, &reply)
             .await;
         shared.status(&req, false);
+        // The results the last run replaced are freed now that the reply is out.
+        self.to_free = None;
     }
 
     /// Takes every request waiting behind a failed cell; the executes among them will be
@@ -485,17 +495,20 @@ impl Shell {
                     && !ex.updated.iter().any(|x| x.report.cell == u.report.cell)
             });
             ex.updated.splice(0..0, gone);
-            (Outcome::of(&ex), Some(evaluation))
+            (Outcome::of(&ex), Some(evaluation), Some(ex))
         });
-        let (outcome, evaluation) = run.unwrap_or_else(|| {
+        let (outcome, evaluation, ex) = run.unwrap_or_else(|| {
             tracing::error!("the evaluator failed");
             let failed = Outcome::Failed {
                 ename: "InternalError".into(),
                 evalue: "the evaluator failed; please report this cell".into(),
                 traceback: Vec::new(),
             };
-            (failed, None)
+            (failed, None, None)
         });
+        if let Some(ex) = ex {
+            self.to_free = self.retired.replace(ex);
+        }
 
         let reply = match outcome {
             Outcome::Failed {
