@@ -1299,6 +1299,23 @@ fn cells_to_evaluate(
     Some(live)
 }
 
+/// Calls `each` with every definition the model's checks and shown values read by name
+/// (also inside the functions they call).
+fn read_by_checks_and_shows(model: &Model<'_>, mut each: impl FnMut(usize)) {
+    let reads = model
+        .checks
+        .iter()
+        .map(|c| c.reads)
+        .chain(model.shows.iter().map(|s| s.reads));
+    for names in reads {
+        for n in expanded(&model.funcs, names).iter() {
+            if let Some(&d) = model.index.get(n.as_str()) {
+                each(d);
+            }
+        }
+    }
+}
+
 /// Narrows the model to the cells in `live`: their statements and the definitions those
 /// read, in the same order.
 fn restrict(model: &mut Model<'_>, live: Vec<bool>) {
@@ -1310,19 +1327,7 @@ fn restrict(model: &mut Model<'_>, live: Vec<bool>) {
         }
     }
     // The model lists the checks and shows of the cells in `live` only.
-    let reads = model
-        .checks
-        .iter()
-        .map(|c| c.reads)
-        .chain(model.shows.iter().map(|s| s.reads));
-    for names in reads {
-        let names = expanded(&model.funcs, names);
-        stack.extend(
-            names
-                .iter()
-                .filter_map(|n| model.index.get(n.as_str()).copied()),
-        );
-    }
+    read_by_checks_and_shows(model, |d| stack.push(d));
     while let Some(d) = stack.pop() {
         if !needed[d] {
             needed[d] = true;
@@ -1581,18 +1586,7 @@ impl Runner<'_> {
         let reach = self.reach.as_ref()?;
         let model = self.model;
         let mut need: Vec<bool> = reach.iter().map(|r| r.contains(&k)).collect();
-        let read = model
-            .checks
-            .iter()
-            .map(|c| c.reads)
-            .chain(model.shows.iter().map(|s| s.reads));
-        for names in read {
-            for n in expanded(&model.funcs, names).iter() {
-                if let Some(&d) = model.index.get(n.as_str()) {
-                    need[d] = true;
-                }
-            }
-        }
+        read_by_checks_and_shows(model, |d| need[d] = true);
         // Dependents come after what they read in `order`.
         for &d in model.order.iter().rev() {
             if need[d] {
