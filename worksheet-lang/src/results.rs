@@ -138,8 +138,8 @@ pub struct ValueRow {
     pub unit: Option<crate::units::Unit>,
     /// Preferred display when no unit was declared (e.g. "%" for an efficiency), if any.
     pub preferred: Option<crate::units::Unit>,
-    /// A sizing result (θ, a resistor): its text leads with the worst-case minimum, the
-    /// side the design must meet.
+    /// A sizing result (`heat.sink_for`, `heat.max_power`, `heat.max_ambient`): its text
+    /// leads with the worst-case minimum, the side the design must meet.
     pub leads_with_minimum: bool,
 }
 

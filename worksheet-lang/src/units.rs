@@ -1199,24 +1199,18 @@ impl UnitCache {
     }
 }
 
-/// A unit the library names (a record field's display unit, such as `%`), parsed once per
-/// process: the library names a handful, and every evaluation shows them.
-pub fn library_unit(text: &'static str) -> Result<&'static Unit, UnitError> {
-    type Parsed = (&'static str, &'static Result<Unit, UnitError>);
-    static PARSED: std::sync::Mutex<Vec<Parsed>> = std::sync::Mutex::new(Vec::new());
-    let mut parsed = PARSED
-        .lock()
-        .unwrap_or_else(std::sync::PoisonError::into_inner);
-    let found = match parsed.iter().find(|(t, _)| *t == text) {
-        Some(&(_, unit)) => unit,
-        None => {
-            // Bounded by the library's own texts; kept for the life of the process.
-            let unit: &'static Result<Unit, UnitError> = Box::leak(Box::new(parse_unit(text)));
-            parsed.push((text, unit));
-            unit
-        }
-    };
-    found.as_ref().map_err(Clone::clone)
+/// The display units the library's records name (`efficiency` and `error` in %).
+const LIBRARY_UNITS: &[&str] = &["%"];
+
+/// A unit the library names (a record field's display unit), parsed once: every evaluation
+/// shows them. A text not in the table is parsed on the spot.
+pub fn library_unit(text: &str) -> Result<Unit, UnitError> {
+    static PARSED: std::sync::LazyLock<Vec<(&str, Result<Unit, UnitError>)>> =
+        std::sync::LazyLock::new(|| LIBRARY_UNITS.iter().map(|t| (*t, parse_unit(t))).collect());
+    match PARSED.iter().find(|(t, _)| *t == text) {
+        Some((_, unit)) => unit.clone(),
+        None => parse_unit(text),
+    }
 }
 
 /// Parses a unit as written without spaces: `V`, `mA`, `K/W`, `W/(m·K)`, `A·h`, `m^2`, `mm²`.

@@ -2126,7 +2126,7 @@ impl Analysed<'_, '_> {
         };
         match v {
             Value::Num(n) => {
-                let preferred = display.and_then(|t| units::library_unit(t).ok().cloned());
+                let preferred = display.and_then(|t| units::library_unit(t).ok());
                 let found = match leaves.as_mut() {
                     Some(ids) => ids.next().and_then(|&id| self.scalar_by_id(id)),
                     None => self.scalar(key),

@@ -605,12 +605,13 @@ proptest! {
 }
 
 #[test]
-fn a_library_unit_is_parsed_once_and_shared() {
+fn a_library_unit_is_the_unit_its_text_names() {
     // "%" is one hundredth of the pure number (common practice, no source).
-    let a = worksheet_lang::units::library_unit("%").expect("percent");
-    let b = worksheet_lang::units::library_unit("%").expect("percent");
-    assert!(std::ptr::eq(a, b));
-    assert_eq!(a.dim, Dim::NONE);
-    assert!((a.factor - 0.01).abs() < 1e-15);
+    let percent = worksheet_lang::units::library_unit("%").expect("percent");
+    assert_eq!(percent.dim, Dim::NONE);
+    assert!((percent.factor - 0.01).abs() < 1e-15);
+    assert_eq!(Ok(percent), parse_unit("%"));
+    // A text outside the library's table is parsed on the spot, errors included.
+    assert_eq!(worksheet_lang::units::library_unit("mW"), parse_unit("mW"));
     assert!(worksheet_lang::units::library_unit("nonsense-unit").is_err());
 }
