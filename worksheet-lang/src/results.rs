@@ -205,21 +205,26 @@ pub struct CheckRow {
     pub text: String,
     pub note: String,
     pub passed: bool,
-    /// The two sides at the deciding corner, in SI (`absolute` applies to both).
+    /// The two sides at the deciding corner, in SI (`worst_absolute` and `limit_absolute`
+    /// say which is an absolute temperature, in kelvin).
     pub worst: f64,
     pub limit: f64,
-    pub absolute: bool,
     /// Worst-case difference of the two sides, positive when passing, in SI of `dim`.
     pub margin: f64,
     pub dim: Dim,
     pub conservative: bool,
     /// Whether each side on its own is an absolute temperature (a side may be a
-    /// difference: `check tj >= 10 K`); `absolute` is set when both are.
+    /// difference: `check tj >= 10 K`).
     pub worst_absolute: bool,
     pub limit_absolute: bool,
 }
 
 impl CheckRow {
+    /// Both sides are absolute temperatures (the results data's `absolute`).
+    pub fn absolute(&self) -> bool {
+        self.worst_absolute && self.limit_absolute
+    }
+
     /// The two sides at the deciding corner as text, with enough digits that they differ
     /// in the direction of the verdict (unless the numbers are equal). Made when asked for.
     pub fn side_texts(&self) -> (String, String) {

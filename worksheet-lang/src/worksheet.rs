@@ -2481,7 +2481,6 @@ fn check_row(an: &mut Analysed<'_, '_>, c: &CheckEntry) -> Option<CheckRow> {
         passed,
         worst: worst.x.value(),
         limit: limit.x.value(),
-        absolute: worst.abs && limit.abs,
         margin,
         dim: diff.dim,
         conservative,

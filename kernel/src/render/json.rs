@@ -112,7 +112,7 @@ fn check(c: &CheckRow) -> Value {
         ("passed", Value::Bool(c.passed)),
         ("worst", num(c.worst)),
         ("limit", num(c.limit)),
-        ("absolute", Value::Bool(c.absolute)),
+        ("absolute", Value::Bool(c.absolute())),
         ("margin", num(c.margin)),
         ("unit", Value::String(unit_symbol(c.dim))),
     ])

@@ -193,7 +193,7 @@ fn is_hot(r: &CellReport) -> bool {
     // A temperature check whose limit is above 60 °C says the part is expected to run that
     // hot, even while its computed side is still cool.
     let hot_check =
-        |c: &CheckRow| c.absolute && c.dim == Dim::TEMPERATURE && (hot(c.worst) || hot(c.limit));
+        |c: &CheckRow| c.absolute() && c.dim == Dim::TEMPERATURE && (hot(c.worst) || hot(c.limit));
     r.values.iter().any(hot_row)
         || r.shown.iter().any(hot_row)
         || r.checks.iter().any(hot_check)

@@ -68,7 +68,6 @@ fn check_row(
         passed,
         worst,
         limit,
-        absolute,
         margin,
         dim,
         conservative: false,
