@@ -130,7 +130,9 @@ pub fn assert_report(r: &CellReport) {
             if let Some(b) = bounds {
                 finite(b.min, "the minimum", &row.name);
                 finite(b.max, "the maximum", &row.name);
-                finite(b.rss, "the RSS spread", &row.name);
+                if let Some(s) = &b.spread {
+                    finite(s.rss, "the RSS spread", &row.name);
+                }
                 assert!(
                     b.min <= b.max,
                     "{}: min {} > max {}",

@@ -10,6 +10,10 @@
 //!    asks for. Evaluating that corner gives the exact bound — and because the value is
 //!    re-evaluated as one function of the inputs, an input that appears twice never widens
 //!    it (`x - x` has zero spread, `x / x` is exactly one).
+//!    A value whose every partial derivative is enclosed by a single number is affine over
+//!    the box (its derivatives are constant there): its extremes follow from the nominal
+//!    value and those derivatives, with no corner evaluated (the mean-value form with point
+//!    derivatives, which is exact).
 //! 4. Where a partial derivative's sign is not proven, the inputs that are monotone are still
 //!    set to their deciding ends (a valid reduction), the others are split into sub-ranges
 //!    and evaluated in interval arithmetic; the union encloses the true range. Such a bound
@@ -38,7 +42,8 @@ pub struct ScalarBounds {
     /// The inputs the value depends on.
     pub depends: Inputs<usize>,
     /// Each dependency's one-at-a-time half swing |f(hi) − f(lo)| / 2, in the order of
-    /// `depends` (halved before subtracting, so two finite ends never overflow).
+    /// `depends` (halved before subtracting, so two finite ends never overflow); empty
+    /// unless the analysis was asked for the swings.
     pub half_swings: Inputs<f64>,
 }
 
@@ -171,11 +176,14 @@ fn sign(d: Interval) -> Sign {
     }
 }
 
-/// Analyses every scalar of the nominal pass. Returns None when interrupted.
+/// Analyses every scalar of the nominal pass; with `swings`, also each input's one-at-a-time
+/// swing of each value (for its shares of the spread, which take passes of their own).
+/// Returns None when interrupted.
 pub fn analyse<E: Evaluate>(
     inputs: &[InputInfo],
     nominal: &Pass,
     passes: &mut Passes<'_, E>,
+    swings: bool,
 ) -> Option<Vec<Option<ScalarBounds>>> {
     let n = inputs.len();
     let m = nominal.scalars.len();
@@ -233,7 +241,12 @@ pub fn analyse<E: Evaluate>(
         );
         let mut min_at: Inputs<Interval> = (0..n).map(|k| end(k, false)).collect();
         let mut max_at: Inputs<Interval> = (0..n).map(|k| end(k, true)).collect();
-        let (min, max, conservative) = if unknown.is_empty() {
+        let derivatives = &derivs[s * n..(s + 1) * n];
+        let (min, max, conservative) = if let Some((lo, hi)) =
+            affine_extremes(nom.x.value(), derivatives, inputs, &min_at, &max_at)
+        {
+            (lo.min(nom.x.value()), hi.max(nom.x.value()), false)
+        } else if unknown.is_empty() {
             // Scalars whose derivatives have the same signs share their corners.
             let found = corners.iter().find(|(sg, _, _)| sg[..] == signs[..]);
             let (lo, hi) = match found {
@@ -279,8 +292,8 @@ pub fn analyse<E: Evaluate>(
                 !(lo_exact && hi_exact),
             )
         };
-        let mut half_swings = Inputs::with_capacity(depends.len());
-        for &k in &depends {
+        let mut half_swings = Inputs::new();
+        for &k in depends.iter().filter(|_| swings) {
             let (lo, hi) = match ends[k] {
                 Some(found) => found,
                 None => {
@@ -315,6 +328,31 @@ pub fn analyse<E: Evaluate>(
         });
     }
     Some(out)
+}
+
+/// The extremes of a value over the box when every partial derivative is enclosed by a
+/// single number: the value is then affine there, f(x) = f(x₀) + Σ cₖ·(xₖ − x₀ₖ), and each
+/// extreme is at the corner (`min_at`, `max_at`) whose ends the derivatives' signs chose.
+/// None when some derivative is not a point (or the extremes would not be finite).
+fn affine_extremes(
+    nominal: f64,
+    derivatives: &[Option<Interval>],
+    inputs: &[InputInfo],
+    min_at: &[Interval],
+    max_at: &[Interval],
+) -> Option<(f64, f64)> {
+    let (mut lo, mut hi) = (nominal, nominal);
+    for (k, d) in derivatives.iter().enumerate() {
+        let d = (*d)?;
+        if d.lo != d.hi || !d.lo.is_finite() {
+            return None;
+        }
+        if d.lo != 0.0 {
+            lo += d.lo * (min_at[k].lo - inputs[k].nominal);
+            hi += d.lo * (max_at[k].lo - inputs[k].nominal);
+        }
+    }
+    (lo.is_finite() && hi.is_finite()).then_some((lo, hi))
 }
 
 /// A guaranteed bound by subdivision of the inputs whose effect is not monotone, with
@@ -427,4 +465,78 @@ fn sub_range(i: &InputInfo, j: usize, pieces: usize) -> Interval {
     let lo = i.lo + w * j as f64;
     let hi = if j + 1 == pieces { i.hi } else { lo + w };
     Interval::new(lo, hi)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::num::Dual;
+    use crate::units::Dim;
+
+    /// One input x over −1 … 1 (nominal 0) and the scalar 3·x + 2, which is affine; with
+    /// `curved`, also x·x + x, whose derivative 2·x + 1 spans −1 … 3 over the box.
+    struct Scalars {
+        curved: bool,
+        points: usize,
+    }
+
+    impl Evaluate for Scalars {
+        fn pass(&mut self, mode: Mode) -> Option<Pass> {
+            let x = match &mode {
+                Mode::Nominal => Dual::constant(0.0),
+                Mode::Box { seed } => Dual::input(Interval::new(-1.0, 1.0), *seed == Some(0)),
+                Mode::Assign { values, seed } => {
+                    self.points += 1;
+                    Dual::input(values[0], *seed == Some(0))
+                }
+            };
+            let mut p = Pass::new(mode, 2);
+            let c = Dual::constant;
+            p.put_scalar(0, Num::new(c(3.0) * x + c(2.0), Dim::NONE));
+            if self.curved {
+                p.put_scalar(1, Num::new(x * x + x, Dim::NONE));
+            }
+            Some(p)
+        }
+    }
+
+    fn analysed(curved: bool, swings: bool) -> (Vec<Option<ScalarBounds>>, usize) {
+        let inputs = [InputInfo {
+            key: "x".into(),
+            label: crate::eval::InputLabel::Given("x".into()),
+            nominal: 0.0,
+            lo: -1.0,
+            hi: 1.0,
+        }];
+        let mut eval = Scalars { curved, points: 0 };
+        let nominal = eval.pass(Mode::Nominal).expect("nominal");
+        let mut passes = Passes::new(&mut eval);
+        let bounds = analyse(&inputs, &nominal, &mut passes, swings).expect("analysed");
+        drop(passes);
+        (bounds, eval.points)
+    }
+
+    #[test]
+    fn an_affine_value_needs_no_evaluation_at_a_corner() {
+        let (bounds, points) = analysed(false, false);
+        let affine = bounds[0].as_ref().expect("bounds of 3·x + 2");
+        assert_eq!(
+            (affine.min, affine.max, affine.conservative),
+            (-1.0, 5.0, false)
+        );
+        assert_eq!(affine.min_at[0], Interval::point(-1.0));
+        assert_eq!(affine.max_at[0], Interval::point(1.0));
+        assert!(affine.half_swings.is_empty());
+        assert_eq!(points, 0);
+        // Its swing, when asked for, is |5 − (−1)| / 2 = 3, from the two ends.
+        let (bounds, points) = analysed(false, true);
+        let swings = bounds[0].as_ref().map(|b| b.half_swings.to_vec());
+        assert_eq!(swings, Some(vec![3.0]));
+        assert_eq!(points, 2);
+        // x² + x reaches −1/4 at x = −1/2 and 2 at x = 1: its sub-ranges are evaluated.
+        let (bounds, points) = analysed(true, false);
+        let curved = bounds[1].as_ref().expect("bounds of x² + x");
+        assert!(curved.min <= -0.25 && curved.max >= 2.0, "{curved:?}");
+        assert!(points > 0);
+    }
 }

@@ -6,7 +6,7 @@
 //! analysed; every later pass walks the same code and looks them up.
 
 use crate::ast::{Arg, BinOp, CodeKind, Expr, ExprKind, Span};
-use crate::builtins::{self, CallCtx, CallError, CallHost, WarnRule};
+use crate::builtins::{self, CallCtx, CallError, CallHost, PartLabel, WarnRule};
 use crate::diagnostic::{DiagKind, Diagnostic};
 use crate::num::{Dual, Interval};
 use crate::units::{self, Dim};
@@ -95,11 +95,33 @@ type R<T> = Result<T, EvalError>;
 #[derive(Debug, Clone, PartialEq)]
 pub struct InputInfo {
     pub key: String,
-    /// Who it belongs to, for shares and corner descriptions ("vin", "tolerance of R7").
-    pub label: String,
+    /// Who it belongs to, for shares and corner descriptions (`InputLabel::text`).
+    pub label: InputLabel,
     pub nominal: f64,
     pub lo: f64,
     pub hi: f64,
+}
+
+/// What an uncertain input is called in shares and corner descriptions, made into text
+/// only when one is shown.
+#[derive(Debug, Clone, PartialEq)]
+pub enum InputLabel {
+    /// A given's tolerance or range: "vin".
+    Given(String),
+    /// A tolerance written inside a definition: "tolerance in R7".
+    Tolerance(String),
+    /// A chosen part's tolerance, in its statement: "r = 390 Ω ± 5 % in R7".
+    Part(PartLabel, String),
+}
+
+impl InputLabel {
+    pub fn text(&self) -> String {
+        match self {
+            InputLabel::Given(name) => name.clone(),
+            InputLabel::Tolerance(name) => join(&["tolerance in ", name]),
+            InputLabel::Part(part, name) => format!("{} in {name}", part.text()),
+        }
+    }
 }
 
 /// A probed value whose worst case decides a warning.
@@ -334,14 +356,22 @@ impl<'a> Evaluator<'a> {
     }
 
     /// The value of an input site in this pass, registering it in the nominal pass.
-    fn input(&mut self, key: &str, label: String, nominal: f64, lo: f64, hi: f64) -> R<Dual> {
+    /// `label` is called where the input is registered, in the nominal pass.
+    fn input(
+        &mut self,
+        key: &str,
+        label: impl FnOnce() -> InputLabel,
+        nominal: f64,
+        lo: f64,
+        hi: f64,
+    ) -> R<Dual> {
         let id = match self.reg.input_index.get(key) {
             Some(&id) => id,
             None if self.nominal() => {
                 let id = self.reg.inputs.len();
                 self.reg.inputs.push(InputInfo {
                     key: key.to_string(),
-                    label,
+                    label: label(),
                     nominal,
                     lo,
                     hi,
@@ -394,11 +424,13 @@ impl<'a> Evaluator<'a> {
             &[SCALAR, self.stmt_key, "@", offset.format(span.start)],
         );
         let key = &skey[SCALAR.len()..];
-        // The label is read only where the site is registered, in the nominal pass.
-        let label = match (self.nominal(), self.given) {
-            (false, _) => String::new(),
-            (true, true) => self.stmt_label.to_string(),
-            (true, false) => join(&["tolerance in ", self.stmt_label]),
+        let (given, name) = (self.given, self.stmt_label);
+        let label = || {
+            if given {
+                InputLabel::Given(name.to_string())
+            } else {
+                InputLabel::Tolerance(name.to_string())
+            }
         };
         let e = self.input(key, label, nominal, lo, hi)?;
         let n = site_value(e)?;
@@ -1246,7 +1278,7 @@ impl CallHost for Host<'_, '_> {
     fn part_input(
         &mut self,
         key: &'static str,
-        label: String,
+        label: PartLabel,
         nominal: f64,
         lo: f64,
         hi: f64,
@@ -1266,11 +1298,8 @@ impl CallHost for Host<'_, '_> {
         let mut skey = std::mem::take(&mut self.ev.reg.site_buf);
         fill(&mut skey, &[SCALAR, &self.call_key, ":", key]);
         let k = &skey[SCALAR.len()..];
-        let label = if self.ev.nominal() {
-            format!("{label} in {}", self.ev.stmt_label)
-        } else {
-            label
-        };
+        let name = self.ev.stmt_label;
+        let label = || InputLabel::Part(label, name.to_string());
         let x = match self.ev.input(k, label, nominal, lo, hi) {
             Ok(x) => {
                 let nominal_pass = self.ev.nominal();

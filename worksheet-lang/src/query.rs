@@ -217,17 +217,19 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
                         }
                     ));
                 }
-                for s in &b.shares {
+                // Worked out now: a run leaves the spread out.
+                let spread = ws.spread(&r.name).filter(|s| !s.shares.is_empty());
+                for s in spread.iter().flat_map(|s| &s.shares) {
                     t.push_str(&format!(
                         "  {:>5.1} % of the spread from {}\n",
                         s.fraction * 100.0,
                         s.input
                     ));
                 }
-                if !b.shares.is_empty() {
+                if let Some(s) = &spread {
                     t.push_str(&format!(
                         "root-sum-square spread: ± {}\n",
-                        spread_text(b.rss, value, r.unit.as_ref().or(r.preferred.as_ref()))
+                        spread_text(s.rss, value, r.unit.as_ref().or(r.preferred.as_ref()))
                     ));
                 }
             }

@@ -103,7 +103,17 @@ pub struct Bounds {
     pub max: f64,
     /// Guaranteed to enclose, but not proven to be the exact extremes.
     pub conservative: bool,
-    /// Each input's share of the spread (fractions summing to 1 when there is a spread).
+    /// What each input contributes. It takes evaluations of its own (each input at its two
+    /// ends, the others nominal), so a run leaves it out (None); `Worksheet::spread` works
+    /// it out for one value when asked.
+    pub spread: Option<Spread>,
+}
+
+/// How the inputs share a value's spread.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Spread {
+    /// Each input's share of the spread (fractions summing to 1 when there is a spread),
+    /// largest first.
     pub shares: Vec<Share>,
     /// Root-sum-square half-spread, in SI.
     pub rss: f64,

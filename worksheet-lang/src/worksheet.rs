@@ -13,7 +13,7 @@ use crate::eval::{self, EvalError, Evaluator, Failed, Function, Mode, Names, Pas
 use crate::num::Interval;
 use crate::parser;
 use crate::results::{
-    Bounds, CellReport, Change, CheckRow, Share, Shown, ValueRow, WarningRow, SIG,
+    Bounds, CellReport, Change, CheckRow, Share, Shown, Spread, ValueRow, WarningRow, SIG,
 };
 use crate::units::{self, Unit};
 use crate::value::{Num, Value};
@@ -200,11 +200,16 @@ pub struct Worksheet {
 #[derive(Debug, Clone)]
 struct Options {
     fast_sweeps: bool,
+    /// Work out how the inputs share each value's spread (`Worksheet::spread`).
+    spreads: bool,
 }
 
 impl Default for Options {
     fn default() -> Self {
-        Options { fast_sweeps: true }
+        Options {
+            fast_sweeps: true,
+            spreads: false,
+        }
     }
 }
 
@@ -584,6 +589,48 @@ impl Worksheet {
 
     pub fn inspect(&self, source: &str, cursor: usize) -> Option<Inspection> {
         crate::query::inspect(self, source, cursor)
+    }
+
+    /// How the uncertain inputs share the spread of the value row `name` (`vin`,
+    /// `u1.loss`): each input's one-at-a-time swing and the root-sum-square spread. A run
+    /// leaves this out, as it takes evaluations of its own; this evaluates the worksheet as
+    /// it stands once more, with them. None when the name has no uncertain value (or the
+    /// worksheet no longer evaluates).
+    pub fn spread(&self, name: &str) -> Option<Spread> {
+        // The cell that owns the name (the last that defines it) and what it reads are
+        // evaluated, without sweeps.
+        let defined = name.split('.').next().unwrap_or(name);
+        let run = self
+            .cells
+            .iter()
+            .rposition(|c| defines(&c.program).any(|n| n == defined))?;
+        let options = Options {
+            spreads: true,
+            ..self.options.clone()
+        };
+        let focus = Focus {
+            run,
+            changed: Vec::new(),
+        };
+        let reports = evaluate(
+            &self.cells,
+            &self.overrides,
+            &options,
+            &Interrupt::new(),
+            Some(&focus),
+        )?;
+        let row = reports
+            .get(run)?
+            .as_ref()?
+            .values
+            .iter()
+            .find(|v| v.name == name)?;
+        match &row.shown {
+            Shown::Number {
+                bounds: Some(b), ..
+            } => b.spread.clone(),
+            _ => None,
+        }
     }
 
     /// The definition of `name` as written, its cell, and its value row, if it is defined.
@@ -2022,6 +2069,8 @@ struct Analysed<'r, 'm> {
     nominal: Pass,
     bounds: Vec<Option<ScalarBounds>>,
     passes: Passes<'r, Runner<'m>>,
+    /// The analysis worked out the swings, and the rows carry each value's spread.
+    spreads: bool,
 }
 
 impl Analysed<'_, '_> {
@@ -2041,6 +2090,15 @@ impl Analysed<'_, '_> {
     }
 
     fn bounds_of(&self, b: &ScalarBounds) -> Bounds {
+        Bounds {
+            min: b.min,
+            max: b.max,
+            conservative: b.conservative,
+            spread: self.spreads.then(|| self.spread_of(b)),
+        }
+    }
+
+    fn spread_of(&self, b: &ScalarBounds) -> Spread {
         // Scaled by the largest swing, so sums and squares of swings near the largest
         // finite number stay finite.
         let largest = b.half_swings.iter().copied().fold(0.0, f64::max);
@@ -2048,21 +2106,18 @@ impl Analysed<'_, '_> {
         let total: f64 = b.half_swings.iter().map(|&h| scaled(h)).sum();
         let mut shares: Vec<Share> = Vec::new();
         for (k, &h) in b.depends.iter().zip(&b.half_swings) {
-            let label = &self.passes.eval.reg.inputs[*k].label;
+            let label = self.passes.eval.reg.inputs[*k].label.text();
             let f = if total > 0.0 { scaled(h) / total } else { 0.0 };
-            match shares.iter_mut().find(|x| &x.input == label) {
+            match shares.iter_mut().find(|x| x.input == label) {
                 Some(x) => x.fraction += f,
                 None => shares.push(Share {
-                    input: label.clone(),
+                    input: label,
                     fraction: f,
                 }),
             }
         }
         shares.sort_by(|a, b| b.fraction.total_cmp(&a.fraction));
-        Bounds {
-            min: b.min,
-            max: b.max,
-            conservative: b.conservative,
+        Spread {
             shares,
             // √Σ(swing/2)²; an RSS beyond the largest finite number is shown as that number.
             rss: (largest
@@ -2085,7 +2140,7 @@ impl Analysed<'_, '_> {
             if sid == usize::MAX {
                 continue;
             }
-            let label = self.passes.eval.reg.inputs[k].label.clone();
+            let label = self.passes.eval.reg.inputs[k].label.text();
             if let Some(v) = self.passes.at(at, sid) {
                 let t = format!(
                     "{label} = {}",
@@ -2246,11 +2301,12 @@ fn evaluate(
     let nominal_values = std::mem::take(&mut runner.nominal_values);
     let shown = std::mem::take(&mut runner.shown);
     let mut passes = Passes::new(&mut runner);
-    let bounds = analysis::analyse(&inputs, &nominal, &mut passes)?;
+    let bounds = analysis::analyse(&inputs, &nominal, &mut passes, options.spreads)?;
     let mut an = Analysed {
         nominal,
         bounds,
         passes,
+        spreads: options.spreads,
     };
     // None for the cells not evaluated (their reports stand).
     let mut reports: Vec<Option<CellReport>> = cells
@@ -2334,6 +2390,8 @@ fn evaluate(
                         );
                     }
                 }
+                // Spreads are asked for the values alone.
+                Item::Sweep(_) if options.spreads => {}
                 Item::Sweep(i) => {
                     let s = &model.sweeps[*i];
                     match crate::sweep::run(
@@ -2652,7 +2710,7 @@ impl SweepHost<'_> {
         }
         let inputs = reg.inputs.clone();
         let mut passes = Passes::new(&mut r);
-        let bounds = analysis::analyse(&inputs, &nominal, &mut passes)?;
+        let bounds = analysis::analyse(&inputs, &nominal, &mut passes, false)?;
         let values = (0..exprs.len())
             .map(|j| {
                 let id = reg.find_scalar(&format!("sw:{j}"))?;

@@ -4,7 +4,9 @@
 
 use proptest::prelude::*;
 use std::collections::HashMap;
-use worksheet_lang::builtins::{self, series, CallCtx, CallError, CallHost, WarnRule, WarnWhen};
+use worksheet_lang::builtins::{
+    self, series, CallCtx, CallError, CallHost, PartLabel, WarnRule, WarnWhen,
+};
 use worksheet_lang::num::{Dual, Interval};
 use worksheet_lang::units::Dim;
 use worksheet_lang::value::{Num, Value};
@@ -75,14 +77,15 @@ impl CallHost for Host {
     fn part_input(
         &mut self,
         key: &str,
-        label: String,
+        label: PartLabel,
         nominal: f64,
         lo: f64,
         hi: f64,
         dim: Dim,
     ) -> Dual {
         let _ = dim;
-        self.parts.insert(key.to_string(), (label, nominal, lo, hi));
+        self.parts
+            .insert(key.to_string(), (label.text(), nominal, lo, hi));
         match self.pass {
             Pass::Nominal => Dual::constant(nominal),
             Pass::Box => Dual::input(Interval::new(lo, hi), self.seed.as_deref() == Some(key)),

@@ -86,7 +86,8 @@ fn the_reference_rail_without_built_ins() {
                loss = (vin - 5 V) * iload + vin * 4 mA\n\
                θ = 6 K/W + 0.4 K/W + (22 K/W || 60 K/W)\n\
                tj [°C] = ta + loss * θ\ncheck tj <= 125 °C\n";
-    let r = run(src);
+    let mut ws = Worksheet::new();
+    let r = ws.execute(Some("c1"), src, &Interrupt::new()).report;
     assert!(!r.has_errors(), "{:?}", r.diagnostics);
     let theta = 6.4 + 22.0 * 60.0 / 82.0;
     assert!(close(si(&r, "tj"), 323.15 + 1.308 * theta));
@@ -108,10 +109,25 @@ fn the_reference_rail_without_built_ins() {
     assert!(close(c.worst, 323.15 + 1.824 * theta));
     assert!(close(c.limit, 398.15));
     assert_eq!(c.margin_text(), "+34.0 K");
-    // Shares: the load's swing is 0.072 A·8.2 V-ish; both inputs contribute.
-    assert_eq!(b.shares.len(), 2);
-    let total: f64 = b.shares.iter().map(|s| s.fraction).sum();
-    assert!(close(total, 1.0));
+    // A run leaves the shares of the spread out; they are worked out when asked.
+    assert!(b.spread.is_none());
+    // One at a time, the others nominal: vin's swing of the loss is
+    // (8.2 − 5.8) V · 180 mA + 2.4 V · 4 mA = 0.4416 W, iload's 7 V · 72 mA = 0.504 W.
+    let s = ws.spread("tj").expect("tj has a spread");
+    let total = 0.4416 + 0.504;
+    let share = |input: &str| {
+        s.shares
+            .iter()
+            .find(|x| x.input == input)
+            .map(|x| x.fraction)
+    };
+    assert_eq!(s.shares.len(), 2);
+    assert!(close(share("iload").expect("iload"), 0.504 / total));
+    assert!(close(share("vin").expect("vin"), 0.4416 / total));
+    // Largest first.
+    assert_eq!(s.shares[0].input, "iload");
+    let rss = theta * ((0.4416f64 / 2.0).powi(2) + (0.504f64 / 2.0).powi(2)).sqrt();
+    assert!(close(s.rss, rss), "{} against {rss}", s.rss);
 }
 
 #[test]
@@ -159,6 +175,88 @@ fn inspection_shows_the_shares_and_the_root_sum_square_spread() {
     let r = ws.execute(Some("c2"), "k = 3 V", &Interrupt::new()).report;
     assert!(!r.has_errors());
     assert!(!at(&ws, "k").contains("spread"));
+}
+
+/// Bounds worked by hand for values that are affine in their inputs (their extremes come
+/// from the nominal value and the constant derivatives) beside one that is not.
+/// a = 10 V ± 10 % (9 … 11 V), b = 2 V … 4 V (nominal 3 V).
+/// y = 3·a − 2·b + 1 V: nominal 25 V, least 3·9 − 2·4 + 1 = 20 V, most 3·11 − 2·2 + 1 = 30 V.
+/// z = (20 V − a) / 2: nominal 5 V, 4.5 V … 5.5 V. w = a·b (not affine): 18 V² … 44 V².
+#[test]
+fn affine_values_take_their_extremes_at_the_corners_their_slopes_choose() {
+    let src = "given a = 10 V ± 10 %\ngiven b = 2 V .. 4 V\n\
+               y = 3 * a - 2 * b + 1 V\nz = (20 V - a) / 2\nw = a * b\n\
+               check y <= 31 V\n";
+    let r = run(src);
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let bounds = |name: &str| {
+        let row = r.values.iter().find(|v| v.name == name).expect(name);
+        match &row.shown {
+            Shown::Number {
+                bounds: Some(b), ..
+            } => (b.min, b.max, b.conservative),
+            other => panic!("{name}: {other:?}"),
+        }
+    };
+    let (lo, hi, conservative) = bounds("y");
+    assert!(close(lo, 20.0) && close(hi, 30.0), "y: {lo} … {hi}");
+    assert!(!conservative);
+    assert!(close(si(&r, "y"), 25.0));
+    let (lo, hi, _) = bounds("z");
+    assert!(close(lo, 4.5) && close(hi, 5.5), "z: {lo} … {hi}");
+    let (lo, hi, conservative) = bounds("w");
+    assert!(close(lo, 18.0) && close(hi, 44.0), "w: {lo} … {hi}");
+    assert!(!conservative);
+    // The check's margin and its worst side agree at the deciding corner (a = 11 V, b = 2 V).
+    let c = &r.checks[0];
+    assert!(c.passed);
+    assert!(close(c.margin, 1.0), "{}", c.margin);
+    assert!(close(c.worst, 30.0), "{}", c.worst);
+}
+
+/// A chosen part's tolerance is named by the part in the shares of a spread: R picks
+/// 1.00 kΩ from E24 (± 5 %), so i = 5 V / R owes its whole spread to it; the LED resistor
+/// for 5 V − 2.1 V at 8 mA is 390 Ω (362.5 Ω rounded up on E24).
+#[test]
+fn a_part_is_named_by_its_value_and_tolerance_in_the_shares() {
+    let mut ws = Worksheet::new();
+    let src = "R = res.pick(1 kΩ)\ni = 5 V / R\n\
+               L = res.led(supply: 5 V, vf: 2.1 V, current: 8 mA)\n";
+    let r = ws.execute(Some("c1"), src, &Interrupt::new()).report;
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let only = |name: &str| {
+        let s = ws.spread(name).expect(name);
+        assert_eq!(s.shares.len(), 1, "{name}: {:?}", s.shares);
+        assert!(close(s.shares[0].fraction, 1.0));
+        s.shares[0].input.clone()
+    };
+    assert_eq!(only("i"), "E24 1.00 kΩ ± 5.00 % in R");
+    assert_eq!(only("L.current"), "r = 390 Ω ± 5.00 % in L");
+}
+
+/// The spread of a value in one cell that reads another's given, with a sweep beside it:
+/// p = vin · 2 A owes all of its spread to vin; a name without uncertainty, or unknown, has
+/// none.
+#[test]
+fn a_spread_is_worked_out_for_a_value_read_across_cells() {
+    let mut ws = Worksheet::new();
+    let run = |ws: &mut Worksheet, key: &str, src: &str| {
+        let r = ws.execute(Some(key), src, &Interrupt::new()).report;
+        assert!(!r.has_errors(), "{key}: {:?}", r.diagnostics);
+    };
+    run(&mut ws, "c1", "given vin = 10.8 V .. 13.2 V\nk = 3 V\n");
+    run(
+        &mut ws,
+        "c2",
+        "p = vin * 2 A\nsweep vin over 10 V .. 14 V steps 5: p\n",
+    );
+    let s = ws.spread("p").expect("p");
+    assert_eq!(s.shares.len(), 1);
+    assert_eq!(s.shares[0].input, "vin");
+    // Half of the swing 2 A · 2.4 V.
+    assert!(close(s.rss, 2.4), "{}", s.rss);
+    assert!(ws.spread("k").is_none());
+    assert!(ws.spread("nothing").is_none());
 }
 
 #[test]
@@ -721,28 +819,24 @@ fn a_choice_reads_exact_arguments_as_points_and_uncertain_ones_as_ranges() {
 /// spread of `1e-308 ± 1e308` (ends ±1e308, a swing of 2e308) are numbers.
 #[test]
 fn spreads_near_the_largest_number_stay_finite() {
-    let r = run("x = 1e-308 ± 1e308\ny = x / 2");
+    let mut ws = Worksheet::new();
+    let r = ws
+        .execute(
+            Some("c1"),
+            "x = 1e-308 ± 1e308\ny = x / 2",
+            &Interrupt::new(),
+        )
+        .report;
     assert!(r.diagnostics.is_empty(), "{:?}", r.diagnostics);
     for name in ["x", "y"] {
-        let row = r.values.iter().find(|v| v.name == name).expect("row");
-        let Shown::Number {
-            bounds: Some(b), ..
-        } = &row.shown
-        else {
-            panic!("{name} has no bounds: {:?}", row.shown);
-        };
-        assert!(b.rss.is_finite(), "{name}: rss {}", b.rss);
-        assert!(b.shares.iter().all(|s| s.fraction.is_finite()), "{name}");
+        let s = ws.spread(name).expect("a spread");
+        assert!(s.rss.is_finite(), "{name}: rss {}", s.rss);
+        assert!(s.shares.iter().all(|s| s.fraction.is_finite()), "{name}");
     }
     // x: half its swing is 1e308, the RSS of one input.
-    let x = r.values.iter().find(|v| v.name == "x").expect("x");
-    if let Shown::Number {
-        bounds: Some(b), ..
-    } = &x.shown
-    {
-        assert!(close(b.rss, 1e308), "{}", b.rss);
-        assert!(close(b.shares[0].fraction, 1.0));
-    }
+    let s = ws.spread("x").expect("x");
+    assert!(close(s.rss, 1e308), "{}", s.rss);
+    assert!(close(s.shares[0].fraction, 1.0));
 }
 
 #[test]

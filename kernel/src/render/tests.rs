@@ -33,8 +33,7 @@ fn with_bounds(mut v: ValueRow, min: f64, max: f64, conservative: bool, range: &
             min,
             max,
             conservative,
-            shares: Vec::new(),
-            rss: 0.0,
+            spread: None,
         });
     }
     assert_eq!(

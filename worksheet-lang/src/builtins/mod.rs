@@ -136,6 +136,32 @@ pub struct WarnRule {
     pub label: std::borrow::Cow<'static, str>,
 }
 
+/// What a chosen part is called where its tolerance is listed: `name`, `between`, its
+/// value and its tolerance ("E24" " " 390 Ω ± 5 %, "r" " = " 390 Ω ± 5 %). Kept as numbers
+/// and made into text only when shown.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PartLabel {
+    pub name: &'static str,
+    pub between: &'static str,
+    /// SI, in `dim`.
+    pub value: f64,
+    pub dim: Dim,
+    /// A fraction (0.05 for 5 %).
+    pub tolerance: f64,
+}
+
+impl PartLabel {
+    pub fn text(&self) -> String {
+        format!(
+            "{}{}{} ± {} %",
+            self.name,
+            self.between,
+            args::show(self.value, self.dim),
+            crate::units::format_number(self.tolerance * 100.0, 3)
+        )
+    }
+}
+
 /// What a built-in may ask of the evaluator during a call.
 pub trait CallHost {
     fn is_nominal(&self) -> bool;
@@ -147,7 +173,7 @@ pub trait CallHost {
     fn part_input(
         &mut self,
         key: &'static str,
-        label: String,
+        label: PartLabel,
         nominal: f64,
         lo: f64,
         hi: f64,
@@ -190,7 +216,7 @@ impl CallCtx<'_> {
     pub fn part_input(
         &mut self,
         key: &'static str,
-        label: String,
+        label: PartLabel,
         nominal: f64,
         lo: f64,
         hi: f64,

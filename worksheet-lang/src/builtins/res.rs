@@ -11,7 +11,7 @@ use super::quantity::{
     Temperature, Voltage,
 };
 use super::series::{Rounding, Series, ALL as SERIES};
-use super::{Builtin, CallCtx, CallError, Doc, FieldDoc, Param, WarnRule, WarnWhen};
+use super::{Builtin, CallCtx, CallError, Doc, FieldDoc, Param, PartLabel, WarnRule, WarnWhen};
 use crate::num::Dual;
 use crate::units::{format_number, Dim};
 use crate::value::{Num, Value};
@@ -163,11 +163,12 @@ fn pick(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallErro
         })
     })?;
     let tol = series.tolerance;
-    // The label is only read in the nominal pass, where inputs are registered.
-    let label = if ctx.is_nominal() {
-        format!("{} {} ± {}", series.name, show(v, n.dim), percent(tol))
-    } else {
-        String::new()
+    let label = PartLabel {
+        name: series.name,
+        between: " ",
+        value: v,
+        dim: n.dim,
+        tolerance: tol,
     };
     let part = ctx.part_input("value", label, v, v * (1.0 - tol), v * (1.0 + tol), n.dim);
     Ok(Value::Num(Num::new(part, n.dim)))
@@ -307,10 +308,12 @@ fn led(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError
         })
     })?;
 
-    let label = if ctx.is_nominal() {
-        format!("r = {} ± {}", show(r_nom, Dim::RESISTANCE), percent(tol))
-    } else {
-        String::new()
+    let label = PartLabel {
+        name: "r",
+        between: " = ",
+        value: r_nom,
+        dim: Dim::RESISTANCE,
+        tolerance: tol,
     };
     let r: Resistance = from_dual(ctx.part_input(
         "r",
@@ -587,10 +590,12 @@ fn divider(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallE
     let top_nom = ctx.choose("r_top", || search().map(|p| p.0))?;
     let bottom_nom = ctx.choose("r_bottom", || search().map(|p| p.1))?;
     let part = |ctx: &mut CallCtx<'_>, key: &'static str, v: f64| -> Resistance {
-        let label = if ctx.is_nominal() {
-            format!("{key} = {} ± {}", show(v, Dim::RESISTANCE), percent(tol))
-        } else {
-            String::new()
+        let label = PartLabel {
+            name: key,
+            between: " = ",
+            value: v,
+            dim: Dim::RESISTANCE,
+            tolerance: tol,
         };
         from_dual(ctx.part_input(
             key,
