@@ -53,6 +53,12 @@ pub type Inputs<T> = smallvec::SmallVec<[T; 4]>;
 /// Evaluates the worksheet under an assignment; returns the scalars of that pass.
 pub trait Evaluate {
     fn pass(&mut self, mode: Mode) -> Option<Pass>;
+    /// Evaluates under `mode` at least what the scalars `need` are made from. A pass that
+    /// left statements out is marked `partial`; the default evaluates everything.
+    fn pass_needing(&mut self, mode: Mode, need: &[usize]) -> Option<Pass> {
+        let _ = need;
+        self.pass(mode)
+    }
 }
 
 /// Below this many memoised passes a lookup compares assignments in place; from there on
@@ -92,20 +98,34 @@ impl<'e, E: Evaluate> Passes<'e, E> {
     /// The value of scalar `s` under `a`, with the derivative of input `seed` carried.
     pub fn at_seeded(&mut self, a: &[Interval], seed: Option<usize>, s: usize) -> Option<Num> {
         let i = self.pass_at(a, seed)?;
-        self.scalar_of(i, s)
+        self.scalar_in(i, s).flatten()
     }
 
-    /// Scalar `s` of the memoised pass `i` (from `pass_at`).
-    fn scalar_of(&self, i: usize, s: usize) -> Option<Num> {
-        self.memo[i].2.scalars.get(s).copied().flatten()
+    /// Scalar `s` of the memoised pass `i` (from `pass_at`), which is evaluated again in
+    /// full first if it was a partial pass that left `s` out. The outer None: interrupted.
+    fn scalar_in(&mut self, i: usize, s: usize) -> Option<Option<Num>> {
+        let (at, seed, p) = &self.memo[i];
+        if p.partial && p.scalars.get(s).copied().flatten().is_none() {
+            let mode = Mode::Assign {
+                values: at.clone(),
+                seed: *seed,
+            };
+            self.count += 1;
+            let Some(full) = self.eval.pass(mode) else {
+                self.interrupted = true;
+                return None;
+            };
+            self.memo[i].2 = full;
+        }
+        Some(self.memo[i].2.scalars.get(s).copied().flatten())
     }
 
-    /// The memoised pass under `a` (run if new), by its index; None when interrupted.
-    fn pass_at(&mut self, a: &[Interval], seed: Option<usize>) -> Option<usize> {
+    /// The memoised pass under `a`, if there is one.
+    fn find(&mut self, a: &[Interval], seed: Option<usize>) -> Option<usize> {
         let same = |x: &Interval, y: &Interval| {
             x.lo.to_bits() == y.lo.to_bits() && x.hi.to_bits() == y.hi.to_bits()
         };
-        let found = if self.memo.len() < SCAN_LIMIT {
+        if self.memo.len() < SCAN_LIMIT {
             self.memo.iter().position(|(at, sd, _)| {
                 *sd == seed && at.len() == a.len() && at.iter().zip(a).all(|(x, y)| same(x, y))
             })
@@ -115,18 +135,50 @@ impl<'e, E: Evaluate> Passes<'e, E> {
                 .extend(a.iter().flat_map(|i| [i.lo.to_bits(), i.hi.to_bits()]));
             self.key.push(seed.map_or(u64::MAX, |x| x as u64));
             self.index.get(&self.key).copied()
-        };
-        if found.is_some() {
-            return found;
         }
+    }
+
+    /// The memoised pass under `a` (run if new), by its index; None when interrupted.
+    fn pass_at(&mut self, a: &[Interval], seed: Option<usize>) -> Option<usize> {
+        if let Some(i) = self.find(a, seed) {
+            return Some(i);
+        }
+        self.run(a, seed, None)
+    }
+
+    /// The memoised pass at the point `a`, run if new with only what the scalars `need`
+    /// are made from; by its index, None when interrupted. Its other scalars are made when
+    /// asked for (`scalar_in`).
+    fn pass_needing(&mut self, a: &[Interval], need: &[usize]) -> Option<usize> {
+        if let Some(i) = self.find(a, None) {
+            for &s in need {
+                self.scalar_in(i, s)?;
+            }
+            return Some(i);
+        }
+        self.run(a, None, Some(need))
+    }
+
+    /// Runs a pass under `a` and memoises it.
+    fn run(
+        &mut self,
+        a: &[Interval],
+        seed: Option<usize>,
+        need: Option<&[usize]>,
+    ) -> Option<usize> {
         if self.interrupted {
             return None;
         }
         self.count += 1;
-        let Some(p) = self.eval.pass(Mode::Assign {
+        let mode = Mode::Assign {
             values: a.to_vec(),
             seed,
-        }) else {
+        };
+        let pass = match need {
+            Some(need) => self.eval.pass_needing(mode, need),
+            None => self.eval.pass(mode),
+        };
+        let Some(p) = pass else {
             self.interrupted = true;
             return None;
         };
@@ -176,9 +228,35 @@ fn sign(d: Interval) -> Sign {
     }
 }
 
+/// How one scalar's bounds are found, settled from its derivatives' signs.
+enum Method {
+    /// Affine over the box: the bounds themselves.
+    Affine(f64, f64),
+    /// Monotone in every input: the values at two corners, by the index of their
+    /// assignment in the list of corners to evaluate.
+    Corners(usize, usize),
+    /// Not monotone in some inputs: subdivided.
+    Enclose,
+}
+
+/// The end of input `k` where a value with derivative sign `sign` is least (or, with
+/// `want_max`, greatest); its nominal value where that is not known.
+fn end(i: &InputInfo, sign: Sign, want_max: bool) -> Interval {
+    match (sign, want_max) {
+        (Sign::Up, false) | (Sign::Down, true) => Interval::point(i.lo),
+        (Sign::Up, true) | (Sign::Down, false) => Interval::point(i.hi),
+        _ => Interval::point(i.nominal),
+    }
+}
+
 /// Analyses every scalar of the nominal pass; with `swings`, also each input's one-at-a-time
 /// swing of each value (for its shares of the spread, which take passes of their own).
 /// Returns None when interrupted.
+///
+/// The corners that monotone scalars ask for are gathered first, each with the scalars
+/// that asked for it, so that a corner pass evaluates only the statements those scalars
+/// are made from (`Evaluate::pass_needing`): at the corner where a regulator's efficiency
+/// is lowest, the junction temperature that reads its loss is not evaluated.
 pub fn analyse<E: Evaluate>(
     inputs: &[InputInfo],
     nominal: &Pass,
@@ -199,98 +277,134 @@ pub fn analyse<E: Evaluate>(
             d[k] = p.scalars.get(s).copied().flatten().map(|x| x.x.d);
         }
     }
-    let nominal_point: Vec<Interval> = inputs.iter().map(|i| Interval::point(i.nominal)).collect();
-    // Scratch rows, reused from scalar to scalar.
-    let mut signs: Vec<Sign> = Vec::with_capacity(n);
-    let mut unknown: Vec<usize> = Vec::with_capacity(n);
-    let mut one_at_a_time = nominal_point.clone();
-    // The passes with one input at an end and the others nominal, the same for every
-    // scalar: found once per input (memo indices, low end and high end).
-    let mut ends: Vec<Option<(usize, usize)>> = vec![None; n];
-    // The corner passes of monotone scalars by the signs of their derivatives (memo
-    // indices of the minimum's and the maximum's corner).
-    let mut corners: Vec<(Inputs<Sign>, usize, usize)> = Vec::new();
+    // Each scalar's signs, row s at s·n.
+    let signs: Vec<Sign> = derivs
+        .iter()
+        .map(|d| match d {
+            Some(d) => sign(*d),
+            // Failed in a box pass (its error is reported elsewhere): treat as unknown.
+            None => Sign::Unknown,
+        })
+        .collect();
+    // The corners to evaluate (the assignment of corner c at c·n), each with the scalars
+    // that need it.
+    let mut corner_at: Vec<Interval> = Vec::with_capacity(8 * n);
+    let mut corner_need: Vec<Vec<usize>> = Vec::with_capacity(8);
+    // Scalars whose derivatives have the same signs share their corners: (a scalar with
+    // those signs, its two corners).
+    let mut by_signs: Vec<(usize, usize, usize)> = Vec::with_capacity(4);
+    let mut corners = |sg: &[Sign], s: usize| -> (usize, usize) {
+        let found = by_signs
+            .iter()
+            .find(|(t, _, _)| signs[t * n..(t + 1) * n] == *sg);
+        let (lo, hi) = match found {
+            Some(&(_, lo, hi)) => (lo, hi),
+            None => {
+                let mut add = |want_max: bool| {
+                    let same = |x: Interval, y: Interval| {
+                        x.lo.to_bits() == y.lo.to_bits() && x.hi.to_bits() == y.hi.to_bits()
+                    };
+                    let at = |k: usize| end(&inputs[k], sg[k], want_max);
+                    match corner_at
+                        .chunks_exact(n)
+                        .position(|c| (0..n).all(|k| same(c[k], at(k))))
+                    {
+                        Some(c) => c,
+                        None => {
+                            corner_at.extend((0..n).map(at));
+                            corner_need.push(Vec::with_capacity(8));
+                            corner_need.len() - 1
+                        }
+                    }
+                };
+                let (lo, hi) = (add(false), add(true));
+                by_signs.push((s, lo, hi));
+                (lo, hi)
+            }
+        };
+        corner_need[lo].push(s);
+        if hi != lo {
+            corner_need[hi].push(s);
+        }
+        (lo, hi)
+    };
+    // How each scalar that depends on some input is bounded.
+    let mut planned: Vec<(usize, Method)> = Vec::with_capacity(m);
     for s in 0..m {
         let Some(nom) = nominal.scalars[s] else {
             continue;
         };
-        signs.clear();
-        signs.extend(derivs[s * n..(s + 1) * n].iter().map(|d| match d {
-            Some(d) => sign(*d),
-            // Failed in a box pass (its error is reported elsewhere): treat as unknown.
-            None => Sign::Unknown,
-        }));
-        let depends: Inputs<usize> = (0..n).filter(|&k| signs[k] != Sign::Zero).collect();
-        if depends.is_empty() {
+        let sg = &signs[s * n..(s + 1) * n];
+        if sg.iter().all(|&g| g == Sign::Zero) {
             continue;
         }
-        let end = |k: usize, want_max: bool| -> Interval {
-            let i = &inputs[k];
-            match (signs[k], want_max) {
-                (Sign::Up, false) | (Sign::Down, true) => Interval::point(i.lo),
-                (Sign::Up, true) | (Sign::Down, false) => Interval::point(i.hi),
-                _ => Interval::point(i.nominal),
-            }
-        };
-        unknown.clear();
-        unknown.extend(
-            depends
-                .iter()
-                .copied()
-                .filter(|&k| signs[k] == Sign::Unknown),
-        );
-        let mut min_at: Inputs<Interval> = (0..n).map(|k| end(k, false)).collect();
-        let mut max_at: Inputs<Interval> = (0..n).map(|k| end(k, true)).collect();
         let derivatives = &derivs[s * n..(s + 1) * n];
-        let (min, max, conservative) = if let Some((lo, hi)) =
-            affine_extremes(nom.x.value(), derivatives, inputs, &min_at, &max_at)
+        let method = if let Some((lo, hi)) = affine_extremes(nom.x.value(), derivatives, inputs, sg)
         {
-            (lo.min(nom.x.value()), hi.max(nom.x.value()), false)
-        } else if unknown.is_empty() {
-            // Scalars whose derivatives have the same signs share their corners.
-            let found = corners.iter().find(|(sg, _, _)| sg[..] == signs[..]);
-            let (lo, hi) = match found {
-                Some(&(_, lo, hi)) => (lo, hi),
-                None => {
-                    let (Some(lo), Some(hi)) =
-                        (passes.pass_at(&min_at, None), passes.pass_at(&max_at, None))
-                    else {
-                        return None;
-                    };
-                    corners.push((signs.iter().copied().collect(), lo, hi));
-                    (lo, hi)
-                }
-            };
-            let (lo, hi) = (passes.scalar_of(lo, s), passes.scalar_of(hi, s));
-            // A value that fails at a corner has its error reported by that pass.
-            let (Some(lo), Some(hi)) = (lo, hi) else {
-                continue;
-            };
-            let (lo, hi) = (lo.x.value(), hi.x.value());
-            (lo.min(nom.x.value()), hi.max(nom.x.value()), false)
+            Method::Affine(lo.min(nom.x.value()), hi.max(nom.x.value()))
+        } else if sg.contains(&Sign::Unknown) {
+            Method::Enclose
         } else {
-            let pieces = match unknown.len() {
-                1 => 16,
-                2 => 4,
-                3 => 2,
-                _ => 1,
-            };
-            let lo = enclose(inputs, passes, s, &min_at, &unknown, pieces, false);
-            let hi = enclose(inputs, passes, s, &max_at, &unknown, pieces, true);
-            if passes.interrupted {
-                return None;
+            let (lo, hi) = corners(sg, s);
+            Method::Corners(lo, hi)
+        };
+        planned.push((s, method));
+    }
+    // The corner passes, each evaluating what its scalars need.
+    let mut corner_pass = Vec::with_capacity(corner_need.len());
+    for (at, need) in corner_at.chunks_exact(n).zip(&corner_need) {
+        corner_pass.push(passes.pass_needing(at, need)?);
+    }
+    let nominal_point: Vec<Interval> = inputs.iter().map(|i| Interval::point(i.nominal)).collect();
+    let mut one_at_a_time = nominal_point.clone();
+    // The passes with one input at an end and the others nominal, the same for every
+    // scalar: found once per input (memo indices, low end and high end).
+    let mut ends: Vec<Option<(usize, usize)>> = vec![None; n];
+    for (s, method) in planned {
+        let Some(nom) = nominal.scalars[s] else {
+            continue;
+        };
+        let nom = nom.x.value();
+        let sg = &signs[s * n..(s + 1) * n];
+        let depends: Inputs<usize> = (0..n).filter(|&k| sg[k] != Sign::Zero).collect();
+        let mut min_at: Inputs<Interval> = (0..n).map(|k| end(&inputs[k], sg[k], false)).collect();
+        let mut max_at: Inputs<Interval> = (0..n).map(|k| end(&inputs[k], sg[k], true)).collect();
+        let (min, max, conservative) = match method {
+            Method::Affine(lo, hi) => (lo, hi, false),
+            Method::Corners(lo, hi) => {
+                let lo = passes.scalar_in(corner_pass[lo], s)?;
+                let hi = passes.scalar_in(corner_pass[hi], s)?;
+                // A value that fails at a corner has its error reported by that pass.
+                let (Some(lo), Some(hi)) = (lo, hi) else {
+                    continue;
+                };
+                (lo.x.value().min(nom), hi.x.value().max(nom), false)
             }
-            let (Some((lo, lo_at, lo_exact)), Some((hi, hi_at, hi_exact))) = (lo, hi) else {
-                continue;
-            };
-            min_at = Inputs::from_vec(lo_at);
-            max_at = Inputs::from_vec(hi_at);
-            // Exact when every sub-range proved monotone, so its extreme is at its end.
-            (
-                lo.min(nom.x.value()),
-                hi.max(nom.x.value()),
-                !(lo_exact && hi_exact),
-            )
+            Method::Enclose => {
+                let unknown: Inputs<usize> = depends
+                    .iter()
+                    .copied()
+                    .filter(|&k| sg[k] == Sign::Unknown)
+                    .collect();
+                let pieces = match unknown.len() {
+                    1 => 16,
+                    2 => 4,
+                    3 => 2,
+                    _ => 1,
+                };
+                let lo = enclose(inputs, passes, s, &min_at, &unknown, pieces, false);
+                let hi = enclose(inputs, passes, s, &max_at, &unknown, pieces, true);
+                if passes.interrupted {
+                    return None;
+                }
+                let (Some((lo, lo_at, lo_exact)), Some((hi, hi_at, hi_exact))) = (lo, hi) else {
+                    continue;
+                };
+                min_at = Inputs::from_vec(lo_at);
+                max_at = Inputs::from_vec(hi_at);
+                // Exact when every sub-range proved monotone, so its extreme is at its end.
+                (lo.min(nom), hi.max(nom), !(lo_exact && hi_exact))
+            }
         };
         let mut half_swings = Inputs::new();
         for &k in depends.iter().filter(|_| swings) {
@@ -310,8 +424,8 @@ pub fn analyse<E: Evaluate>(
                     (lo, hi)
                 }
             };
-            let f_lo = passes.scalar_of(lo, s).map(|x| x.x.value());
-            let f_hi = passes.scalar_of(hi, s).map(|x| x.x.value());
+            let f_lo = passes.scalar_in(lo, s)?.map(|x| x.x.value());
+            let f_hi = passes.scalar_in(hi, s)?.map(|x| x.x.value());
             half_swings.push(match (f_lo, f_hi) {
                 (Some(a), Some(b)) => (0.5 * b - 0.5 * a).abs(),
                 _ => 0.0,
@@ -332,14 +446,13 @@ pub fn analyse<E: Evaluate>(
 
 /// The extremes of a value over the box when every partial derivative is enclosed by a
 /// single number: the value is then affine there, f(x) = f(x₀) + Σ cₖ·(xₖ − x₀ₖ), and each
-/// extreme is at the corner (`min_at`, `max_at`) whose ends the derivatives' signs chose.
+/// extreme is at the corner whose ends the derivatives' signs choose.
 /// None when some derivative is not a point (or the extremes would not be finite).
 fn affine_extremes(
     nominal: f64,
     derivatives: &[Option<Interval>],
     inputs: &[InputInfo],
-    min_at: &[Interval],
-    max_at: &[Interval],
+    signs: &[Sign],
 ) -> Option<(f64, f64)> {
     let (mut lo, mut hi) = (nominal, nominal);
     for (k, d) in derivatives.iter().enumerate() {
@@ -348,8 +461,9 @@ fn affine_extremes(
             return None;
         }
         if d.lo != 0.0 {
-            lo += d.lo * (min_at[k].lo - inputs[k].nominal);
-            hi += d.lo * (max_at[k].lo - inputs[k].nominal);
+            let i = &inputs[k];
+            lo += d.lo * (end(i, signs[k], false).lo - i.nominal);
+            hi += d.lo * (end(i, signs[k], true).lo - i.nominal);
         }
     }
     (lo.is_finite() && hi.is_finite()).then_some((lo, hi))
@@ -538,5 +652,89 @@ mod tests {
         let curved = bounds[1].as_ref().expect("bounds of x² + x");
         assert!(curved.min <= -0.25 && curved.max >= 2.0, "{curved:?}");
         assert!(points > 0);
+    }
+
+    /// Inputs x and y over −1 … 1 (nominal 0); scalar 0 is x + x²/10 and scalar 1 is
+    /// y + y²/10, each monotone (slope 0.8 … 1.2) and curved. A pass asked for some
+    /// scalars makes only those.
+    struct TwoCurves {
+        needs: Vec<Vec<usize>>,
+        full: usize,
+    }
+
+    impl TwoCurves {
+        fn make(&self, mode: Mode, only: Option<&[usize]>) -> Pass {
+            let (x, y) = match &mode {
+                Mode::Nominal => (Dual::constant(0.0), Dual::constant(0.0)),
+                Mode::Box { seed } => {
+                    let whole = Interval::new(-1.0, 1.0);
+                    (
+                        Dual::input(whole, *seed == Some(0)),
+                        Dual::input(whole, *seed == Some(1)),
+                    )
+                }
+                Mode::Assign { values, seed } => (
+                    Dual::input(values[0], *seed == Some(0)),
+                    Dual::input(values[1], *seed == Some(1)),
+                ),
+            };
+            let mut p = Pass::new(mode, 2);
+            for (s, v) in [x, y].into_iter().enumerate() {
+                if only.is_none_or(|o| o.contains(&s)) {
+                    let tenth = Dual::constant(0.1);
+                    p.put_scalar(s, Num::new(v + tenth * v * v, Dim::NONE));
+                }
+            }
+            p.partial = only.is_some();
+            p
+        }
+    }
+
+    impl Evaluate for TwoCurves {
+        fn pass(&mut self, mode: Mode) -> Option<Pass> {
+            if matches!(mode, Mode::Assign { .. }) {
+                self.full += 1;
+            }
+            Some(self.make(mode, None))
+        }
+        fn pass_needing(&mut self, mode: Mode, need: &[usize]) -> Option<Pass> {
+            self.needs.push(need.to_vec());
+            Some(self.make(mode, Some(need)))
+        }
+    }
+
+    #[test]
+    fn a_corner_pass_makes_what_its_scalars_need_and_the_rest_when_asked() {
+        let inputs: Vec<InputInfo> = ["x", "y"]
+            .into_iter()
+            .map(|name| InputInfo {
+                key: name.into(),
+                label: crate::eval::InputLabel::Given(name.into()),
+                nominal: 0.0,
+                lo: -1.0,
+                hi: 1.0,
+            })
+            .collect();
+        let mut eval = TwoCurves {
+            needs: Vec::new(),
+            full: 0,
+        };
+        let nominal = eval.pass(Mode::Nominal).expect("nominal");
+        let mut passes = Passes::new(&mut eval);
+        let bounds = analyse(&inputs, &nominal, &mut passes, false).expect("analysed");
+        for b in &bounds {
+            let b = b.as_ref().expect("bounds");
+            assert_eq!((b.min, b.max, b.conservative), (-0.9, 1.1, false));
+        }
+        // Scalar 1 at the corner where scalar 0 is least (x = −1, y nominal): that pass
+        // did not make it, so the pass runs again in full.
+        let corner = [Interval::point(-1.0), Interval::point(0.0)];
+        let y_there = passes.at(&corner, 1).map(|n| n.x.value());
+        assert_eq!(y_there, Some(0.0));
+        assert_eq!(passes.at(&corner, 0).map(|n| n.x.value()), Some(-0.9));
+        drop(passes);
+        // Four corners, each asked for by one scalar; one full pass, for the question above.
+        assert_eq!(eval.needs, vec![vec![0], vec![0], vec![1], vec![1]]);
+        assert_eq!(eval.full, 1);
     }
 }

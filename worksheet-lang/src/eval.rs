@@ -258,6 +258,10 @@ pub struct Pass {
     /// The scalar ids in the order they were set (to see what one statement recorded),
     /// while the pass runs.
     pub touched: Vec<usize>,
+    /// The pass evaluated only the statements some scalars needed
+    /// (`analysis::Evaluate::pass_needing`): a scalar it lacks was not evaluated, rather
+    /// than failed.
+    pub partial: bool,
 }
 
 impl Pass {
@@ -266,6 +270,7 @@ impl Pass {
             mode,
             scalars: vec![None; n_scalars],
             touched: Vec::new(),
+            partial: false,
         }
     }
     /// Sets a scalar without noting it in `touched` (for values taken over whole from an

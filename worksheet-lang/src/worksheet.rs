@@ -1479,6 +1479,27 @@ struct Runner<'m> {
     /// the order of the scalars set (which the analysis does not keep).
     spare_values: Vec<Option<Result<Value, Failed>>>,
     spare_touched: Vec<usize>,
+    /// The statement that recorded each scalar in the nominal pass, found when a pass
+    /// first asks for only some scalars (`needed_for`).
+    owners: Option<Vec<Owner>>,
+    /// The buffers of `needed_for`, reused from pass to pass.
+    spare_only: Only,
+}
+
+/// The statement whose evaluation records a scalar.
+#[derive(Clone, Copy, PartialEq, Debug)]
+enum Owner {
+    Def(usize),
+    Check(usize),
+    /// A shown value's or a sweep's, one recorded by several statements, or none.
+    Other,
+}
+
+/// The statements a pass evaluates when it is asked for some scalars only.
+#[derive(Default)]
+struct Only {
+    defs: Vec<bool>,
+    checks: Vec<bool>,
 }
 
 /// A value with every derivative set to zero: what a definition that cannot reach an input
@@ -1650,13 +1671,99 @@ impl Runner<'_> {
         self.errors.entry(id).or_insert(e);
     }
 
+    /// The scalars' owners (see `owners`): each definition's recorded scalars from the
+    /// nominal pass, each check's sides and difference.
+    fn scalar_owners(&self) -> Vec<Owner> {
+        let mut owners = vec![None; self.reg.scalar_count()];
+        let mut claim = |id: usize, who: Owner| {
+            if let Some(o) = owners.get_mut(id) {
+                *o = match *o {
+                    None => Some(who),
+                    Some(was) if was == who => Some(was),
+                    Some(_) => Some(Owner::Other),
+                };
+            }
+        };
+        for (d, def) in self.nominal_def.iter().enumerate() {
+            if let Some((_, recorded)) = def {
+                for &(id, _) in &self.recorded[recorded.clone()] {
+                    claim(id, Owner::Def(d));
+                }
+            }
+        }
+        for (i, ids) in self.check_ids.iter().enumerate() {
+            for &id in ids.iter().flatten() {
+                claim(id, Owner::Check(i));
+            }
+        }
+        owners
+            .into_iter()
+            .map(|o| o.unwrap_or(Owner::Other))
+            .collect()
+    }
+
+    /// Sets `only` to the definitions and checks a pass evaluates to make the scalars
+    /// `need`: their owners and everything those read. False (evaluate everything) when a
+    /// shown value, a sweep or a pinned value takes part, or a scalar's owner is not one
+    /// statement.
+    fn needed_for(&mut self, need: &[usize], only: &mut Only) -> bool {
+        if !self.extra.is_empty() || !self.pins.is_empty() {
+            return false;
+        }
+        if self.owners.is_none() {
+            self.owners = Some(self.scalar_owners());
+        }
+        let Some(owners) = self.owners.as_deref() else {
+            return false;
+        };
+        let model = self.model;
+        only.defs.clear();
+        only.defs.resize(model.defs.len(), false);
+        only.checks.clear();
+        only.checks.resize(model.checks.len(), false);
+        for &s in need {
+            let Some(&owner) = owners.get(s) else {
+                return false;
+            };
+            match owner {
+                Owner::Def(d) => only.defs[d] = true,
+                Owner::Check(i) if !only.checks[i] => {
+                    only.checks[i] = true;
+                    for n in expanded(&model.funcs, model.checks[i].reads).iter() {
+                        if let Some(&d) = model.index.get(n.as_str()) {
+                            only.defs[d] = true;
+                        }
+                    }
+                }
+                Owner::Check(_) => {}
+                Owner::Other => return false,
+            }
+        }
+        // Dependents come after what they read in `order`.
+        for &d in model.order.iter().rev() {
+            if only.defs[d] {
+                for &e in &model.deps[d] {
+                    only.defs[e] = true;
+                }
+            }
+        }
+        true
+    }
+
     fn run(&mut self, mode: Mode) -> Option<Pass> {
+        self.run_only(mode, None)
+    }
+
+    /// A pass; with `only`, of those definitions and checks alone (a partial pass, with no
+    /// shown values).
+    fn run_only(&mut self, mode: Mode, only: Option<&Only>) -> Option<Pass> {
         if self.interrupt.is_raised() {
             return None;
         }
         let nominal = matches!(mode, Mode::Nominal);
         let model = self.model;
         let mut pass = Pass::new(mode, self.reg.scalar_count());
+        pass.partial = only.is_some();
         pass.touched = std::mem::take(&mut self.spare_touched);
         let mut values = std::mem::take(&mut self.spare_values);
         values.clear();
@@ -1670,6 +1777,9 @@ impl Runner<'_> {
         }
         let needed = seed.and_then(|k| self.needed_in_box(k));
         for &d in &model.order {
+            if only.is_some_and(|o| !o.defs[d]) {
+                continue;
+            }
             let def = &model.defs[d];
             // In the box pass that carries input k's derivative, a definition that cannot
             // reach k has the value it had in the previous box pass, with no derivative.
@@ -1848,6 +1958,9 @@ impl Runner<'_> {
         };
         // The model lists the checks and shows of the cells evaluated only.
         for (i, c) in model.checks.iter().enumerate() {
+            if only.is_some_and(|o| !o.checks[i]) {
+                continue;
+            }
             let mut ev = Evaluator {
                 names: &scope,
                 reg: &mut self.reg,
@@ -1901,6 +2014,9 @@ impl Runner<'_> {
             }
         }
         for (i, s) in model.shows.iter().enumerate() {
+            if only.is_some() {
+                break;
+            }
             if let Some(e) = &s.unit_error {
                 if nominal {
                     self.fail(StmtId::Show(i), e.clone());
@@ -2031,6 +2147,16 @@ impl analysis::Evaluate for Runner<'_> {
     fn pass(&mut self, mode: Mode) -> Option<Pass> {
         self.run(mode)
     }
+    fn pass_needing(&mut self, mode: Mode, need: &[usize]) -> Option<Pass> {
+        let mut only = std::mem::take(&mut self.spare_only);
+        let pass = if matches!(mode, Mode::Assign { .. }) && self.needed_for(need, &mut only) {
+            self.run_only(mode, Some(&only))
+        } else {
+            self.run(mode)
+        };
+        self.spare_only = only;
+        pass
+    }
 }
 
 impl<'m> Runner<'m> {
@@ -2059,6 +2185,8 @@ impl<'m> Runner<'m> {
             check_ids: vec![None; model.checks.len()],
             spare_values: Vec::new(),
             spare_touched: Vec::new(),
+            owners: None,
+            spare_only: Only::default(),
         }
     }
 }
