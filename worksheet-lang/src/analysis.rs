@@ -239,8 +239,8 @@ enum Method {
     Enclose,
 }
 
-/// The end of input `k` where a value with derivative sign `sign` is least (or, with
-/// `want_max`, greatest); its nominal value where that is not known.
+/// The end of input `i` where a value whose derivative has the sign `sign` is least (or,
+/// with `want_max`, greatest); its nominal value where that is not known.
 fn end(i: &InputInfo, sign: Sign, want_max: bool) -> Interval {
     match (sign, want_max) {
         (Sign::Up, false) | (Sign::Down, true) => Interval::point(i.lo),
