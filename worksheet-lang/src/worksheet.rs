@@ -1355,9 +1355,27 @@ fn read_by_checks_and_shows(model: &Model<'_>, mut each: impl FnMut(usize)) {
         .map(|c| c.reads)
         .chain(model.shows.iter().map(|s| s.reads));
     for names in reads {
-        for n in expanded(&model.funcs, names).iter() {
-            if let Some(&d) = model.index.get(n.as_str()) {
-                each(d);
+        definitions_named(model, names, &mut each);
+    }
+}
+
+/// Calls `each` with the definition of every name in `names` (also of the names read inside
+/// the functions they call).
+fn definitions_named(model: &Model<'_>, names: &[String], mut each: impl FnMut(usize)) {
+    for n in expanded(&model.funcs, names).iter() {
+        if let Some(&d) = model.index.get(n.as_str()) {
+            each(d);
+        }
+    }
+}
+
+/// Marks, besides the definitions marked in `need`, every definition they read.
+fn with_what_they_read(model: &Model<'_>, need: &mut [bool]) {
+    // Dependents come after what they read in `order`.
+    for &d in model.order.iter().rev() {
+        if need[d] {
+            for &e in &model.deps[d] {
+                need[e] = true;
             }
         }
     }
@@ -1655,14 +1673,7 @@ impl Runner<'_> {
         let model = self.model;
         let mut need: Vec<bool> = reach.iter().map(|r| r.contains(&k)).collect();
         read_by_checks_and_shows(model, |d| need[d] = true);
-        // Dependents come after what they read in `order`.
-        for &d in model.order.iter().rev() {
-            if need[d] {
-                for &e in &model.deps[d] {
-                    need[e] = true;
-                }
-            }
-        }
+        with_what_they_read(model, &mut need);
         Some(need)
     }
 
@@ -1729,24 +1740,13 @@ impl Runner<'_> {
                 Owner::Def(d) => only.defs[d] = true,
                 Owner::Check(i) if !only.checks[i] => {
                     only.checks[i] = true;
-                    for n in expanded(&model.funcs, model.checks[i].reads).iter() {
-                        if let Some(&d) = model.index.get(n.as_str()) {
-                            only.defs[d] = true;
-                        }
-                    }
+                    definitions_named(model, model.checks[i].reads, |d| only.defs[d] = true);
                 }
                 Owner::Check(_) => {}
                 Owner::Other => return false,
             }
         }
-        // Dependents come after what they read in `order`.
-        for &d in model.order.iter().rev() {
-            if only.defs[d] {
-                for &e in &model.deps[d] {
-                    only.defs[e] = true;
-                }
-            }
-        }
+        with_what_they_read(model, &mut only.defs);
         true
     }
 
