@@ -174,19 +174,42 @@ impl ValueRow {
     /// sizing result reads "3.12 K/W at worst (nominal 3.40 K/W)". Made when asked for: the
     /// row holds the numbers, and rendering turns them into text.
     pub fn text(&self) -> String {
+        match self.worst_note() {
+            Some(note) => format!("{} {note}", self.value_text()),
+            None => self.value_text(),
+        }
+    }
+
+    /// The number the row leads with, alone: "79.4 °C"; for a sizing result with a worst
+    /// case, its worst-case minimum ("3.12 K/W"). Tables put it in their number and unit
+    /// columns.
+    pub fn value_text(&self) -> String {
         match &self.shown {
             Shown::Number { value, bounds } => {
                 let u = self.display_unit();
-                let text = fmt_value(value.si, value.dim, value.absolute, u);
                 match bounds {
                     Some(b) if self.leads_with_minimum => {
-                        let min = fmt_value(b.min, value.dim, value.absolute, u);
-                        format!("{min} at worst (nominal {text})")
+                        fmt_value(b.min, value.dim, value.absolute, u)
                     }
-                    _ => text,
+                    _ => fmt_value(value.si, value.dim, value.absolute, u),
                 }
             }
             Shown::Text(t) | Shown::Other(t) => t.clone(),
+        }
+    }
+
+    /// What a sizing result's leading number is: "at worst (nominal 3.40 K/W)"; None for
+    /// every other row.
+    pub fn worst_note(&self) -> Option<String> {
+        match &self.shown {
+            Shown::Number {
+                value,
+                bounds: Some(_),
+            } if self.leads_with_minimum => {
+                let nominal = fmt_value(value.si, value.dim, value.absolute, self.display_unit());
+                Some(format!("at worst (nominal {nominal})"))
+            }
+            _ => None,
         }
     }
 

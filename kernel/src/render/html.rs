@@ -76,7 +76,7 @@ fn value_row(out: &mut String, v: &ValueRow) {
     let _ = write!(out, r#"<td style="{NAME}">{}</td>"#, esc(&v.name));
     match &v.shown {
         Shown::Number { bounds, .. } => {
-            let text = v.text();
+            let text = v.value_text();
             let (n, u) = split_number_unit(&text);
             let _ = write!(
                 out,
@@ -94,9 +94,17 @@ fn value_row(out: &mut String, v: &ValueRow) {
             } else {
                 String::new()
             };
+            // A sizing result leads with its worst case; the range column says so.
+            let worst = match v.worst_note() {
+                Some(note) => format!(
+                    r#"<span style="{SOFT}">{}</span> "#,
+                    esc(&format!("{note};"))
+                ),
+                None => String::new(),
+            };
             let _ = write!(
                 out,
-                r#"<td style="{RANGE}">{}{conservative}</td>"#,
+                r#"<td style="{RANGE}">{worst}{}{conservative}</td>"#,
                 esc(&range)
             );
         }

@@ -396,6 +396,48 @@ Caution: surfaces above about 60 °C burn on touch; confirm with the part's data
 }
 
 #[test]
+fn a_sizing_result_keeps_its_unit_column_a_unit() {
+    // A heatsink sized for the worst case: θsa at most 9.88 K/W at the worst corner,
+    // 14.9 K/W at nominal; the table leads with 9.88 K/W and says so in the range column.
+    let mut sink = with_bounds(
+        number(
+            "θsa",
+            false,
+            14.9,
+            Dim::THERMAL_RESISTANCE,
+            false,
+            "14.9 K/W",
+        ),
+        9.88,
+        23.1,
+        false,
+        "9.88 K/W … 23.1 K/W",
+    );
+    sink.leads_with_minimum = true;
+    assert_eq!(sink.text(), "9.88 K/W at worst (nominal 14.9 K/W)");
+    assert_eq!(sink.value_text(), "9.88 K/W");
+    let r = report(vec![sink], vec![]);
+    assert_eq!(
+        text(&r),
+        "Values\n  θsa  9.88 K/W   at worst (nominal 14.9 K/W); 9.88 K/W … 23.1 K/W"
+    );
+    let h = html::report(&r);
+    let cells: Vec<&str> = h
+        .split("<td")
+        .skip(1)
+        .map(|c| c.split_once('>').map_or("", |(_, rest)| rest))
+        .map(|c| c.split("</td>").next().unwrap_or(""))
+        .collect();
+    assert_eq!(cells[1], "9.88", "{h}");
+    assert_eq!(cells[2], "K/W", "{h}");
+    assert!(
+        cells[3].contains("at worst (nominal 14.9 K/W);")
+            && cells[3].ends_with("9.88 K/W … 23.1 K/W"),
+        "{h}"
+    );
+}
+
+#[test]
 fn text_aligns_by_display_width() {
     // θ, Ω and ° are one column each; a byte count would misalign them.
     let theta = number("θ", false, 6.4, Dim::THERMAL_RESISTANCE, false, "6.40 K/W");

@@ -107,11 +107,15 @@ const VALUE_GAPS: &[&str] = &["", "  ", " ", "   ", "   "];
 fn value_cells(v: &ValueRow) -> Vec<String> {
     let (number, unit, range) = match &v.shown {
         Shown::Number { bounds, .. } => {
-            let text = v.text();
+            let text = v.value_text();
             let (n, u) = split_number_unit(&text);
             let mut range = v.range_text().unwrap_or_default();
             if bounds.as_ref().is_some_and(|b| b.conservative) && !range.is_empty() {
                 range.push_str(" (conservative)");
+            }
+            // A sizing result leads with its worst case; the range column says so.
+            if let Some(note) = v.worst_note() {
+                range = format!("{note}; {range}");
             }
             (n.to_string(), u.to_string(), range)
         }
