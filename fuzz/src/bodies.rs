@@ -230,7 +230,7 @@ pub fn execute(data: &[u8]) {
             c.end
         );
         assert!(probe.is_char_boundary(c.start) && probe.is_char_boundary(c.end));
-        let _ = ws.inspect(&probe, cursor);
+        let _ = ws.inspect(&probe, cursor, &Interrupt::new());
     }
 }
 

@@ -4,7 +4,7 @@ use crate::builtins;
 use crate::eval::MATH;
 use crate::results::{Quantity, Shown};
 use crate::units::{self, Dim, Unit};
-use crate::worksheet::Worksheet;
+use crate::worksheet::{Interrupt, Worksheet};
 
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct Completion {
@@ -163,7 +163,12 @@ fn spread_text(si: f64, value: &Quantity, unit: Option<&Unit>) -> String {
     }
 }
 
-pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection> {
+pub fn inspect(
+    ws: &Worksheet,
+    source: &str,
+    cursor: usize,
+    interrupt: &Interrupt,
+) -> Option<Inspection> {
     let path = path_at(source, cursor);
     if path.is_empty() {
         return None;
@@ -218,7 +223,12 @@ pub fn inspect(ws: &Worksheet, source: &str, cursor: usize) -> Option<Inspection
                     ));
                 }
                 // Worked out now: a run leaves the spread out.
-                let spread = ws.spread(&r.name).filter(|s| !s.shares.is_empty());
+                let spread = ws
+                    .spread(&r.name, interrupt)
+                    .filter(|s| !s.shares.is_empty());
+                if interrupt.is_raised() {
+                    t.push_str("shares of the spread: not worked out (interrupted)\n");
+                }
                 for s in spread.iter().flat_map(|s| &s.shares) {
                     t.push_str(&format!(
                         "  {:>5.1} % of the spread from {}\n",

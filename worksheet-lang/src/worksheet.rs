@@ -587,16 +587,24 @@ impl Worksheet {
         crate::query::complete(self, source, cursor)
     }
 
-    pub fn inspect(&self, source: &str, cursor: usize) -> Option<Inspection> {
-        crate::query::inspect(self, source, cursor)
+    /// What the name at `cursor` is: a built-in's documentation, or a definition with its
+    /// value, worst case and the shares of its spread. Working out the spread evaluates the
+    /// defining cell once more; `interrupt` stops that (the text then says so).
+    pub fn inspect(
+        &self,
+        source: &str,
+        cursor: usize,
+        interrupt: &Interrupt,
+    ) -> Option<Inspection> {
+        crate::query::inspect(self, source, cursor, interrupt)
     }
 
     /// How the uncertain inputs share the spread of the value row `name` (`vin`,
     /// `u1.loss`): each input's one-at-a-time swing and the root-sum-square spread. A run
     /// leaves this out, as it takes evaluations of its own; this evaluates the worksheet as
     /// it stands once more, with them. None when the name has no uncertain value (or the
-    /// worksheet no longer evaluates).
-    pub fn spread(&self, name: &str) -> Option<Spread> {
+    /// worksheet no longer evaluates), or when `interrupt` stopped the evaluation.
+    pub fn spread(&self, name: &str, interrupt: &Interrupt) -> Option<Spread> {
         // The cell that owns the name (the last that defines it) and what it reads are
         // evaluated, without sweeps.
         let defined = name.split('.').next().unwrap_or(name);
@@ -616,7 +624,7 @@ impl Worksheet {
             &self.cells,
             &self.overrides,
             &options,
-            &Interrupt::new(),
+            interrupt,
             Some(&focus),
         )?;
         let row = reports

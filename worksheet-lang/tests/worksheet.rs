@@ -113,7 +113,7 @@ fn the_reference_rail_without_built_ins() {
     assert!(b.spread.is_none());
     // One at a time, the others nominal: vin's swing of the loss is
     // (8.2 − 5.8) V · 180 mA + 2.4 V · 4 mA = 0.4416 W, iload's 7 V · 72 mA = 0.504 W.
-    let s = ws.spread("tj").expect("tj has a spread");
+    let s = ws.spread("tj", &Interrupt::new()).expect("tj has a spread");
     let total = 0.4416 + 0.504;
     let share = |input: &str| {
         s.shares
@@ -162,7 +162,11 @@ fn inspection_shows_the_shares_and_the_root_sum_square_spread() {
                i2 [A] = 2 * iload\ntj [°C] = 50 °C + 100 K/W * p\n";
     let r = ws.execute(Some("c1"), src, &Interrupt::new()).report;
     assert!(!r.has_errors(), "{:?}", r.diagnostics);
-    let at = |ws: &Worksheet, name: &str| ws.inspect(name, 1).expect("inspection").text;
+    let at = |ws: &Worksheet, name: &str| {
+        ws.inspect(name, 1, &Interrupt::new())
+            .expect("inspection")
+            .text
+    };
     let p = at(&ws, "p");
     assert!(p.contains(" 66.7 % of the spread from iload"), "{p}");
     assert!(p.contains(" 33.3 % of the spread from vin"), "{p}");
@@ -175,6 +179,27 @@ fn inspection_shows_the_shares_and_the_root_sum_square_spread() {
     let r = ws.execute(Some("c2"), "k = 3 V", &Interrupt::new()).report;
     assert!(!r.has_errors());
     assert!(!at(&ws, "k").contains("spread"));
+}
+
+/// Inspection works the spread out by evaluating the cell once more; an interrupt stops
+/// that: no spread, and the text says why, while the value and its worst case (from the
+/// last run) are still there: p = vin · iload, 12 V · 180 mA = 2.16 W, least
+/// 10.8 V · 144 mA = 1.56 W, most 13.2 V · 216 mA = 2.85 W.
+#[test]
+fn an_interrupt_stops_the_spread_an_inspection_works_out() {
+    let mut ws = Worksheet::new();
+    let src = "given vin = 10.8 V .. 13.2 V\ngiven iload = 180 mA ± 20 %\np = vin * iload\n";
+    let r = ws.execute(Some("c1"), src, &Interrupt::new()).report;
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let raised = Interrupt::new();
+    raised.raise();
+    assert!(ws.spread("p", &raised).is_none());
+    assert!(ws.spread("p", &Interrupt::new()).is_some());
+    let text = ws.inspect("p", 1, &raised).expect("inspection").text;
+    assert!(text.contains("value: 2.16 W"), "{text}");
+    assert!(text.contains("worst case: 1.56 W … 2.85 W"), "{text}");
+    assert!(text.contains("not worked out (interrupted)"), "{text}");
+    assert!(!text.contains("root-sum-square"), "{text}");
 }
 
 /// Bounds worked by hand for values that are affine in their inputs (their extremes come
@@ -225,7 +250,7 @@ fn a_part_is_named_by_its_value_and_tolerance_in_the_shares() {
     let r = ws.execute(Some("c1"), src, &Interrupt::new()).report;
     assert!(!r.has_errors(), "{:?}", r.diagnostics);
     let only = |name: &str| {
-        let s = ws.spread(name).expect(name);
+        let s = ws.spread(name, &Interrupt::new()).expect(name);
         assert_eq!(s.shares.len(), 1, "{name}: {:?}", s.shares);
         assert!(close(s.shares[0].fraction, 1.0));
         s.shares[0].input.clone()
@@ -250,13 +275,13 @@ fn a_spread_is_worked_out_for_a_value_read_across_cells() {
         "c2",
         "p = vin * 2 A\nsweep vin over 10 V .. 14 V steps 5: p\n",
     );
-    let s = ws.spread("p").expect("p");
+    let s = ws.spread("p", &Interrupt::new()).expect("p");
     assert_eq!(s.shares.len(), 1);
     assert_eq!(s.shares[0].input, "vin");
     // Half of the swing 2 A · 2.4 V.
     assert!(close(s.rss, 2.4), "{}", s.rss);
-    assert!(ws.spread("k").is_none());
-    assert!(ws.spread("nothing").is_none());
+    assert!(ws.spread("k", &Interrupt::new()).is_none());
+    assert!(ws.spread("nothing", &Interrupt::new()).is_none());
 }
 
 #[test]
@@ -829,12 +854,12 @@ fn spreads_near_the_largest_number_stay_finite() {
         .report;
     assert!(r.diagnostics.is_empty(), "{:?}", r.diagnostics);
     for name in ["x", "y"] {
-        let s = ws.spread(name).expect("a spread");
+        let s = ws.spread(name, &Interrupt::new()).expect("a spread");
         assert!(s.rss.is_finite(), "{name}: rss {}", s.rss);
         assert!(s.shares.iter().all(|s| s.fraction.is_finite()), "{name}");
     }
     // x: half its swing is 1e308, the RSS of one input.
-    let s = ws.spread("x").expect("x");
+    let s = ws.spread("x", &Interrupt::new()).expect("x");
     assert!(close(s.rss, 1e308), "{}", s.rss);
     assert!(close(s.shares[0].fraction, 1.0));
 }

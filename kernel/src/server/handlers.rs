@@ -644,7 +644,15 @@ impl Shell {
             Err(e) => return bad_request(&e),
         };
         let byte = cursor::byte_of(&request.code, request.cursor_pos);
-        let found = guarded(&mut self.worksheet, |ws| ws.inspect(&request.code, byte)).flatten();
+        // Inspecting a definition evaluates its cell once more (for the shares of its
+        // spread); an interrupt stops that as it stops a cell. One raised before this
+        // request was for something that has finished.
+        let interrupt = self.shared.interrupt.clone();
+        interrupt.clear();
+        let found = guarded(&mut self.worksheet, |ws| {
+            ws.inspect(&request.code, byte, &interrupt)
+        })
+        .flatten();
         let reply = match found {
             Some(i) => InspectReply {
                 found: true,
