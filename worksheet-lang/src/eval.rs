@@ -1684,7 +1684,7 @@ pub fn check_declared(v: &Value, u: &units::Unit, span: &Span) -> R<()> {
         ));
     };
     if n.dim != u.dim {
-        return Err(EvalError::new(
+        let mut e = EvalError::new(
             DiagKind::DimensionMismatch,
             span,
             format!(
@@ -1693,7 +1693,20 @@ pub fn check_declared(v: &Value, u: &units::Unit, span: &Span) -> R<()> {
                 u.dim.describe(),
                 units::describe_quantity(n.dim, n.abs)
             ),
-        ));
+        );
+        // The unit the value comes out in, as it would be written in the brackets.
+        e.hint = Some(if n.dim.is_none() {
+            "the formula gives a plain number: write its numbers with their units \
+             (`3 V`), or declare no unit"
+                .to_string()
+        } else {
+            format!(
+                "the formula gives {}: declare `[{}]`, or check the formula",
+                units::describe_quantity(n.dim, n.abs),
+                units::display_unit(n.dim, n.abs)
+            )
+        });
+        return Err(e);
     }
     if u.is_absolute_temperature() && !n.abs {
         return Err(EvalError::new(

@@ -1641,6 +1641,29 @@ mod tests {
         ((n, d.to_string(), e), (m, f.to_string(), g))
     }
 
+    /// A declared unit that does not fit is answered with the unit the formula gives
+    /// (`display_unit`): every named kind of quantity, and the products and quotients of
+    /// two of them, must be writable that way.
+    #[test]
+    fn display_units_read_back_as_their_dimension() {
+        let mut dims: Vec<Dim> = NAMED.iter().map(|n| n.dim).collect();
+        for a in NAMED {
+            for b in NAMED {
+                dims.push(a.dim * b.dim);
+                dims.push(a.dim / b.dim);
+            }
+        }
+        for dim in dims.into_iter().filter(|d| !d.is_none()) {
+            let text = display_unit(dim, false);
+            let unit = parse_unit(&text).unwrap_or_else(|e| panic!("`{text}`: {}", e.message));
+            assert_eq!(unit.dim, dim, "`{text}`");
+        }
+        assert_eq!(
+            parse_unit(&display_unit(Dim::TEMPERATURE, true)).map(|u| u.dim),
+            Ok(Dim::TEMPERATURE)
+        );
+    }
+
     #[test]
     fn ties_and_carries_round_as_the_exact_conversion() {
         // Exact binary ties (0.125, 2.5, 0.375; 370.5 and 409.5, a 390 Ω part ± 5 %) go to

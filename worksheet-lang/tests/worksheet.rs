@@ -485,7 +485,7 @@ fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
             .contains("units of both sides"),
         "{e:?}"
     );
-    // Declared unit.
+    // Declared unit: the hint names the unit the formula gives, which the brackets accept.
     let e = only_error("p [mW] = 2 V\n");
     assert_eq!(e.kind, DiagKind::DimensionMismatch);
     assert!(
@@ -493,6 +493,17 @@ fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
         "{}",
         e.message
     );
+    assert_eq!(
+        e.hint.as_deref(),
+        Some("the formula gives a voltage: declare `[V]`, or check the formula")
+    );
+    // 3 mA · 2 Ω · 1 s is a voltage times a time: V·s, which a declaration takes.
+    let e = only_error("x [V] = 3 mA * 2 ohm * 1 s\n");
+    assert!(e.hint.as_deref().unwrap_or("").contains("`[V·s]`"), "{e:?}");
+    assert!(!run("x [V·s] = 3 mA * 2 ohm * 1 s\n").has_errors());
+    // A plain number declared in a unit: the numbers lack their units.
+    let e = only_error("w [V] = 3\n");
+    assert!(e.hint.as_deref().unwrap_or("").contains("`3 V`"), "{e:?}");
     // A divisor whose range spans zero.
     let e = only_error("given v = -1 V .. 2 V\nr = 1 V / v\n");
     assert_eq!(e.kind, DiagKind::DivisorSpansZero);
