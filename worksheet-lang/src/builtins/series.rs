@@ -84,10 +84,10 @@ impl Series {
             return None;
         }
         let k = x.log10().floor() as i32;
-        // Two decades either side cover every rounding, also where log10 rounds across a
-        // decade boundary.
-        // Ascending, computed as they are looked at.
-        let mut candidates = (k - 2..=k + 2).flat_map(move |k| self.decade(k));
+        // x lies in [10^k, 10^(k+1)), or just across a boundary where log10 rounds there: the
+        // decade below holds the neighbour under 10^k, the decade above 10^(k+1) itself, so
+        // the three cover every rounding. Ascending, computed as they are looked at.
+        let mut candidates = (k - 1..=k + 1).flat_map(move |k| self.decade(k));
         match rounding {
             Rounding::Up => candidates.find(|&c| c >= x * (1.0 - SLACK)),
             Rounding::Down => candidates.rev().find(|&c| c <= x * (1.0 + SLACK)),
@@ -189,4 +189,77 @@ pub static ALL: &[Series] = &[
 
 pub fn by_name(name: &str) -> Option<&'static Series> {
     ALL.iter().find(|s| s.name == name)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use proptest::prelude::*;
+
+    /// What `pick` must return, by brute force: every preferred value of eleven decades
+    /// around `x`, searched in full.
+    fn pick_by_scan(s: &Series, x: f64, rounding: Rounding) -> Option<f64> {
+        let k = x.log10().floor() as i32;
+        let all: Vec<f64> = (k - 5..=k + 5).flat_map(|k| s.decade(k)).collect();
+        match rounding {
+            Rounding::Up => all.iter().copied().find(|&c| c >= x * (1.0 - SLACK)),
+            Rounding::Down => all.iter().copied().rev().find(|&c| c <= x * (1.0 + SLACK)),
+            Rounding::Nearest => {
+                let mut best: Option<f64> = None;
+                for &c in &all {
+                    let dc = (c / x).ln().abs();
+                    best = match best {
+                        Some(b) => {
+                            let db = (b / x).ln().abs();
+                            if (dc - db).abs() <= 1e-12 {
+                                Some(b.max(c))
+                            } else if dc < db {
+                                Some(c)
+                            } else {
+                                Some(b)
+                            }
+                        }
+                        None => Some(c),
+                    };
+                }
+                best
+            }
+        }
+    }
+
+    #[test]
+    fn decade_boundaries_pick_as_a_full_scan() {
+        // Powers of ten, and the doubles either side of them, where log10 may round across.
+        for s in ALL {
+            for e in -12..=12 {
+                let p = 10f64.powi(e);
+                for x in [
+                    p,
+                    p.next_up(),
+                    p.next_down(),
+                    p * (1.0 + 1e-12),
+                    p * (1.0 - 1e-12),
+                ] {
+                    for r in [Rounding::Up, Rounding::Down, Rounding::Nearest] {
+                        assert_eq!(s.pick(x, r), pick_by_scan(s, x, r), "{} {x} {r:?}", s.name);
+                    }
+                }
+            }
+        }
+    }
+
+    proptest! {
+        #[test]
+        fn any_value_picks_as_a_full_scan(
+            series in 0..ALL.len(),
+            mantissa in 1.0f64..10.0,
+            e in -15i32..=15,
+            r in 0..3usize,
+        ) {
+            let s = &ALL[series];
+            let x = mantissa * 10f64.powi(e);
+            let r = [Rounding::Up, Rounding::Down, Rounding::Nearest][r];
+            prop_assert_eq!(s.pick(x, r), pick_by_scan(s, x, r));
+        }
+    }
 }
