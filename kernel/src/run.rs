@@ -92,8 +92,8 @@ fn run_worksheet(args: &RunArgs) -> anyhow::Result<u8> {
 
     let out = if args.json {
         let data = render::results_json(&[report]);
-        // stdout is the data alone; the caution still reaches the person running it.
-        if let Some(c) = render::caution(&[report]) {
+        // stdout is the data alone; the cautions still reach the person running it.
+        for c in render::cautions(&[report]) {
             eprintln!("{c}");
         }
         serde_json::to_string_pretty(&data)?

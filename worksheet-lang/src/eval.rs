@@ -148,6 +148,8 @@ pub struct Registry {
     pub probes: Vec<ProbeInfo>,
     /// Unconditional warnings of built-ins: (statement label, statement key, text).
     pub warnings: Vec<(String, String, String)>,
+    /// What built-ins said their statements work with: (statement key, hazard), each once.
+    pub hazards: Vec<(String, crate::results::Hazard)>,
     /// The argument ranges of each built-in call seen in a box pass (by call key).
     pub observed: HashMap<String, Vec<Option<Interval>>>,
     /// Argument ranges known from an earlier round, for choices that need them.
@@ -1413,6 +1415,20 @@ impl CallHost for Host<'_, '_> {
             .any(|(_, k, t)| *k == key && *t == text)
         {
             self.ev.reg.warnings.push((src, key, text));
+        }
+    }
+    fn hazard(&mut self, hazard: crate::results::Hazard) {
+        let seen = self
+            .ev
+            .reg
+            .hazards
+            .iter()
+            .any(|(k, h)| *k == self.ev.stmt_key && *h == hazard);
+        if !seen {
+            self.ev
+                .reg
+                .hazards
+                .push((self.ev.stmt_key.to_string(), hazard));
         }
     }
 }

@@ -26,6 +26,17 @@ pub struct CellReport {
     /// For the cell that was run: the other cells it updated, each summarised by what it
     /// holds (`p, check p <= 1 W`).
     pub updated_cells: Vec<String>,
+    /// What the cell works with that can hurt someone beyond what its numbers show (a
+    /// battery), each once, for the renderers' cautions.
+    pub hazards: Vec<Hazard>,
+}
+
+/// A danger that a built-in stands for by what it models, whatever the numbers: the
+/// renderers caution about it. (Hot surfaces and shock voltages are found from the numbers.)
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Hazard {
+    /// A battery: cells, lithium cells above all, can overheat, vent or burn.
+    Battery,
 }
 
 impl CellReport {
@@ -68,6 +79,7 @@ impl CellReport {
             shown,
             updated_by: _,
             updated_cells: _,
+            hazards,
         } = self;
         *cell == other.cell
             && *source == other.source
@@ -77,6 +89,7 @@ impl CellReport {
             && *warnings == other.warnings
             && *sweeps == other.sweeps
             && *shown == other.shown
+            && *hazards == other.hazards
     }
 
     pub fn has_errors(&self) -> bool {

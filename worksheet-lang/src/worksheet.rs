@@ -2635,6 +2635,13 @@ fn evaluate(
             });
         }
     }
+    for (key, hazard) in &an.passes.eval.reg.hazards {
+        if let Some(r) = cell_of_stmt(&model, cells, key).and_then(|ci| reports[ci].as_mut()) {
+            if !r.hazards.contains(hazard) {
+                r.hazards.push(*hazard);
+            }
+        }
+    }
     let notes = std::mem::take(&mut an.passes.eval.notes);
     for (ci, n) in notes {
         if let Some(r) = &mut reports[ci] {

@@ -33,6 +33,7 @@ struct Host {
     parts: HashMap<String, (String, f64, f64, f64)>,
     probes: Vec<(String, Num, WarnRule)>,
     warnings: Vec<String>,
+    hazards: Vec<worksheet_lang::results::Hazard>,
     ranges: HashMap<usize, Interval>,
 }
 
@@ -45,6 +46,7 @@ impl Host {
             parts: HashMap::new(),
             probes: Vec::new(),
             warnings: Vec::new(),
+            hazards: Vec::new(),
             ranges: HashMap::new(),
         }
     }
@@ -73,6 +75,9 @@ impl CallHost for Host {
         let v = pick()?;
         self.choices.insert(key.to_string(), v);
         Ok(v)
+    }
+    fn hazard(&mut self, hazard: worksheet_lang::results::Hazard) {
+        self.hazards.push(hazard);
     }
     fn part_input(
         &mut self,

@@ -913,3 +913,22 @@ fn a_box_pass_evaluates_what_the_definitions_it_varies_read() {
     assert!(close(b.min, -1.1), "min {}", b.min);
     assert!(close(b.max, 1.1), "max {}", b.max);
 }
+
+/// A battery's results carry its hazard (for the caution the renderers add), once per cell
+/// and in the cell that calls it; a cell without one carries none.
+#[test]
+fn a_battery_cell_carries_the_battery_hazard() {
+    use worksheet_lang::results::Hazard;
+    let mut ws = Worksheet::new();
+    let src = "given i = 20 mA ± 10 %\n\
+               a = power.battery_hours(capacity: 2 A*h, current: i)\n\
+               b = power.battery_hours(capacity: 3 A*h, current: i)\n";
+    let r = ws.execute(Some("c1"), src, &Interrupt::new()).report;
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    assert_eq!(r.hazards, vec![Hazard::Battery]);
+    let r = ws
+        .execute(Some("c2"), "p = 2 * i", &Interrupt::new())
+        .report;
+    assert!(r.hazards.is_empty());
+    assert!(run("x = 3 V\n").hazards.is_empty());
+}

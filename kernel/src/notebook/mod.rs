@@ -127,7 +127,7 @@ pub fn run(args: &RunArgs) -> anyhow::Result<u8> {
     if let Some(line) = seal_after_run(&nb) {
         let _ = writeln!(s, "\n{line}");
     }
-    if let Some(c) = render::caution(&reports) {
+    for c in render::cautions(&reports) {
         let _ = writeln!(s, "\n{c}");
     }
     let failed: usize = reports.iter().map(|r| r.failed_checks()).sum();

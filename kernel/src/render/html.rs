@@ -12,7 +12,7 @@
 
 use super::sweep::{columns, heading, left_out_text, table_rows};
 use super::{
-    caution, diagnostic_warnings, signed_margin, split_number_unit, MAX_CELL_OUTPUT_BYTES,
+    cautions, diagnostic_warnings, signed_margin, split_number_unit, MAX_CELL_OUTPUT_BYTES,
 };
 use html_escape::encode_text;
 use std::fmt::Write as _;
@@ -213,7 +213,7 @@ fn report_with(r: &CellReport, sweep_tables: bool) -> String {
         }
         out.push_str("</ul></div>");
     }
-    if let Some(c) = caution(&[r]) {
+    for c in cautions(&[r]) {
         let _ = write!(out, r#"<div style="{CAUTION}">{}</div>"#, esc(c));
     }
     out.push_str("</div>");

@@ -15,7 +15,7 @@ mod text;
 
 use serde_json::{Map, Value};
 use worksheet_lang::diagnostic;
-use worksheet_lang::results::{CellReport, CheckRow, Shown, ValueRow};
+use worksheet_lang::results::{CellReport, CheckRow, Hazard, Shown};
 use worksheet_lang::units::Dim;
 
 /// MIME type of the results data, the same for the kernel and `headroom run --json`.
@@ -35,6 +35,21 @@ confirm with the part's datasheet and by measurement.";
 /// 60 °C in kelvin. The project's caution rule sets this threshold; touch-temperature limits in
 /// product safety standards for briefly touched metal parts are of this order (from memory).
 const HOT_SURFACE_K: f64 = 273.15 + 60.0;
+
+/// Shown wherever a worksheet holds a voltage that can give a dangerous shock.
+pub const SHOCK_CAUTION: &str = "Caution: more than 60 V (30 V rms for AC) can give a \
+dangerous shock; mains and other high-voltage circuits need the safety standards, codes and \
+licensed practice that apply.";
+
+/// 60 V: the limit of touch-safe DC in product safety standards (IEC 62368-1's ES1, the SELV
+/// limit before it; from memory). A worksheet does not say AC from DC, so the caution
+/// follows the DC figure and names the AC one (30 V rms, from memory).
+const SHOCK_VOLTS: f64 = 60.0;
+
+/// Shown wherever a worksheet models a battery.
+pub const BATTERY_CAUTION: &str = "Caution: cells, lithium cells above all, can overheat, \
+vent or catch fire when shorted, overcharged, over-discharged or damaged; follow the cell \
+maker's datasheet and the battery safety standards that apply.";
 
 /// The display bundle of a cell's result block: `text/plain`, `text/html` and the results JSON.
 pub fn bundle(report: &CellReport) -> Map<String, Value> {
@@ -171,43 +186,64 @@ pub(crate) fn live_notes(report: &CellReport) -> Vec<String> {
     notes
 }
 
-/// The caution to show with these results, if any: a value, shown value, check side or swept
-/// result that is an absolute temperature above about 60 °C at its nominal or worst case.
-pub fn caution(reports: &[&CellReport]) -> Option<&'static str> {
-    reports
-        .iter()
-        .any(|r| is_hot(r))
-        .then_some(HOT_SURFACE_CAUTION)
+/// The cautions to show with these results, in this order: hot surfaces, shock, batteries.
+/// Hot surfaces and shock are read from the numbers (nominal or worst case) of values, shown
+/// values, check sides and sweeps; batteries from the built-ins a cell calls.
+pub fn cautions(reports: &[&CellReport]) -> Vec<&'static str> {
+    let mut out = Vec::new();
+    if reports.iter().any(|r| is_hot(r)) {
+        out.push(HOT_SURFACE_CAUTION);
+    }
+    if reports.iter().any(|r| is_shock(r)) {
+        out.push(SHOCK_CAUTION);
+    }
+    if reports.iter().any(|r| r.hazards.contains(&Hazard::Battery)) {
+        out.push(BATTERY_CAUTION);
+    }
+    out
+}
+
+/// Every number of a report with its dimension and whether it is an absolute temperature:
+/// value and shown rows (nominal and worst case), check sides, swept points and series.
+fn numbers(r: &CellReport) -> Vec<(Dim, bool, f64)> {
+    let mut out = Vec::new();
+    for v in r.values.iter().chain(&r.shown) {
+        if let Shown::Number { value, bounds } = &v.shown {
+            out.push((value.dim, value.absolute, value.si));
+            if let Some(b) = bounds {
+                out.push((value.dim, value.absolute, b.min));
+                out.push((value.dim, value.absolute, b.max));
+            }
+        }
+    }
+    for c in &r.checks {
+        out.push((c.dim, c.worst_absolute, c.worst));
+        out.push((c.dim, c.limit_absolute, c.limit));
+    }
+    for s in &r.sweeps {
+        out.extend(s.points.iter().map(|&x| (s.dim, s.absolute, x)));
+        for se in &s.series {
+            let all = se
+                .nominal
+                .iter()
+                .chain(se.min.iter().flatten())
+                .chain(se.max.iter().flatten());
+            out.extend(all.map(|&x| (se.dim, se.absolute, x)));
+        }
+    }
+    out
 }
 
 fn is_hot(r: &CellReport) -> bool {
-    let hot = |si: f64| si > HOT_SURFACE_K;
-    let hot_row = |v: &ValueRow| match &v.shown {
-        Shown::Number { value, bounds } => {
-            value.absolute
-                && value.dim == Dim::TEMPERATURE
-                && (hot(value.si) || bounds.as_ref().is_some_and(|b| hot(b.max)))
-        }
-        Shown::Text(_) | Shown::Other(_) => false,
-    };
-    // A temperature check whose limit is above 60 °C says the part is expected to run that
-    // hot, even while its computed side is still cool.
-    let hot_check =
-        |c: &CheckRow| c.absolute() && c.dim == Dim::TEMPERATURE && (hot(c.worst) || hot(c.limit));
-    r.values.iter().any(hot_row)
-        || r.shown.iter().any(hot_row)
-        || r.checks.iter().any(hot_check)
-        || r.sweeps.iter().any(|s| {
-            s.series.iter().any(|se| {
-                se.absolute
-                    && se.dim == Dim::TEMPERATURE
-                    && se
-                        .nominal
-                        .iter()
-                        .chain(se.max.iter().flatten())
-                        .any(|&x| hot(x))
-            })
-        })
+    numbers(r)
+        .into_iter()
+        .any(|(dim, absolute, x)| dim == Dim::TEMPERATURE && absolute && x > HOT_SURFACE_K)
+}
+
+fn is_shock(r: &CellReport) -> bool {
+    numbers(r)
+        .into_iter()
+        .any(|(dim, _, x)| dim == Dim::VOLTAGE && x.abs() > SHOCK_VOLTS)
 }
 
 /// Splits a display text such as "79.4 °C" into its number and unit ("79.4", "°C") so the

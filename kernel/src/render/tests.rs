@@ -500,7 +500,7 @@ fn caution_follows_hot_absolute_temperatures() {
         false,
         "30.0 °C … 55.0 °C",
     );
-    assert_eq!(caution(&[&report(vec![cool.clone()], vec![])]), None);
+    assert!(cautions(&[&report(vec![cool.clone()], vec![])]).is_empty());
 
     // Nominal 50 °C but worst case 65 °C: the worst case can burn.
     let warm = with_bounds(
@@ -511,25 +511,101 @@ fn caution_follows_hot_absolute_temperatures() {
         "40.0 °C … 65.0 °C",
     );
     assert_eq!(
-        caution(&[&report(vec![warm], vec![])]),
-        Some(HOT_SURFACE_CAUTION)
+        cautions(&[&report(vec![warm], vec![])]),
+        [HOT_SURFACE_CAUTION]
     );
 
     // A rise of 80 K is a difference, not a surface temperature.
     let rise = number("rise", false, 80.0, Dim::TEMPERATURE, false, "80.0 K");
-    assert_eq!(caution(&[&report(vec![rise], vec![])]), None);
+    assert!(cautions(&[&report(vec![rise], vec![])]).is_empty());
 
     // A check against a 125 °C limit says the part runs hot.
     assert_eq!(
-        caution(&[&report(vec![cool.clone()], vec![tj_check()])]),
-        Some(HOT_SURFACE_CAUTION)
+        cautions(&[&report(vec![cool.clone()], vec![tj_check()])]),
+        [HOT_SURFACE_CAUTION]
     );
 
     // A hot swept series.
     let mut r = report(vec![cool], vec![]);
     r.sweeps.push(sweep_of(26));
-    assert_eq!(caution(&[&r]), Some(HOT_SURFACE_CAUTION));
+    assert_eq!(cautions(&[&r]), [HOT_SURFACE_CAUTION]);
     assert!(html::report(&r).contains("burn on touch"));
+}
+
+#[test]
+fn caution_follows_shock_voltages() {
+    // 48 V ± 10 % reaches 52.8 V: below 60 V, no caution.
+    let bus = with_bounds(
+        number("vbus", true, 48.0, Dim::VOLTAGE, false, "48.0 V"),
+        43.2,
+        52.8,
+        false,
+        "43.2 V … 52.8 V",
+    );
+    assert!(cautions(&[&report(vec![bus.clone()], vec![])]).is_empty());
+    // 56 V ± 10 % reaches 61.6 V at its worst case.
+    let high = with_bounds(
+        number("vbus", true, 56.0, Dim::VOLTAGE, false, "56.0 V"),
+        50.4,
+        61.6,
+        false,
+        "50.4 V … 61.6 V",
+    );
+    assert_eq!(cautions(&[&report(vec![high], vec![])]), [SHOCK_CAUTION]);
+    // A negative rail counts by its magnitude.
+    let neg = number("vee", true, -70.0, Dim::VOLTAGE, false, "-70.0 V");
+    assert_eq!(cautions(&[&report(vec![neg], vec![])]), [SHOCK_CAUTION]);
+    // 70 A is not 70 V.
+    let amps = number("i", false, 70.0, Dim::CURRENT, false, "70.0 A");
+    assert!(cautions(&[&report(vec![amps], vec![])]).is_empty());
+    // A check against a 100 V limit says the circuit may see it.
+    let c = check_row(
+        "vbus <= 100 V",
+        true,
+        52.8,
+        100.0,
+        false,
+        47.2,
+        Dim::VOLTAGE,
+        ["52.8 V", "100 V", "+47.2 V"],
+    );
+    let r = report(vec![bus], vec![c]);
+    assert_eq!(cautions(&[&r]), [SHOCK_CAUTION]);
+    assert!(text(&r).ends_with(SHOCK_CAUTION));
+    assert!(html::report(&r).contains("dangerous shock"));
+}
+
+#[test]
+fn caution_follows_a_battery_and_cautions_come_in_order() {
+    let t = number("life", false, 7200.0, Dim::TIME, false, "2.00 h");
+    let mut r = report(vec![t], vec![]);
+    assert!(cautions(&[&r]).is_empty());
+    r.hazards.push(worksheet_lang::results::Hazard::Battery);
+    assert_eq!(cautions(&[&r]), [BATTERY_CAUTION]);
+    // Hot, shock and battery together, in that order, in text and HTML alike.
+    r.values.push(number(
+        "tj",
+        false,
+        373.15,
+        Dim::TEMPERATURE,
+        true,
+        "100 °C",
+    ));
+    r.values
+        .push(number("v", false, 120.0, Dim::VOLTAGE, false, "120 V"));
+    assert_eq!(
+        cautions(&[&r]),
+        [HOT_SURFACE_CAUTION, SHOCK_CAUTION, BATTERY_CAUTION]
+    );
+    let t = text(&r);
+    let (a, b, c) = (
+        t.find("burn on touch").unwrap(),
+        t.find("dangerous shock").unwrap(),
+        t.find("lithium").unwrap(),
+    );
+    assert!(a < b && b < c, "{t}");
+    let h = html::report(&r);
+    assert_eq!(h.matches("Caution:").count(), 3, "{h}");
 }
 
 // ---- HTML ----

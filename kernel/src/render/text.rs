@@ -1,7 +1,7 @@
 //! The plain-text result block: aligned columns for consoles and `headroom run`.
 
 use super::sweep::{columns, heading, left_out_text, table_rows};
-use super::{caution, diagnostic_warnings, signed_margin, split_number_unit};
+use super::{cautions, diagnostic_warnings, signed_margin, split_number_unit};
 use unicode_width::UnicodeWidthStr;
 use worksheet_lang::results::{CellReport, CheckRow, Shown, SweepTable, ValueRow};
 
@@ -207,9 +207,7 @@ pub(super) fn report(r: &CellReport) -> String {
         sections.push(format!("Warnings\n{}", warnings.join("\n")));
     }
 
-    if let Some(c) = caution(&[r]) {
-        sections.push(c.to_string());
-    }
+    sections.extend(cautions(&[r]).into_iter().map(str::to_string));
     sections.join("\n\n")
 }
 

@@ -181,6 +181,8 @@ pub trait CallHost {
     ) -> Dual;
     fn probe(&mut self, key: &'static str, value: Num, rule: WarnRule);
     fn warn(&mut self, text: String);
+    /// Notes that the call's statement works with `hazard` (only kept from the nominal pass).
+    fn hazard(&mut self, hazard: crate::results::Hazard);
     /// The worst-case range (SI) of argument `param` over the whole input box, where the
     /// evaluator knows it before the nominal pass. Choices made by a worst-case rule
     /// (`res.led(rule: "worst")`, the power rating of `res.led`) use it; without it they
@@ -236,6 +238,13 @@ impl CallCtx<'_> {
     pub fn warn(&mut self, text: impl Into<String>) {
         if self.host.is_nominal() {
             self.host.warn(text.into())
+        }
+    }
+    /// Says what the call models can hurt someone (a battery), so the results carry a
+    /// caution about it. Only kept from the nominal pass.
+    pub fn hazard(&mut self, hazard: crate::results::Hazard) {
+        if self.host.is_nominal() {
+            self.host.hazard(hazard)
         }
     }
 }

@@ -46,7 +46,9 @@ pub static BATTERY_HOURS: Builtin = Builtin {
     call: battery_hours,
 };
 
-fn battery_hours(_ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError> {
+fn battery_hours(ctx: &mut CallCtx<'_>, vals: &[Option<Value>]) -> Result<Value, CallError> {
+    // Whatever the run time, the results of a battery carry its caution.
+    ctx.hazard(crate::results::Hazard::Battery);
     let a = Args::new(BATTERY_PARAMS, vals);
     let capacity: Charge = a
         .q(0)
