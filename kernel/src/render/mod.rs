@@ -190,60 +190,51 @@ pub(crate) fn live_notes(report: &CellReport) -> Vec<String> {
 /// Hot surfaces and shock are read from the numbers (nominal or worst case) of values, shown
 /// values, check sides and sweeps; batteries from the built-ins a cell calls.
 pub fn cautions(reports: &[&CellReport]) -> Vec<&'static str> {
-    let mut out = Vec::new();
-    if reports.iter().any(|r| is_hot(r)) {
-        out.push(HOT_SURFACE_CAUTION);
+    let (mut hot, mut shock, mut battery) = (false, false, false);
+    for r in reports {
+        each_number(r, |dim, absolute, x| {
+            hot |= dim == Dim::TEMPERATURE && absolute && x > HOT_SURFACE_K;
+            shock |= dim == Dim::VOLTAGE && x.abs() > SHOCK_VOLTS;
+        });
+        battery |= r.hazards.contains(&Hazard::Battery);
     }
-    if reports.iter().any(|r| is_shock(r)) {
-        out.push(SHOCK_CAUTION);
-    }
-    if reports.iter().any(|r| r.hazards.contains(&Hazard::Battery)) {
-        out.push(BATTERY_CAUTION);
-    }
-    out
+    [
+        (hot, HOT_SURFACE_CAUTION),
+        (shock, SHOCK_CAUTION),
+        (battery, BATTERY_CAUTION),
+    ]
+    .into_iter()
+    .filter_map(|(on, text)| on.then_some(text))
+    .collect()
 }
 
-/// Every number of a report with its dimension and whether it is an absolute temperature:
-/// value and shown rows (nominal and worst case), check sides, swept points and series.
-fn numbers(r: &CellReport) -> Vec<(Dim, bool, f64)> {
-    let mut out = Vec::new();
+/// Calls `f` with every number of a report, its dimension and whether it is an absolute
+/// temperature: value and shown rows (nominal and worst case), check sides, swept points and
+/// series.
+fn each_number(r: &CellReport, mut f: impl FnMut(Dim, bool, f64)) {
     for v in r.values.iter().chain(&r.shown) {
         if let Shown::Number { value, bounds } = &v.shown {
-            out.push((value.dim, value.absolute, value.si));
+            f(value.dim, value.absolute, value.si);
             if let Some(b) = bounds {
-                out.push((value.dim, value.absolute, b.min));
-                out.push((value.dim, value.absolute, b.max));
+                f(value.dim, value.absolute, b.min);
+                f(value.dim, value.absolute, b.max);
             }
         }
     }
     for c in &r.checks {
-        out.push((c.dim, c.worst_absolute, c.worst));
-        out.push((c.dim, c.limit_absolute, c.limit));
+        f(c.dim, c.worst_absolute, c.worst);
+        f(c.dim, c.limit_absolute, c.limit);
     }
     for s in &r.sweeps {
-        out.extend(s.points.iter().map(|&x| (s.dim, s.absolute, x)));
+        s.points.iter().for_each(|&x| f(s.dim, s.absolute, x));
         for se in &s.series {
-            let all = se
-                .nominal
+            se.nominal
                 .iter()
                 .chain(se.min.iter().flatten())
-                .chain(se.max.iter().flatten());
-            out.extend(all.map(|&x| (se.dim, se.absolute, x)));
+                .chain(se.max.iter().flatten())
+                .for_each(|&x| f(se.dim, se.absolute, x));
         }
     }
-    out
-}
-
-fn is_hot(r: &CellReport) -> bool {
-    numbers(r)
-        .into_iter()
-        .any(|(dim, absolute, x)| dim == Dim::TEMPERATURE && absolute && x > HOT_SURFACE_K)
-}
-
-fn is_shock(r: &CellReport) -> bool {
-    numbers(r)
-        .into_iter()
-        .any(|(dim, _, x)| dim == Dim::VOLTAGE && x.abs() > SHOCK_VOLTS)
 }
 
 /// Splits a display text such as "79.4 °C" into its number and unit ("79.4", "°C") so the
