@@ -352,10 +352,27 @@ impl<'a> Evaluator<'a> {
     pub fn record_value(&mut self, key: &str, v: &Value) {
         match v {
             Value::Num(n) => self.record(key, *n),
+            Value::Record(_) => {
+                // One buffer for every field's key, nested records included.
+                let mut buf = String::with_capacity(key.len() + 16);
+                buf.push_str(key);
+                self.record_fields(&mut buf, v);
+            }
+            _ => {}
+        }
+    }
+
+    /// `record_value` with the key in `buf`, which it leaves as it found it.
+    fn record_fields(&mut self, buf: &mut String, v: &Value) {
+        match v {
+            Value::Num(n) => self.record(buf, *n),
             Value::Record(r) => {
+                let len = buf.len();
                 for f in &r.fields {
-                    let k = join(&[key, ".", f.name]);
-                    self.record_value(&k, &f.value);
+                    buf.push('.');
+                    buf.push_str(f.name);
+                    self.record_fields(buf, &f.value);
+                    buf.truncate(len);
                 }
             }
             _ => {}
