@@ -389,6 +389,11 @@ impl<'a> Evaluator<'a> {
         lo: f64,
         hi: f64,
     ) -> R<Dual> {
+        // A site of zero width (`± 0 %`, `5 V .. 5 V`, a part of tolerance 0) is exact: it is
+        // no input, in every pass alike (its numbers come from the text or a fixed choice).
+        if lo == hi && lo == nominal {
+            return Ok(Dual::constant(nominal));
+        }
         let id = match self.reg.input_index.get(key) {
             Some(&id) => id,
             None if self.nominal() => {
@@ -460,11 +465,13 @@ impl<'a> Evaluator<'a> {
         let n = site_value(e)?;
         if self.nominal() {
             let sid = self.reg.scalar_id(&skey);
-            let iid = self.reg.input_index[key];
-            if self.reg.input_scalars.len() <= iid {
-                self.reg.input_scalars.resize(iid + 1, usize::MAX);
+            // A site of zero width is exact and registered no input.
+            if let Some(&iid) = self.reg.input_index.get(key) {
+                if self.reg.input_scalars.len() <= iid {
+                    self.reg.input_scalars.resize(iid + 1, usize::MAX);
+                }
+                self.reg.input_scalars[iid] = sid;
             }
-            self.reg.input_scalars[iid] = sid;
         }
         self.record(&skey, n);
         self.reg.site_buf = skey;

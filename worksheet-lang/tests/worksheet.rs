@@ -932,3 +932,28 @@ fn a_battery_cell_carries_the_battery_hazard() {
     assert!(r.hazards.is_empty());
     assert!(run("x = 3 V\n").hazards.is_empty());
 }
+
+/// A tolerance or range of zero width is exact, not an uncertain input: `± 0 %`, `5 V .. 5 V`,
+/// `tol(x, 0 %, 0 %)` and a part of tolerance 0 give values without a range, and a value that
+/// also reads a real input takes its range from that input alone: y = a · b / 1 V with
+/// a = 5 V exactly and b = 3 V ± 10 % spans 5 · 2.7 = 13.5 V to 5 · 3.3 = 16.5 V.
+#[test]
+fn a_tolerance_of_zero_width_is_exact() {
+    let src = "given a = 5 V ± 0 %\ngiven b = 3 V ± 10 %\ny = a * b / 1 V\n\
+               z = tol(2 V, 0 %, 0 %) + a\nw = 4 V .. 4 V\n\
+               R7 = res.led(supply: 5 V, vf: 2.1 V, current: 8 mA, series: E24, tolerance: 0)\n";
+    let r = run(src);
+    assert!(!r.has_errors(), "{:?}", r.diagnostics);
+    let bounds = |name: &str| match &r.values.iter().find(|v| v.name == name).expect(name).shown {
+        Shown::Number { bounds, .. } => bounds.as_ref().map(|b| (b.min, b.max)),
+        other => panic!("{name}: {other:?}"),
+    };
+    for exact in ["a", "z", "w", "R7.r", "R7.current"] {
+        assert_eq!(bounds(exact), None, "{exact}");
+    }
+    let (lo, hi) = bounds("y").expect("y has a range");
+    assert!(
+        (lo - 13.5).abs() < 1e-12 && (hi - 16.5).abs() < 1e-12,
+        "{lo} {hi}"
+    );
+}
