@@ -122,12 +122,9 @@ impl<'e, E: Evaluate> Passes<'e, E> {
 
     /// The memoised pass under `a`, if there is one.
     fn find(&mut self, a: &[Interval], seed: Option<usize>) -> Option<usize> {
-        let same = |x: &Interval, y: &Interval| {
-            x.lo.to_bits() == y.lo.to_bits() && x.hi.to_bits() == y.hi.to_bits()
-        };
         if self.memo.len() < SCAN_LIMIT {
             self.memo.iter().position(|(at, sd, _)| {
-                *sd == seed && at.len() == a.len() && at.iter().zip(a).all(|(x, y)| same(x, y))
+                *sd == seed && at.len() == a.len() && at.iter().zip(a).all(|(x, y)| same(*x, *y))
             })
         } else {
             self.key.clear();
@@ -228,6 +225,11 @@ fn sign(d: Interval) -> Sign {
     }
 }
 
+/// The same assignment of one input, bit for bit (as the memo's hashed keys compare).
+fn same(x: Interval, y: Interval) -> bool {
+    x.lo.to_bits() == y.lo.to_bits() && x.hi.to_bits() == y.hi.to_bits()
+}
+
 /// How one scalar's bounds are found, settled from its derivatives' signs.
 enum Method {
     /// Affine over the box: the bounds themselves.
@@ -301,9 +303,6 @@ pub fn analyse<E: Evaluate>(
             Some(&(_, lo, hi)) => (lo, hi),
             None => {
                 let mut add = |want_max: bool| {
-                    let same = |x: Interval, y: Interval| {
-                        x.lo.to_bits() == y.lo.to_bits() && x.hi.to_bits() == y.hi.to_bits()
-                    };
                     let at = |k: usize| end(&inputs[k], sg[k], want_max);
                     match corner_at
                         .chunks_exact(n)

@@ -223,12 +223,12 @@ pub fn inspect(
                     ));
                 }
                 // Worked out now: a run leaves the spread out.
-                let spread = ws
-                    .spread(&r.name, interrupt)
-                    .filter(|s| !s.shares.is_empty());
-                if interrupt.is_raised() {
+                let spread = ws.spread(&r.name, interrupt);
+                // An interrupt that came after the spread was worked out changes nothing.
+                if spread.is_none() && interrupt.is_raised() {
                     t.push_str("shares of the spread: not worked out (interrupted)\n");
                 }
+                let spread = spread.filter(|s| !s.shares.is_empty());
                 for s in spread.iter().flat_map(|s| &s.shares) {
                     t.push_str(&format!(
                         "  {:>5.1} % of the spread from {}\n",
