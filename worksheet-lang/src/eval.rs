@@ -18,6 +18,10 @@ use std::sync::Arc;
 pub const MAX_CALL_DEPTH: usize = 32;
 /// When less stack than this is left, evaluation continues on a new segment of this size.
 const STACK_RED_ZONE: usize = 128 * 1024;
+/// The stack is checked (and grown if short) at every this many levels of nested
+/// expressions, not at each: the check and the closure it runs in cost about as much as
+/// evaluating a number. Eight levels of evaluation take a few KiB, well inside the red zone.
+const STACK_CHECK_EVERY: u32 = 8;
 const STACK_GROWTH: usize = 4 * 1024 * 1024;
 
 /// Most user-function calls one statement may make in one evaluation.
@@ -328,6 +332,9 @@ pub struct Evaluator<'a> {
     pub calls: usize,
     /// Warnings (unit read as a unit although a name exists) met in the nominal pass.
     pub notes: Vec<Diagnostic>,
+    /// How deeply `eval` is nested now; the stack is checked every `STACK_CHECK_EVERY`
+    /// levels.
+    pub nest: u32,
 }
 
 impl<'a> Evaluator<'a> {
@@ -479,7 +486,14 @@ impl<'a> Evaluator<'a> {
     }
 
     pub fn eval(&mut self, e: &Expr) -> R<Value> {
-        let v = stacker::maybe_grow(STACK_RED_ZONE, STACK_GROWTH, || self.eval_inner(e))?;
+        self.nest += 1;
+        let v = if self.nest.is_multiple_of(STACK_CHECK_EVERY) {
+            stacker::maybe_grow(STACK_RED_ZONE, STACK_GROWTH, || self.eval_inner(e))
+        } else {
+            self.eval_inner(e)
+        };
+        self.nest -= 1;
+        let v = v?;
         if let Value::Num(n) = &v {
             if !n.x.is_finite() {
                 return Err(EvalError::new(

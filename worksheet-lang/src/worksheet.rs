@@ -1856,6 +1856,7 @@ impl Runner<'_> {
                     depth: 0,
                     calls: 0,
                     notes: Vec::new(),
+                    nest: 0,
                 };
                 let r = ev.eval(def.expr).and_then(|v| {
                     if let Some(u) = &def.unit {
@@ -1891,6 +1892,7 @@ impl Runner<'_> {
                                 depth: 0,
                                 calls: 0,
                                 notes: Vec::new(),
+                                nest: 0,
                             };
                             ev.record_value(def.key, &v);
                             if nominal {
@@ -1980,6 +1982,7 @@ impl Runner<'_> {
                 depth: 0,
                 calls: 0,
                 notes: Vec::new(),
+                nest: 0,
             };
             let known_ids = self.check_ids.get(i).copied().flatten();
             let r = (|| {
@@ -2042,6 +2045,7 @@ impl Runner<'_> {
                 depth: 0,
                 calls: 0,
                 notes: Vec::new(),
+                nest: 0,
             };
             let r = ev.eval(s.expr).and_then(|v| {
                 if let Some(u) = &s.unit {
@@ -2075,6 +2079,7 @@ impl Runner<'_> {
                 depth: 0,
                 calls: 0,
                 notes: Vec::new(),
+                nest: 0,
             };
             if let Ok(v) = ev.eval(e) {
                 ev.record_value(key, &v);
@@ -2119,6 +2124,7 @@ fn same_kind(
         depth: 0,
         calls: 0,
         notes: Vec::new(),
+        nest: 0,
     };
     let Ok(old) = ev.eval(original) else {
         return Ok(());
@@ -2783,6 +2789,7 @@ impl SweepHost<'_> {
             depth: 0,
             calls: 0,
             notes: Vec::new(),
+            nest: 0,
         };
         match ev.eval(e)? {
             Value::Num(n) if scratch.inputs.is_empty() => Ok(n),
@@ -2840,6 +2847,7 @@ impl SweepHost<'_> {
                     depth: 0,
                     calls: 0,
                     notes: Vec::new(),
+                    nest: 0,
                 };
                 return Some(match ev.eval(e) {
                     Err(err) => Err(err),
