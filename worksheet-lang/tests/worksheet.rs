@@ -510,6 +510,21 @@ fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
     // Domain.
     let e = only_error("x = sqrt(-4 V^2)\n");
     assert_eq!(e.kind, DiagKind::DomainError);
+    // A number that overflows on its way to SI units is no value, in the number itself.
+    let src = "x = 2 * 9e307 kV\n";
+    let e = only_error(src);
+    assert_eq!(e.kind, DiagKind::DomainError);
+    assert_eq!(&src[e.span.clone()], "9e307 kV", "{e:?}");
+    // And a name whose value overflowed never gets one.
+    let r = run("a = 1e300 V * 1e300\nb = a + 1 V\n");
+    assert!(r
+        .diagnostics
+        .iter()
+        .any(|d| d.kind == DiagKind::DomainError));
+    assert!(r
+        .diagnostics
+        .iter()
+        .any(|d| d.kind == DiagKind::DependencyFailed));
     // Unknown function with a near miss.
     let e = only_error("x = sqr(4)\n");
     assert_eq!(e.kind, DiagKind::UnknownFunction);
