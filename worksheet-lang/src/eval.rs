@@ -656,32 +656,39 @@ impl<'a> Evaluator<'a> {
             dim: parsed.dim,
             abs: absolute,
         };
-        // `1e400` reads as infinity, and `1e300 GV` overflows on the way to SI.
+        // `9e307 kV` overflows on the way to SI.
         if !num.x.is_finite() {
             return Err(not_finite(span));
         }
-        if self.nominal() && self.names.lookup(&u.text).is_some() && self.depth == 0 {
-            let parsed_text = self
-                .reg
-                .unit(&u.text)
-                .map(|p| p.text.clone())
-                .unwrap_or_default();
-            self.notes.push(
-                Diagnostic::warning(
-                    DiagKind::UnitShadowsName,
-                    span.clone(),
-                    format!(
-                        "`{}` after a number is read as the unit {}, not as your `{}`",
-                        u.text, parsed_text, u.text
-                    ),
-                )
-                .hint(format!(
-                    "to multiply by the name, write `{value} * {}`",
-                    u.text
-                )),
-            );
+        if self.nominal() && self.depth == 0 && self.names.lookup(&u.text).is_some() {
+            self.note_unit_shadows(u, value, span);
         }
         Ok(num)
+    }
+
+    /// Warns that the unit after a number is read as a unit although a name is spelled
+    /// the same.
+    #[cold]
+    fn note_unit_shadows(&mut self, u: &crate::ast::UnitExpr, value: f64, span: &Span) {
+        let parsed_text = self
+            .reg
+            .unit(&u.text)
+            .map(|p| p.text.clone())
+            .unwrap_or_default();
+        self.notes.push(
+            Diagnostic::warning(
+                DiagKind::UnitShadowsName,
+                span.clone(),
+                format!(
+                    "`{}` after a number is read as the unit {}, not as your `{}`",
+                    u.text, parsed_text, u.text
+                ),
+            )
+            .hint(format!(
+                "to multiply by the name, write `{value} * {}`",
+                u.text
+            )),
+        );
     }
 
     fn name(&mut self, n: &str, span: &Span) -> R<Value> {
