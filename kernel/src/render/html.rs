@@ -12,7 +12,8 @@
 
 use super::sweep::{columns, heading, left_out_text, table_rows};
 use super::{
-    cautions, diagnostic_warnings, signed_margin, split_number_unit, MAX_CELL_OUTPUT_BYTES,
+    cautions, diagnostic_warnings, signed_margin, split_number_unit, RowTexts,
+    MAX_CELL_OUTPUT_BYTES,
 };
 use html_escape::encode_text;
 use std::fmt::Write as _;
@@ -63,6 +64,25 @@ fn esc(s: &str) -> std::borrow::Cow<'_, str> {
     encode_text(s)
 }
 
+/// Writes `<TAG style="STYLE">` (every element of the block carries its own style).
+fn open(out: &mut String, tag: &str, style: &str) {
+    out.push('<');
+    out.push_str(tag);
+    out.push_str(" style=\"");
+    out.push_str(style);
+    out.push_str("\">");
+}
+
+/// Writes `<TAG style="STYLE">TEXT</TAG>` with the text escaped. Cells are written piece by
+/// piece, without the formatting machinery: a block has a few of them for every row.
+fn element(out: &mut String, tag: &str, style: &str, text: &str) {
+    open(out, tag, style);
+    out.push_str(&esc(text));
+    out.push_str("</");
+    out.push_str(tag);
+    out.push('>');
+}
+
 fn section(out: &mut String, title: &str, span: usize) {
     let _ = write!(
         out,
@@ -71,114 +91,109 @@ fn section(out: &mut String, title: &str, span: usize) {
     );
 }
 
-fn value_row(out: &mut String, v: &ValueRow) {
+/// A value's row; `t` holds its display texts.
+fn value_row(out: &mut String, v: &ValueRow, t: &RowTexts) {
     out.push_str("<tr>");
-    let _ = write!(out, r#"<td style="{NAME}">{}</td>"#, esc(&v.name));
+    element(out, "td", NAME, &v.name);
     match &v.shown {
         Shown::Number { bounds, .. } => {
-            let text = v.value_text();
-            let (n, u) = split_number_unit(&text);
-            let _ = write!(
-                out,
-                r#"<td style="{NUMBER}">{}</td><td style="{UNIT}">{}</td>"#,
-                esc(n),
-                esc(u)
-            );
-            let range = v.range_text().unwrap_or_default();
-            let conservative = if bounds.as_ref().is_some_and(|b| b.conservative)
-                && !range.is_empty()
-            {
-                format!(
-                    r#" <span style="{SOFT}" title="guaranteed to enclose the worst case, perhaps wider">(conservative)</span>"#
-                )
-            } else {
-                String::new()
-            };
+            let (n, u) = split_number_unit(&t.value);
+            element(out, "td", NUMBER, n);
+            element(out, "td", UNIT, u);
+            open(out, "td", RANGE);
             // A sizing result leads with its worst case; the range column says so.
-            let worst = match v.worst_note() {
-                Some(note) => format!(
-                    r#"<span style="{SOFT}">{}</span> "#,
-                    esc(&format!("{note};"))
-                ),
-                None => String::new(),
-            };
-            let _ = write!(
-                out,
-                r#"<td style="{RANGE}">{worst}{}{conservative}</td>"#,
-                esc(&range)
-            );
+            if let Some(note) = &t.worst {
+                open(out, "span", SOFT);
+                out.push_str(&esc(note));
+                out.push_str(";</span> ");
+            }
+            let range = t.range.as_deref().unwrap_or_default();
+            out.push_str(&esc(range));
+            if bounds.as_ref().is_some_and(|b| b.conservative) && !range.is_empty() {
+                out.push(' ');
+                out.push_str(&format!(
+                    r#"<span style="{SOFT}" title="guaranteed to enclose the worst case, perhaps wider">(conservative)</span>"#
+                ));
+            }
+            out.push_str("</td>");
         }
         Shown::Text(_) | Shown::Other(_) => {
             let _ = write!(
                 out,
                 r#"<td colspan="3" style="{PLAIN}">{}</td>"#,
-                esc(&v.text())
+                esc(&t.value)
             );
         }
     }
-    let _ = write!(out, r#"<td style="{NOTE}">{}</td>"#, esc(&v.note));
+    element(out, "td", NOTE, &v.note);
     out.push_str("</tr>");
 }
 
 fn check_row(out: &mut String, c: &CheckRow) {
     if c.passed {
         out.push_str("<tr>");
-        let _ = write!(out, r#"<td style="{PASS}">✓ pass</td>"#);
+        element(out, "td", PASS, "✓ pass");
     } else {
-        let _ = write!(out, r#"<tr style="{FAIL_ROW}">"#);
-        let _ = write!(out, r#"<td style="{FAIL}">✗ FAIL</td>"#);
+        open(out, "tr", FAIL_ROW);
+        element(out, "td", FAIL, "✗ FAIL");
     }
     let margin = signed_margin(c);
     let (n, u) = split_number_unit(&margin);
-    let _ = write!(
-        out,
-        r#"<td style="{NAME}">{}</td><td style="{NUMBER}">{}</td><td style="{UNIT}">{}</td>"#,
-        esc(&c.text),
-        esc(n),
-        esc(u)
-    );
-    let conservative = if c.conservative {
-        " (conservative)"
-    } else {
-        ""
-    };
+    element(out, "td", NAME, &c.text);
+    element(out, "td", NUMBER, n);
+    element(out, "td", UNIT, u);
     let (worst, limit) = c.side_texts();
-    let _ = write!(
-        out,
-        r#"<td style="{RANGE}"><span style="{SOFT}">worst</span> {} <span style="{SOFT}">limit</span> {}{conservative}</td>"#,
-        esc(&worst),
-        esc(&limit)
-    );
-    let _ = write!(out, r#"<td style="{NOTE}">{}</td>"#, esc(&c.note));
+    open(out, "td", RANGE);
+    element(out, "span", SOFT, "worst");
+    out.push(' ');
+    out.push_str(&esc(&worst));
+    out.push(' ');
+    element(out, "span", SOFT, "limit");
+    out.push(' ');
+    out.push_str(&esc(&limit));
+    if c.conservative {
+        out.push_str(" (conservative)");
+    }
+    out.push_str("</td>");
+    element(out, "td", NOTE, &c.note);
     out.push_str("</tr>");
 }
 
 /// The result block. Past the cell's output cap the sweep tables give way to a note first
 /// (see [`MAX_CELL_OUTPUT_BYTES`]); the caller replaces a block still too large.
+#[cfg(test)]
 pub(super) fn report(r: &CellReport) -> String {
-    let full = report_with(r, true);
+    report_texts(r, &RowTexts::of_all(&r.values))
+}
+
+/// `report` with the value rows' display texts made already (`texts[i]` of `r.values[i]`).
+pub(super) fn report_texts(r: &CellReport, texts: &[RowTexts]) -> String {
+    let full = report_with(r, texts, true);
     if full.len() <= MAX_CELL_OUTPUT_BYTES || r.sweeps.is_empty() {
         return full;
     }
-    report_with(r, false)
+    report_with(r, texts, false)
 }
 
-fn report_with(r: &CellReport, sweep_tables: bool) -> String {
+fn report_with(r: &CellReport, texts: &[RowTexts], sweep_tables: bool) -> String {
     let mut out = format!(r#"<div style="{BLOCK}">"#);
     for n in super::live_notes(r) {
         let _ = write!(out, r#"<div style="{LIVE}">{}</div>"#, esc(&n));
     }
-    let inputs: Vec<&ValueRow> = r.values.iter().filter(|v| v.given).collect();
-    let derived: Vec<&ValueRow> = r.values.iter().filter(|v| !v.given).collect();
+    let rows = || r.values.iter().zip(texts);
     if !r.values.is_empty() {
         let _ = write!(out, r#"<table style="{TABLE}"><tbody>"#);
-        if !inputs.is_empty() {
+        if r.values.iter().any(|v| v.given) {
             section(&mut out, "Inputs", 5);
-            inputs.iter().for_each(|v| value_row(&mut out, v));
+            rows()
+                .filter(|(v, _)| v.given)
+                .for_each(|(v, t)| value_row(&mut out, v, t));
         }
-        if !derived.is_empty() {
+        if r.values.iter().any(|v| !v.given) {
             section(&mut out, "Values", 5);
-            derived.iter().for_each(|v| value_row(&mut out, v));
+            rows()
+                .filter(|(v, _)| !v.given)
+                .for_each(|(v, t)| value_row(&mut out, v, t));
         }
         out.push_str("</tbody></table>");
     }
@@ -272,7 +287,8 @@ fn sweep_table(out: &mut String, s: &SweepTable) {
 /// The bare-expression values as a small table without section headers.
 pub(super) fn shown(rows: &[ValueRow]) -> String {
     let mut out = format!(r#"<table style="{TABLE}"><tbody>"#);
-    rows.iter().for_each(|v| value_row(&mut out, v));
+    rows.iter()
+        .for_each(|v| value_row(&mut out, v, &RowTexts::of(v)));
     out.push_str("</tbody></table>");
     out
 }

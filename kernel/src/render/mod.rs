@@ -15,7 +15,7 @@ mod text;
 
 use serde_json::{Map, Value};
 use worksheet_lang::diagnostic;
-use worksheet_lang::results::{CellReport, CheckRow, Hazard, Shown};
+use worksheet_lang::results::{CellReport, CheckRow, Hazard, Shown, ValueRow};
 use worksheet_lang::units::Dim;
 
 /// MIME type of the results data, the same for the kernel and `headroom run --json`.
@@ -53,17 +53,60 @@ maker's datasheet and the battery safety standards that apply.";
 
 /// The display bundle of a cell's result block: `text/plain`, `text/html` and the results JSON.
 pub fn bundle(report: &CellReport) -> Map<String, Value> {
+    // The plain text and the HTML show the same numbers: they are formatted once.
+    let texts = RowTexts::of_all(&report.values);
     let mut m = Map::new();
-    m.insert("text/plain".into(), Value::String(text(report)));
-    m.insert("text/html".into(), Value::String(html_block(report)));
+    m.insert(
+        "text/plain".into(),
+        Value::String(text_with(report, &texts)),
+    );
+    m.insert(
+        "text/html".into(),
+        Value::String(html_block_with(report, &texts)),
+    );
     m.insert(RESULTS_MIME.into(), results_json(&[report]));
     m
+}
+
+/// The display texts of a value row, made once for every renderer: its leading number with
+/// its unit ("79.4 °C"), its worst-case range ("69.8 °C … 91.0 °C") and, for a sizing result,
+/// what its leading number is ("at worst (nominal 3.40 K/W)").
+pub(super) struct RowTexts {
+    pub value: String,
+    pub range: Option<String>,
+    pub worst: Option<String>,
+}
+
+impl RowTexts {
+    pub fn of(v: &ValueRow) -> RowTexts {
+        match &v.shown {
+            Shown::Number { .. } => RowTexts {
+                value: v.value_text(),
+                range: v.range_text(),
+                worst: v.worst_note(),
+            },
+            Shown::Text(_) | Shown::Other(_) => RowTexts {
+                value: v.text(),
+                range: None,
+                worst: None,
+            },
+        }
+    }
+
+    pub fn of_all(rows: &[ValueRow]) -> Vec<RowTexts> {
+        rows.iter().map(RowTexts::of).collect()
+    }
 }
 
 /// The HTML result block, or a note in its place when even without its sweep tables it would
 /// pass [`MAX_CELL_OUTPUT_BYTES`].
 fn html_block(report: &CellReport) -> String {
-    let h = html::report(report);
+    html_block_with(report, &RowTexts::of_all(&report.values))
+}
+
+/// `html_block` with the value rows' texts made already (`texts[i]` of `report.values[i]`).
+fn html_block_with(report: &CellReport, texts: &[RowTexts]) -> String {
+    let h = html::report_texts(report, texts);
     if h.len() <= MAX_CELL_OUTPUT_BYTES {
         h
     } else {
@@ -147,8 +190,13 @@ pub fn results_json(reports: &[&CellReport]) -> Value {
 /// The aligned plain-text result block of a cell: inputs, values, checks, warnings and,
 /// where it applies, the hot-surface caution. Empty when the cell has nothing to show.
 pub fn text(report: &CellReport) -> String {
+    text_with(report, &RowTexts::of_all(&report.values))
+}
+
+/// `text` with the value rows' texts made already (`texts[i]` of `report.values[i]`).
+fn text_with(report: &CellReport, texts: &[RowTexts]) -> String {
     let notes = live_notes(report);
-    let body = text::report(report);
+    let body = text::report(report, texts);
     if notes.is_empty() {
         return body;
     }

@@ -1,7 +1,7 @@
 //! The plain-text result block: aligned columns for consoles and `headroom run`.
 
 use super::sweep::{columns, heading, left_out_text, table_rows};
-use super::{cautions, diagnostic_warnings, signed_margin, split_number_unit};
+use super::{cautions, diagnostic_warnings, signed_margin, split_number_unit, RowTexts};
 use unicode_width::UnicodeWidthStr;
 use worksheet_lang::results::{CellReport, CheckRow, Shown, SweepTable, ValueRow};
 
@@ -38,7 +38,15 @@ impl Grid<'_> {
                 *w = (*w).max(*cell);
             }
         }
-        let pad = |line: &mut String, n: usize| line.extend(std::iter::repeat_n(' ', n));
+        let pad = |line: &mut String, mut n: usize| {
+            // Whole runs of spaces at a time rather than one character at a time.
+            const SPACES: &str = "                                ";
+            while n > 0 {
+                let k = n.min(SPACES.len());
+                line.push_str(&SPACES[..k]);
+                n -= k;
+            }
+        };
         self.rows
             .iter()
             .zip(&cell_widths)
@@ -104,22 +112,21 @@ const VALUE_ALIGN: &[Align] = &[
 ];
 const VALUE_GAPS: &[&str] = &["", "  ", " ", "   ", "   "];
 
-fn value_cells(v: &ValueRow) -> Vec<String> {
+fn value_cells(v: &ValueRow, t: &RowTexts) -> Vec<String> {
     let (number, unit, range) = match &v.shown {
         Shown::Number { bounds, .. } => {
-            let text = v.value_text();
-            let (n, u) = split_number_unit(&text);
-            let mut range = v.range_text().unwrap_or_default();
+            let (n, u) = split_number_unit(&t.value);
+            let mut range = t.range.clone().unwrap_or_default();
             if bounds.as_ref().is_some_and(|b| b.conservative) && !range.is_empty() {
                 range.push_str(" (conservative)");
             }
             // A sizing result leads with its worst case; the range column says so.
-            if let Some(note) = v.worst_note() {
+            if let Some(note) = &t.worst {
                 range = format!("{note}; {range}");
             }
             (n.to_string(), u.to_string(), range)
         }
-        Shown::Text(_) | Shown::Other(_) => (v.text(), String::new(), String::new()),
+        Shown::Text(_) | Shown::Other(_) => (t.value.clone(), String::new(), String::new()),
     };
     vec![one_line(&v.name), number, unit, range, one_line(&v.note)]
 }
@@ -154,11 +161,13 @@ fn check_cells(c: &CheckRow) -> Vec<String> {
     ]
 }
 
-pub(super) fn report(r: &CellReport) -> String {
+/// The result block; `texts[i]` are the display texts of `r.values[i]`.
+pub(super) fn report(r: &CellReport, texts: &[RowTexts]) -> String {
     let mut sections: Vec<String> = Vec::new();
 
-    let inputs: Vec<&ValueRow> = r.values.iter().filter(|v| v.given).collect();
-    let derived: Vec<&ValueRow> = r.values.iter().filter(|v| !v.given).collect();
+    let rows = || r.values.iter().zip(texts);
+    let inputs: Vec<(&ValueRow, &RowTexts)> = rows().filter(|(v, _)| v.given).collect();
+    let derived: Vec<(&ValueRow, &RowTexts)> = rows().filter(|(v, _)| !v.given).collect();
     // One grid for both, so inputs and values share their columns.
     let grid = Grid {
         align: VALUE_ALIGN,
@@ -166,7 +175,7 @@ pub(super) fn report(r: &CellReport) -> String {
         rows: inputs
             .iter()
             .chain(&derived)
-            .map(|v| value_cells(v))
+            .map(|(v, t)| value_cells(v, t))
             .collect(),
     };
     let mut lines = grid.lines().into_iter();
@@ -278,7 +287,10 @@ pub(super) fn shown_table(rows: &[ValueRow]) -> Option<String> {
     let grid = Grid {
         align: VALUE_ALIGN,
         gaps: VALUE_GAPS,
-        rows: rows.iter().map(value_cells).collect(),
+        rows: rows
+            .iter()
+            .map(|v| value_cells(v, &RowTexts::of(v)))
+            .collect(),
     };
     let lines: Vec<String> = grid
         .lines()
