@@ -487,8 +487,9 @@ impl<'a> Evaluator<'a> {
 
     pub fn eval(&mut self, e: &Expr) -> R<Value> {
         // Numbers and names, about half the nodes, skip the large frame of the general case:
-        // they nest nothing, a number checks its own value, and a name's value was checked
-        // when it was made.
+        // they nest nothing, a number checks its own value, and every value a name holds is
+        // finite (evaluation checks what it makes below, and a sweep's pinned points are
+        // checked where they are set, in the worksheet's runner).
         match &e.kind {
             ExprKind::Number { value, unit } => {
                 return self
@@ -1524,7 +1525,7 @@ pub(crate) fn is_relative_literal(e: &Expr) -> bool {
 }
 
 #[cold]
-fn not_finite(span: &Span) -> EvalError {
+pub(crate) fn not_finite(span: &Span) -> EvalError {
     EvalError::new(
         DiagKind::DomainError,
         span,

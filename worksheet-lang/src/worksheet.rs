@@ -1839,7 +1839,13 @@ impl Runner<'_> {
             let first_touched = pass.touched.len();
             let first_input = self.reg.inputs.len();
             let result = if let Some((_, pv)) = self.pins.iter().find(|(pd, _)| *pd == d) {
-                Ok(Value::Num(*pv))
+                // A sweep's point is finite unless its range overflows when stepped through;
+                // names read their values unchecked (`Evaluator::eval`).
+                if pv.x.is_finite() {
+                    Ok(Value::Num(*pv))
+                } else {
+                    Err(eval::not_finite(&def.value_span))
+                }
             } else {
                 let scope = Scope {
                     model,

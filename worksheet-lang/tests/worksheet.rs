@@ -525,6 +525,19 @@ fn diagnostics_of_evaluation_have_kind_message_span_and_hint() {
         .diagnostics
         .iter()
         .any(|d| d.kind == DiagKind::DependencyFailed));
+    // Nor does a swept name whose range overflows when stepped through, whether the series
+    // reads it bare or computes with it.
+    for y in ["x", "x * 2"] {
+        let src = format!("x = 1 V\ny = {y}\nsweep x over -1.7e308 V .. 1.7e308 V steps 3: y\n");
+        let r = run(&src);
+        assert!(
+            r.diagnostics
+                .iter()
+                .any(|d| d.is_error() && d.message.contains("no finite value")),
+            "{src}: {:?}",
+            r.diagnostics
+        );
+    }
     // Unknown function with a near miss.
     let e = only_error("x = sqr(4)\n");
     assert_eq!(e.kind, DiagKind::UnknownFunction);

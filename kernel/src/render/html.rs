@@ -110,10 +110,10 @@ fn value_row(out: &mut String, v: &ValueRow, t: &RowTexts) {
             let range = t.range.as_deref().unwrap_or_default();
             out.push_str(&esc(range));
             if bounds.as_ref().is_some_and(|b| b.conservative) && !range.is_empty() {
-                out.push(' ');
-                out.push_str(&format!(
-                    r#"<span style="{SOFT}" title="guaranteed to enclose the worst case, perhaps wider">(conservative)</span>"#
-                ));
+                let _ = write!(
+                    out,
+                    r#" <span style="{SOFT}" title="guaranteed to enclose the worst case, perhaps wider">(conservative)</span>"#
+                );
             }
             out.push_str("</td>");
         }
