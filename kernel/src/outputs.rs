@@ -80,7 +80,7 @@ pub(crate) fn cell_outputs(ex: &Execution) -> CellOutputs {
         return failed(ename, evalue, traceback);
     }
     let mut outputs = Vec::new();
-    let block = render::bundle(report);
+    let (block, charts) = render::bundle_and_charts(report);
     let has_block = block
         .get("text/plain")
         .and_then(Value::as_str)
@@ -91,7 +91,7 @@ pub(crate) fn cell_outputs(ex: &Execution) -> CellOutputs {
             data: block,
         });
     }
-    for (n, data) in render::charts(report).into_iter().enumerate() {
+    for (n, data) in charts.into_iter().enumerate() {
         outputs.push(CellOutput::Display {
             display_id: chart_display_id(&report.cell, n),
             data,
@@ -105,11 +105,12 @@ pub(crate) fn cell_outputs(ex: &Execution) -> CellOutputs {
     }
     let mut updates = Vec::new();
     for u in &ex.updated {
+        let (block, charts) = render::bundle_and_charts(&u.report);
         updates.push(DisplayUpdate {
             display_id: display_id(&u.report.cell),
-            data: render::bundle(&u.report),
+            data: block,
         });
-        for (n, data) in render::charts(&u.report).into_iter().enumerate() {
+        for (n, data) in charts.into_iter().enumerate() {
             updates.push(DisplayUpdate {
                 display_id: chart_display_id(&u.report.cell, n),
                 data,

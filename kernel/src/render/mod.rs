@@ -100,6 +100,7 @@ impl RowTexts {
 
 /// The HTML result block, or a note in its place when even without its sweep tables it would
 /// pass [`MAX_CELL_OUTPUT_BYTES`].
+#[cfg(test)]
 fn html_block(report: &CellReport) -> String {
     html_block_with(report, &RowTexts::of_all(&report.values))
 }
@@ -119,11 +120,28 @@ fn html_block_with(report: &CellReport, texts: &[RowTexts]) -> String {
 /// with `image/svg+xml`, an `image/png` fallback (base64) and a one-line `text/plain`. Charts
 /// that would take the cell past [`MAX_CELL_OUTPUT_BYTES`], or that fail to draw, are
 /// replaced by a bundle holding a note (`text/plain` and `text/html`). Empty without sweeps.
+#[cfg(test)]
 pub fn charts(report: &CellReport) -> Vec<Map<String, Value>> {
+    charts_after(report, html_block(report).len())
+}
+
+/// The result block's bundle (`bundle`) and then its charts (`charts`), with the HTML block
+/// made once: its length is what the block takes of the cell's output cap.
+pub fn bundle_and_charts(report: &CellReport) -> (Map<String, Value>, Vec<Map<String, Value>>) {
+    let block = bundle(report);
+    let used = block
+        .get("text/html")
+        .and_then(Value::as_str)
+        .map_or(0, str::len);
+    let charts = charts_after(report, used);
+    (block, charts)
+}
+
+/// The charts, when the result block's HTML takes `used` bytes of the output cap.
+fn charts_after(report: &CellReport, used: usize) -> Vec<Map<String, Value>> {
     if report.sweeps.is_empty() {
         return Vec::new();
     }
-    let used = html_block(report).len();
     chart::bundles(report, MAX_CELL_OUTPUT_BYTES.saturating_sub(used))
 }
 
